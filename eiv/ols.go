@@ -1,0 +1,74 @@
+package eiv
+
+import "math"
+
+// Options are the settings shared by every estimator. A nil *Options means
+// the defaults.
+type Options struct {
+	// Confidence is the level of the confidence intervals, in (0, 1).
+	// Zero means DefaultConfidence (0.95).
+	Confidence float64
+}
+
+func (o *Options) confidence() (float64, error) {
+	if o == nil {
+		return DefaultConfidence, nil
+	}
+	return checkConfidence(o.Confidence)
+}
+
+// OLS fits y = a + b·x by ordinary least squares of y on x, treating x as
+// exact. Standard errors are the classical ones, from the residual variance
+// with n−2 degrees of freedom; intervals use Student's t with n−2 df.
+func OLS(x, y []float64, opt *Options) (*Fit, error) {
+	conf, err := opt.confidence()
+	if err != nil {
+		return nil, err
+	}
+	if err := checkXY(x, y); err != nil {
+		return nil, err
+	}
+	m := centredMoments(x, y)
+	b := m.sxy / m.sxx
+	a := m.my - b*m.mx
+	// Residual sum of squares, summed directly from the residuals rather than
+	// as syy − b·sxy, which cancels badly for a near-perfect fit.
+	var ssr float64
+	for i := range x {
+		e := y[i] - m.my - b*(x[i]-m.mx)
+		ssr += e * e
+	}
+	df := len(x) - 2
+	s2 := ssr / float64(df)
+	varB := s2 / m.sxx
+	varA := s2 * (1/m.n + m.mx*m.mx/m.sxx)
+	f := &Fit{
+		Method:            MethodOLS,
+		N:                 len(x),
+		Confidence:        conf,
+		ResidualSD:        math.Sqrt(s2),
+		CovSlopeIntercept: -m.mx * varB,
+		DOF:               df,
+		Converged:         true,
+	}
+	if m.syy > 0 {
+		f.RSquared = 1 - ssr/m.syy
+	} else {
+		f.RSquared = 1
+	}
+	t := tQuantile(conf, df)
+	f.Slope = estimate(b, math.Sqrt(varB), t, conf, "t")
+	f.Intercept = estimate(a, math.Sqrt(varA), t, conf, "t")
+	if !allFinite(a, b, varA, varB, f.CovSlopeIntercept) {
+		return nil, ErrDegenerate
+	}
+	if ssr == 0 {
+		f.Warnings = append(f.Warnings, &Warning{Code: WarnPerfectFit,
+			Message: "the points lie exactly on a line: standard errors are zero"})
+	}
+	return f, nil
+}
+
+func estimate(v, se, crit, conf float64, method string) Estimate {
+	return Estimate{Value: v, SE: se, CI: symmetric(v, crit*se, conf, method)}
+}
