@@ -70,6 +70,28 @@ func LambdaFromUncertainties(sx, sy []float64) (float64, error) {
 	return l, nil
 }
 
+// RelativeLambdaFromUncertainties returns the ratio of squared coefficients
+// of variation mean((σy/y)²)/mean((σx/x)²), the λ of WeightedDeming implied
+// by stated uncertainties. Every x and y must be non-zero.
+func RelativeLambdaFromUncertainties(x, y, sx, sy []float64) (float64, error) {
+	if len(sx) != len(x) || len(sy) != len(y) || len(x) != len(y) {
+		return 0, ErrLengthMismatch
+	}
+	var vx, vy float64
+	for i := range x {
+		if x[i] == 0 || y[i] == 0 {
+			return 0, &PointError{Index: i, Field: "x", Err: ErrNonPositiveLevel}
+		}
+		vx += (sx[i] / x[i]) * (sx[i] / x[i])
+		vy += (sy[i] / y[i]) * (sy[i] / y[i])
+	}
+	l := vy / vx
+	if !allFinite(l) || !(l > 0) {
+		return 0, &OptionError{Option: "lambda", Reason: "the uncertainties give no finite ratio of relative variances"}
+	}
+	return l, nil
+}
+
 // Deming fits y = a + b·x when both x and y carry errors whose variances
 // have the known ratio λ (Deming 1943; closed form as in Fuller 1987, §1.3):
 //

@@ -20,6 +20,7 @@ func (o *Options) confidence() (float64, error) {
 // OLS fits y = a + b·x by ordinary least squares of y on x, treating x as
 // exact. Standard errors are the classical ones, from the residual variance
 // with n−2 degrees of freedom; intervals use Student's t with n−2 df.
+// Fit.Jackknife holds the leave-one-out standard errors.
 func OLS(x, y []float64, opt *Options) (*Fit, error) {
 	conf, err := opt.confidence()
 	if err != nil {
@@ -62,6 +63,7 @@ func OLS(x, y []float64, opt *Options) (*Fit, error) {
 	if !allFinite(a, b, varA, varB, f.CovSlopeIntercept) {
 		return nil, ErrDegenerate
 	}
+	f.Jackknife = demingJackknife(x, y, m, math.Inf(1), a, b, t, conf)
 	if ssr == 0 {
 		f.Warnings = append(f.Warnings, &Warning{Code: WarnPerfectFit,
 			Message: "the points lie exactly on a line: standard errors are zero"})

@@ -116,11 +116,12 @@ func York(x, y, sx, sy, r []float64, opt *YorkOptions) (*Fit, error) {
 		if n > maxN {
 			f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: fmt.Sprintf(
 				"york: the jackknife was skipped because n = %d exceeds %d", n, maxN)})
+		} else if n < 4 {
+			f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped,
+				Message: "york: the jackknife needs at least 4 points"})
+		} else if jk, err := yk.jackknife(x, y, sx, sy, r, res.a, res.b, tQuantile(conf, df), conf); err != nil {
+			f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: "york: no jackknife: " + trimPrefix(err.Error())})
 		} else {
-			jk, err := yk.jackknife(x, y, sx, sy, r, res.a, res.b, tQuantile(conf, df), conf)
-			if err != nil {
-				return nil, err
-			}
 			f.Jackknife = jk
 		}
 	}

@@ -1,0 +1,429 @@
+package api
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"math/rand/v2"
+	"net/url"
+	"slices"
+
+	"eivfit/eiv"
+)
+
+// Settings of the computation that are the server's (or CLI's), not the client's.
+type Settings struct {
+	Limits
+	// Workers for the bootstrap; zero means GOMAXPROCS.
+	Workers int
+	// JackknifeMaxN bounds the York jackknife and the paired jackknife of
+	// the OLS comparison (each costs n refits). Zero means 2000.
+	JackknifeMaxN int
+}
+
+// DefaultSettings are used by the CLI and, unless configured, the service.
+var DefaultSettings = Settings{Limits: DefaultLimits}
+
+func (s Settings) jackMax() int {
+	if s.JackknifeMaxN > 0 {
+		return s.JackknifeMaxN
+	}
+	return 2000
+}
+
+// Fit validates req and computes every requested fit. It is the one code
+// path from a decoded request to its answer, shared by `eivfit fit` and
+// POST /v1/fit. Errors are *Problem values (or ctx's error).
+func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, error) {
+	if err := req.Validate(set.Limits); err != nil {
+		return nil, err
+	}
+	d := &req.Points
+	n := d.Len()
+	conf := eiv.DefaultConfidence
+	if req.Confidence != nil {
+		conf = *req.Confidence
+	}
+	hasSigma := d.SX != nil && d.SY != nil
+	methods := req.Methods
+	explicit := len(methods) > 0
+	if !explicit {
+		methods = []string{"ols", "deming"}
+		if allPositive(d.X) && allPositive(d.Y) {
+			methods = append(methods, "weighted_deming")
+		}
+		if hasSigma {
+			methods = append(methods, "york")
+		}
+	}
+	// Report in a fixed order whatever order the client listed.
+	slices.SortFunc(methods, func(a, b string) int { return indexOf(methodNames, a) - indexOf(methodNames, b) })
+
+	resp := &FitResponse{N: n, Confidence: conf, Warnings: []Warning{}}
+	s := eiv.Sample{X: d.X, Y: d.Y, SX: d.SX, SY: d.SY, R: d.R}
+	methodPtr := func(m string) string {
+		if d.csv {
+			return "query parameter methods"
+		}
+		if explicit {
+			return fmt.Sprintf("/methods/%d", slices.Index(req.Methods, m))
+		}
+		return "/points"
+	}
+	if n < 10 {
+		resp.Warnings = append(resp.Warnings, Warning{Code: eiv.WarnFewPoints, Message: fmt.Sprintf(
+			"only %d points: intervals are wide and the checks of the assumptions have little power", n)})
+	}
+
+	type done struct {
+		name string
+		fit  *eiv.Fit
+		est  eiv.Estimator
+		out  *MethodFit
+	}
+	var fits []done
+	for _, m := range methods {
+		f, est, lsrc, err := fitOne(m, req, conf, set)
+		if err != nil {
+			return nil, fitProblem(err, eiv.Method(m), d.locate, methodPtr(m))
+		}
+		out := methodFit(f)
+		if lsrc != "" {
+			out.Lambda, out.LambdaSource = ptr(f.Lambda), lsrc
+		}
+		for _, w := range f.Warnings {
+			resp.Warnings = append(resp.Warnings, warning(m, w))
+		}
+		for _, x0 := range req.At {
+			p := f.At(x0)
+			out.At = append(out.At, AtOut{X: x0, Y: interval(p.Y), Bias: interval(p.Bias)})
+		}
+		fits = append(fits, done{m, f, est, out})
+	}
+
+	var olsFit *eiv.Fit
+	for _, f := range fits {
+		if f.name == "ols" {
+			olsFit = f.fit
+		}
+	}
+	boot := req.Bootstrap != nil && req.Bootstrap.Resamples > 0
+	var seed uint64
+	if boot {
+		seed = rand.Uint64()
+		if req.Bootstrap.Seed != nil {
+			seed = *req.Bootstrap.Seed
+		}
+	}
+	for _, f := range fits {
+		ests := []eiv.Estimator{f.est}
+		if olsFit != nil && f.name != "ols" {
+			ests = append(ests, eiv.OLSEstimator{})
+		}
+		var br *eiv.BootstrapResult
+		if boot {
+			var err error
+			br, err = eiv.Bootstrap(ctx, s, ests, &eiv.BootstrapOptions{
+				Resamples: req.Bootstrap.Resamples, Seed: seed, Scheme: eiv.Scheme(req.Bootstrap.Scheme),
+				Workers: set.Workers, Confidence: conf, JackknifeMaxN: set.jackMax()})
+			if err != nil {
+				if ctx.Err() != nil {
+					return nil, ctx.Err()
+				}
+				return nil, fitProblem(err, eiv.Method(f.name), d.locate, methodPtr(f.name))
+			}
+			f.out.Bootstrap = bootstrapOut(br, seed)
+			for _, w := range br.Warnings {
+				resp.Warnings = append(resp.Warnings, warning(f.name, w))
+			}
+			for i, x0 := range req.At {
+				y := func(l []eiv.Line) float64 { return l[0].Intercept + l[0].Slope*x0 }
+				if sum, err := br.Summarize(y); err == nil && sum.Percentile != nil {
+					f.out.At[i].Y.Bootstrap = bounds(sum.Percentile)
+					f.out.At[i].Bias.Bootstrap = &Bounds{sum.Percentile.Lower - x0, sum.Percentile.Upper - x0}
+					if sum.BCa != nil {
+						f.out.At[i].Y.Bootstrap = bounds(sum.BCa)
+						f.out.At[i].Bias.Bootstrap = &Bounds{sum.BCa.Lower - x0, sum.BCa.Upper - x0}
+					}
+				}
+			}
+		}
+		if olsFit == nil || f.name == "ols" {
+			continue
+		}
+		var jack [][]eiv.Line
+		if br == nil && n <= set.jackMax() {
+			jack, _ = eiv.JackknifeLines(s, ests) // nil on a degenerate sample: no interval
+		}
+		c := eiv.CompareOLS(olsFit, f.fit, d.X, d.SX, req.At, br, jack)
+		resp.OLSBias = append(resp.OLSBias, olsBiasOut(c))
+	}
+	for _, f := range fits {
+		switch f.name {
+		case "ols":
+			resp.Fits.OLS = f.out
+		case "deming":
+			resp.Fits.Deming = f.out
+		case "weighted_deming":
+			resp.Fits.WeightedDeming = f.out
+		case "york":
+			resp.Fits.York = f.out
+		}
+	}
+	if err := checkFinite(resp); err != nil {
+		return nil, err
+	}
+	return resp, nil
+}
+
+// fitOne runs one estimator. lsrc says where λ came from (Deming fits only).
+func fitOne(m string, req *FitRequest, conf float64, set Settings) (*eiv.Fit, eiv.Estimator, string, error) {
+	d := &req.Points
+	opt := eiv.Options{Confidence: conf}
+	hasSigma := d.SX != nil && d.SY != nil
+	switch m {
+	case "ols":
+		f, err := eiv.OLS(d.X, d.Y, &opt)
+		return f, eiv.OLSEstimator{}, "", err
+	case "deming", "weighted_deming":
+		lambda, lsrc := 0.0, "assumed"
+		if req.Lambda != nil {
+			lambda, lsrc = *req.Lambda, "given"
+		} else if hasSigma {
+			var err error
+			if m == "deming" {
+				lambda, err = eiv.LambdaFromUncertainties(d.SX, d.SY)
+			} else {
+				lambda, err = eiv.RelativeLambdaFromUncertainties(d.X, d.Y, d.SX, d.SY)
+			}
+			if err != nil {
+				return nil, nil, "", err
+			}
+			lsrc = "uncertainties"
+		}
+		o := &eiv.DemingOptions{Options: opt, Lambda: lambda}
+		if m == "deming" {
+			f, err := eiv.Deming(d.X, d.Y, o)
+			if err != nil {
+				return nil, nil, "", err
+			}
+			return f, eiv.DemingEstimator{Lambda: f.Lambda}, lsrc, nil
+		}
+		f, err := eiv.WeightedDeming(d.X, d.Y, o)
+		if err != nil {
+			return nil, nil, "", err
+		}
+		return f, eiv.WeightedDemingEstimator{Lambda: f.Lambda}, lsrc, nil
+	case "york":
+		if !hasSigma {
+			return nil, nil, "", &eiv.OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties sx and sy on every point"}
+		}
+		f, err := eiv.York(d.X, d.Y, d.SX, d.SY, d.R, &eiv.YorkOptions{Options: opt,
+			Jackknife: true, JackknifeMaxN: set.jackMax()})
+		return f, eiv.YorkEstimator{}, "", err
+	}
+	return nil, nil, "", fmt.Errorf("eiv: unknown method %q", m)
+}
+
+var seBasis = map[eiv.Method]string{
+	eiv.MethodOLS:            "classical least squares, residual variance on n-2 df",
+	eiv.MethodDeming:         "large-sample (Fuller 1987, Theorem 1.3.1)",
+	eiv.MethodWeightedDeming: "jackknife (Linnet 1990)",
+	eiv.MethodYork:           "York et al. (2004), stated uncertainties, unscaled",
+}
+
+func methodFit(f *eiv.Fit) *MethodFit {
+	out := &MethodFit{
+		Slope:             param(f.Slope),
+		Intercept:         param(f.Intercept),
+		CovSlopeIntercept: f.CovSlopeIntercept,
+		SEBasis:           seBasis[f.Method],
+		DOF:               f.DOF,
+		Converged:         f.Converged,
+	}
+	switch f.Method {
+	case eiv.MethodOLS:
+		out.RSquared, out.ResidualSD = ptr(f.RSquared), ptr(f.ResidualSD)
+	case eiv.MethodDeming:
+		out.ResidualSD = ptr(f.ResidualSD)
+	case eiv.MethodWeightedDeming:
+		out.Iterations = ptr(f.Iterations)
+	case eiv.MethodYork:
+		out.Slope.SEScaled, out.Intercept.SEScaled = ptr(f.Slope.SEScaled), ptr(f.Intercept.SEScaled)
+		out.Chi2, out.MSWD, out.PValue = ptr(f.Chi2), ptr(f.MSWD), ptr(f.PValue)
+		out.Iterations = ptr(f.Iterations)
+	}
+	if j := f.Jackknife; j != nil {
+		out.Jackknife = &JackknifeOut{
+			Slope:             SECI{SE: j.Slope.SE, CI: ci(j.Slope.CI)},
+			Intercept:         SECI{SE: j.Intercept.SE, CI: ci(j.Intercept.CI)},
+			CovSlopeIntercept: j.Cov,
+		}
+	}
+	return out
+}
+
+func bootstrapOut(br *eiv.BootstrapResult, seed uint64) *BootstrapOut {
+	out := &BootstrapOut{Resamples: br.Resamples, Failed: br.Failed, Seed: seed, Scheme: string(br.Scheme)}
+	one := func(stat eiv.Statistic) BootParamOut {
+		s, _ := br.Summarize(stat) // a refused interval stays nil; the warning says why
+		return BootParamOut{SE: s.SE, Percentile: bounds(s.Percentile), BCa: bounds(s.BCa)}
+	}
+	out.Slope, out.Intercept = one(eiv.SlopeOf(0)), one(eiv.InterceptOf(0))
+	return out
+}
+
+func olsBiasOut(c *eiv.OLSComparison) OLSBias {
+	out := OLSBias{
+		Method:               string(c.Method),
+		SlopeDifference:      interval(c.SlopeDiff),
+		InterceptDifference:  interval(c.InterceptDiff),
+		SlopeRelativePercent: interval(c.SlopeRelative),
+		Summary:              c.Summary,
+	}
+	if c.HasReliability {
+		out.Reliability, out.PredictedOLSSlope = ptr(c.Reliability), ptr(c.PredictedOLSSlope)
+	}
+	for _, a := range c.At {
+		out.At = append(out.At, BiasAt{X: a.X, OLS: a.OLS, EIV: a.EIV, Difference: a.Difference})
+	}
+	return out
+}
+
+func param(e eiv.Estimate) Param { return Param{Estimate: e.Value, SE: e.SE, CI: ci(e.CI)} }
+
+func ci(i eiv.Interval) CI {
+	return CI{Lower: i.Lower, Upper: i.Upper, Level: i.Level, Method: i.Method}
+}
+
+func interval(e eiv.Estimate) Interval {
+	return Interval{Estimate: e.Value, SE: e.SE, CI: ci(e.CI)}
+}
+
+func bounds(i *eiv.Interval) *Bounds {
+	if i == nil {
+		return nil
+	}
+	return &Bounds{Lower: i.Lower, Upper: i.Upper}
+}
+
+func warning(method string, err error) Warning {
+	var w *eiv.Warning
+	if errors.As(err, &w) {
+		return Warning{Method: method, Code: w.Code, Message: w.Message}
+	}
+	return Warning{Method: method, Code: "note", Message: err.Error()}
+}
+
+func ptr[T any](v T) *T { return &v }
+
+func allPositive(v []float64) bool {
+	for _, x := range v {
+		if !(x > 0) {
+			return false
+		}
+	}
+	return len(v) > 0
+}
+
+// checkFinite is the last guard before encoding: no NaN or infinity may
+// reach a client. The estimators already refuse to return one, so a
+// failure here is reported as unfittable data rather than a bad number.
+func checkFinite(r *FitResponse) error {
+	bad := ""
+	visit := func(name string, v float64) {
+		if bad == "" && (math.IsNaN(v) || math.IsInf(v, 0)) {
+			bad = name
+		}
+	}
+	for name, f := range map[string]*MethodFit{"ols": r.Fits.OLS, "deming": r.Fits.Deming,
+		"weighted_deming": r.Fits.WeightedDeming, "york": r.Fits.York} {
+		if f == nil {
+			continue
+		}
+		f.eachNumber(func(field string, v float64) { visit(name+"/"+field, v) })
+	}
+	for _, c := range r.OLSBias {
+		for _, iv := range []Interval{c.SlopeDifference, c.InterceptDifference, c.SlopeRelativePercent} {
+			iv.eachNumber(func(field string, v float64) { visit("ols_bias/"+field, v) })
+		}
+		for _, a := range c.At {
+			visit("ols_bias/at", a.Difference)
+		}
+	}
+	if bad != "" {
+		return newProblem(kindUnfittable, "the result is not a finite number ("+bad+"): the data are too extreme for double precision",
+			FieldError{Pointer: "/points", Detail: "values too extreme to fit"})
+	}
+	return nil
+}
+
+func (p Param) eachNumber(f func(string, float64)) {
+	f("estimate", p.Estimate)
+	f("se", p.SE)
+	if p.SEScaled != nil {
+		f("se_scaled", *p.SEScaled)
+	}
+	f("ci", p.CI.Lower)
+	f("ci", p.CI.Upper)
+}
+
+func (iv Interval) eachNumber(f func(string, float64)) {
+	f("estimate", iv.Estimate)
+	f("se", iv.SE)
+	f("ci", iv.CI.Lower)
+	f("ci", iv.CI.Upper)
+	if iv.Bootstrap != nil {
+		f("bootstrap", iv.Bootstrap.Lower)
+		f("bootstrap", iv.Bootstrap.Upper)
+	}
+}
+
+func (m *MethodFit) eachNumber(f func(string, float64)) {
+	m.Slope.eachNumber(func(k string, v float64) { f("slope/"+k, v) })
+	m.Intercept.eachNumber(func(k string, v float64) { f("intercept/"+k, v) })
+	f("cov_slope_intercept", m.CovSlopeIntercept)
+	for k, p := range map[string]*float64{"r_squared": m.RSquared, "residual_sd": m.ResidualSD,
+		"lambda": m.Lambda, "chi2": m.Chi2, "mswd": m.MSWD, "p_value": m.PValue} {
+		if p != nil {
+			f(k, *p)
+		}
+	}
+	if j := m.Jackknife; j != nil {
+		for _, v := range []float64{j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE,
+			j.Intercept.CI.Lower, j.Intercept.CI.Upper, j.CovSlopeIntercept} {
+			f("jackknife", v)
+		}
+	}
+	if b := m.Bootstrap; b != nil {
+		for _, p := range []BootParamOut{b.Slope, b.Intercept} {
+			f("bootstrap/se", p.SE)
+			for _, bd := range []*Bounds{p.Percentile, p.BCa} {
+				if bd != nil {
+					f("bootstrap", bd.Lower)
+					f("bootstrap", bd.Upper)
+				}
+			}
+		}
+	}
+	for _, a := range m.At {
+		a.Y.eachNumber(func(k string, v float64) { f("at/y/"+k, v) })
+		a.Bias.eachNumber(func(k string, v float64) { f("at/bias/"+k, v) })
+	}
+}
+
+// FitCSV decodes a CSV dataset, takes the options from query parameters,
+// and fits: the path of `eivfit fit` and of POST /v1/fit with a text/csv body.
+func FitCSV(ctx context.Context, body io.Reader, q url.Values, set Settings) (*FitResponse, error) {
+	d, err := DecodeCSV(body)
+	if err != nil {
+		return nil, err
+	}
+	req, err := FitRequestFromQuery(q, d)
+	if err != nil {
+		return nil, err
+	}
+	return Fit(ctx, req, set)
+}

@@ -1,0 +1,180 @@
+package api
+
+import (
+	"bufio"
+	"bytes"
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"net/http"
+	"strconv"
+	"strings"
+	"unicode/utf8"
+)
+
+// CSV input: a header row naming the columns, then one row per point.
+// Columns (matched case-insensitively, in any order): x and y required;
+// sx, sy (standard uncertainties, 1 SD), r (error correlation), id and
+// order optional. Lines starting with '#' are comments; a UTF-8 byte-order
+// mark is skipped. Any other column is an error, so that a misspelt
+// uncertainty column is never dropped silently.
+var csvColumns = []string{"x", "y", "sx", "sy", "r", "id", "order"}
+
+// DecodeCSV reads a dataset from CSV. Errors are *Problem values whose
+// pointers read "row N, column C".
+func DecodeCSV(r io.Reader) (*Dataset, error) {
+	br := bufio.NewReaderSize(r, 64<<10)
+	if b, err := br.Peek(3); err == nil && bytes.Equal(b, []byte("\xef\xbb\xbf")) {
+		_, _ = br.Discard(3)
+	}
+	cr := csv.NewReader(br)
+	cr.Comment = '#'
+	cr.ReuseRecord = true
+	cr.TrimLeadingSpace = true
+
+	header, err := cr.Read()
+	if err == io.EOF {
+		return nil, invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
+	}
+	if err != nil {
+		return nil, csvReadError(err)
+	}
+	line, _ := cr.FieldPos(0)
+	cols := make([]int, len(header)) // column index -> field id
+	var seen [7]bool
+	for j, h := range header {
+		if !utf8.ValidString(h) {
+			return nil, invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
+		}
+		name := strings.ToLower(strings.TrimSpace(h))
+		k := indexOf(csvColumns, name)
+		if k < 0 {
+			if len(header) == 1 && strings.Contains(h, ";") {
+				return nil, invalid(fmt.Sprintf("row %d", line),
+					"the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
+			}
+			if _, perr := strconv.ParseFloat(name, 64); perr == nil {
+				return nil, invalid(fmt.Sprintf("row %d", line),
+					"the first row must be a header naming the columns, e.g. x,y,sx,sy")
+			}
+			return nil, invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
+				"unknown column %q (known: x, y, sx, sy, r, id, order)", truncate(h)))
+		}
+		if seen[k] {
+			return nil, invalid(fmt.Sprintf("row %d, column %s", line, name), fmt.Sprintf("column %q appears twice", name))
+		}
+		seen[k] = true
+		cols[j] = k
+	}
+	if !seen[0] || !seen[1] {
+		return nil, invalid(fmt.Sprintf("row %d", line), "the header must name columns x and y")
+	}
+	d := &Dataset{csv: true}
+	if seen[2] {
+		d.SX = []float64{}
+	}
+	if seen[3] {
+		d.SY = []float64{}
+	}
+	if seen[4] {
+		d.R = []float64{}
+	}
+	if seen[5] {
+		d.ID = []string{}
+	}
+	if seen[6] {
+		d.Order = []float64{}
+	}
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, csvReadError(err)
+		}
+		row, _ := cr.FieldPos(0)
+		for j, f := range rec {
+			k := cols[j]
+			if k == 5 {
+				if !utf8.ValidString(f) {
+					return nil, invalid(fmt.Sprintf("row %d, column id", row), "the id is not valid UTF-8 text")
+				}
+				d.ID = append(d.ID, f)
+				continue
+			}
+			v, err := parseCell(f)
+			if err != nil {
+				return nil, invalid(fmt.Sprintf("row %d, column %s", row, csvColumns[k]), err.Error())
+			}
+			switch k {
+			case 0:
+				d.X = append(d.X, v)
+			case 1:
+				d.Y = append(d.Y, v)
+			case 2:
+				d.SX = append(d.SX, v)
+			case 3:
+				d.SY = append(d.SY, v)
+			case 4:
+				d.R = append(d.R, v)
+			case 6:
+				d.Order = append(d.Order, v)
+			}
+		}
+		d.rows = append(d.rows, row)
+	}
+	if d.R != nil && (d.SX == nil || d.SY == nil) {
+		return nil, invalid("row 1, column r", "r (error correlation) needs columns sx and sy")
+	}
+	return d, nil
+}
+
+func parseCell(f string) (float64, error) {
+	f = strings.TrimSpace(f)
+	if f == "" {
+		return 0, errors.New("the cell is empty; every row needs a number in this column")
+	}
+	v, err := strconv.ParseFloat(f, 64)
+	if err != nil {
+		var ne *strconv.NumError
+		if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
+			return 0, fmt.Errorf("%s is outside the double-precision range", truncate(f))
+		}
+		if strings.Count(f, ",") == 1 || strings.Count(f, ";") > 0 {
+			return 0, fmt.Errorf("%q is not a number (use '.' as the decimal mark and ',' between columns)", truncate(f))
+		}
+		return 0, fmt.Errorf("%q is not a number", truncate(f))
+	}
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, fmt.Errorf("%s is not a finite number", truncate(f))
+	}
+	return v, nil
+}
+
+func csvReadError(err error) error {
+	var mbe *http.MaxBytesError
+	if errors.As(err, &mbe) {
+		return mbe // the handler answers 413
+	}
+	var pe *csv.ParseError
+	if errors.As(err, &pe) {
+		detail := pe.Err.Error()
+		if errors.Is(pe.Err, csv.ErrFieldCount) {
+			detail = "this row has a different number of fields from the header"
+		}
+		return invalid(fmt.Sprintf("row %d, column %d", pe.Line, pe.Column), detail)
+	}
+	return invalid("body", "the CSV body could not be read: "+err.Error())
+}
+
+func indexOf(s []string, v string) int {
+	for i, x := range s {
+		if x == v {
+			return i
+		}
+	}
+	return -1
+}

@@ -1,0 +1,67 @@
+// Command eivfit fits straight lines when both x and y are measured: the
+// fit subcommand on the command line, the serve subcommand as a JSON HTTP
+// service. Both run the same engine and print the same JSON.
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"syscall"
+)
+
+// version is set at build time with -ldflags "-X main.version=...".
+var version = "dev"
+
+func main() {
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	err := run(ctx, os.Args[1:], os.Stdin, os.Stdout, os.Stderr)
+	stop()
+	if err != nil {
+		var ee exitError
+		if errors.As(err, &ee) {
+			os.Exit(ee.code)
+		}
+		fmt.Fprintln(os.Stderr, "eivfit:", err)
+		os.Exit(1)
+	}
+}
+
+// exitError carries an exit status for a failure already reported on stderr.
+type exitError struct{ code int }
+
+func (e exitError) Error() string { return fmt.Sprintf("exit status %d", e.code) }
+
+const usage = `eivfit fits straight lines when both x and y carry measurement error.
+
+Usage:
+  eivfit fit [flags] FILE     fit a CSV file (FILE "-" reads standard input)
+  eivfit serve [flags]        run the HTTP service
+  eivfit version              print the version
+
+Run "eivfit COMMAND -h" for a command's flags.
+`
+
+func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.Writer) error {
+	if len(args) == 0 {
+		fmt.Fprint(stderr, usage)
+		return exitError{2}
+	}
+	switch args[0] {
+	case "fit":
+		return runFit(ctx, args[1:], stdin, stdout, stderr)
+	case "serve":
+		return runServe(ctx, args[1:], stdout, stderr)
+	case "version", "--version", "-version":
+		fmt.Fprintln(stdout, "eivfit", version)
+		return nil
+	case "help", "-h", "--help":
+		fmt.Fprint(stdout, usage)
+		return nil
+	}
+	fmt.Fprintf(stderr, "eivfit: unknown command %q\n\n%s", args[0], usage)
+	return exitError{2}
+}

@@ -1,0 +1,441 @@
+package eiv
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"runtime"
+	"slices"
+	"sync"
+	"sync/atomic"
+
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+// Scheme is a bootstrap resampling scheme.
+type Scheme string
+
+const (
+	// SchemePairs resamples the points with replacement (Efron & Tibshirani
+	// 1993, §9.5), keeping each point's x, y, σ and r together.
+	SchemePairs Scheme = "pairs"
+	// SchemeParametric draws new x and y around the first estimator's
+	// fitted true points with the stated σx, σy and r.
+	SchemeParametric Scheme = "parametric"
+)
+
+// BootstrapOptions are the settings of Bootstrap. A nil pointer means defaults.
+type BootstrapOptions struct {
+	// Resamples is B, the number of bootstrap samples. Zero means 2000.
+	Resamples int
+	// Seed fixes the random streams: resample i draws only from a PCG
+	// generator seeded with (Seed, i), so the output is the same bit for bit
+	// for any number of workers.
+	Seed uint64
+	// Scheme is SchemePairs (the default) or SchemeParametric.
+	Scheme Scheme
+	// Workers is the number of goroutines. Zero means GOMAXPROCS.
+	Workers int
+	// Confidence of the intervals. Zero means 0.95.
+	Confidence float64
+	// JackknifeMaxN bounds the n for which the BCa acceleration is computed
+	// by refitting each leave-one-out sample; above it the acceleration is
+	// set to zero (bias-corrected percentile) and a warning says so.
+	// Zero means 5000.
+	JackknifeMaxN int
+}
+
+var contextBackground = context.Background()
+
+// Line is a fitted straight line y = Intercept + Slope·x.
+type Line struct{ Intercept, Slope float64 }
+
+// BootstrapResult holds the replicate lines of every estimator, fitted on
+// the same resamples (so differences between estimators are paired).
+type BootstrapResult struct {
+	Resamples  int
+	Failed     int // resamples on which any estimator failed
+	Seed       uint64
+	Scheme     Scheme
+	Confidence float64
+	Methods    []Method
+	// Full holds each estimator's line on the original sample.
+	Full []Line
+	// Warnings are non-fatal diagnostics, each a *Warning.
+	Warnings []error
+
+	k     int
+	lines []Line // resample i, estimator j at lines[i*k+j]; failed resamples hold NaN
+	loo   []Line // leave-one-out lines, point i, estimator j at loo[i*k+j]; nil when skipped
+}
+
+// Failure thresholds of the bootstrap: above WarnFailedShare of failed
+// resamples a warning is added; above MaxFailedShare no interval is given.
+const (
+	WarnFailedShare = 0.01
+	MaxFailedShare  = 0.10
+)
+
+// ErrTooManyFailures is returned by Summarize when more than MaxFailedShare
+// of the resamples failed.
+var ErrTooManyFailures = fmt.Errorf("eiv: more than %.0f%% of the bootstrap resamples failed", 100*MaxFailedShare)
+
+// Bootstrap refits every estimator on the same B resamples of s. The first
+// estimator is the primary one: the parametric scheme draws around its
+// fitted true points. Cancellation of ctx stops the workers and returns
+// ctx's error. The hot loop allocates nothing per resample.
+func Bootstrap(ctx context.Context, s Sample, ests []Estimator, opt *BootstrapOptions) (*BootstrapResult, error) {
+	if opt == nil {
+		opt = &BootstrapOptions{}
+	}
+	conf, err := checkConfidence(opt.Confidence)
+	if err != nil {
+		return nil, err
+	}
+	B := opt.Resamples
+	if B == 0 {
+		B = 2000
+	}
+	if B < 0 {
+		return nil, &OptionError{Option: "resamples", Reason: "must be positive"}
+	}
+	scheme := opt.Scheme
+	if scheme == "" {
+		scheme = SchemePairs
+	}
+	n := s.Len()
+	if err := checkXY(s.X, s.Y); err != nil {
+		return nil, err
+	}
+	if scheme == SchemeParametric && (s.SX == nil || s.SY == nil) {
+		return nil, &OptionError{Option: "scheme", Reason: "the parametric bootstrap needs sx and sy"}
+	}
+	if scheme != SchemePairs && scheme != SchemeParametric {
+		return nil, &OptionError{Option: "scheme", Reason: "must be pairs or parametric"}
+	}
+	if len(ests) == 0 {
+		return nil, &OptionError{Option: "estimators", Reason: "at least one is needed"}
+	}
+	k := len(ests)
+	res := &BootstrapResult{Resamples: B, Seed: opt.Seed, Scheme: scheme, Confidence: conf, k: k,
+		lines: make([]Line, B*k)}
+	for _, e := range ests {
+		res.Methods = append(res.Methods, e.Method())
+		a, b, err := e.NewFitter(n).FitLine(s)
+		if err != nil {
+			return nil, fmt.Errorf("eiv: %s on the original sample: %w", e.Method(), err)
+		}
+		res.Full = append(res.Full, Line{a, b})
+	}
+	var xh, yh []float64
+	if scheme == SchemeParametric {
+		xh, yh = make([]float64, n), make([]float64, n)
+		ests[0].TruePoints(s, res.Full[0].Intercept, res.Full[0].Slope, xh, yh)
+	}
+
+	workers := opt.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = min(workers, B)
+	const chunk = 32
+	var next atomic.Int64
+	var failed atomic.Int64
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			w := newBootWorker(s, ests, n)
+			for ctx.Err() == nil {
+				start := int(next.Add(chunk)) - chunk
+				if start >= B {
+					return
+				}
+				for i := start; i < min(start+chunk, B); i++ {
+					w.pcg.Seed(opt.Seed, uint64(i))
+					if scheme == SchemePairs {
+						w.drawPairs(s)
+					} else {
+						w.drawParametric(s, xh, yh)
+					}
+					out := res.lines[i*k : (i+1)*k]
+					ok := true
+					for j, f := range w.fitters {
+						a, b, err := f.FitLine(w.s)
+						if err != nil || !allFinite(a, b) {
+							ok = false
+							break
+						}
+						out[j] = Line{a, b}
+					}
+					if !ok {
+						failed.Add(1)
+						for j := range out {
+							out[j] = Line{math.NaN(), math.NaN()}
+						}
+					}
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	res.Failed = int(failed.Load())
+	share := float64(res.Failed) / float64(B)
+	if share > WarnFailedShare {
+		res.Warnings = append(res.Warnings, &Warning{Code: WarnBootstrapFailures, Message: fmt.Sprintf(
+			"%d of %d bootstrap resamples (%.1f%%) could not be fitted (degenerate or not converged)%s",
+			res.Failed, B, 100*share, map[bool]string{true: "; no bootstrap interval is given above 10%", false: ""}[share > MaxFailedShare])})
+	}
+
+	maxN := opt.JackknifeMaxN
+	if maxN <= 0 {
+		maxN = 5000
+	}
+	if n <= maxN {
+		if err := res.jackknife(ctx, s, ests); err != nil {
+			return nil, err
+		}
+	} else {
+		res.Warnings = append(res.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: fmt.Sprintf(
+			"n = %d exceeds %d, so the BCa acceleration was set to zero (a bias-corrected percentile interval)", n, maxN)})
+	}
+	return res, nil
+}
+
+type bootWorker struct {
+	pcg     rand.PCG
+	rng     *rand.Rand
+	s       Sample
+	fitters []LineFitter
+}
+
+func newBootWorker(s Sample, ests []Estimator, n int) *bootWorker {
+	w := &bootWorker{}
+	w.rng = rand.New(&w.pcg)
+	w.s.X, w.s.Y = make([]float64, n), make([]float64, n)
+	if s.SX != nil {
+		w.s.SX = make([]float64, n)
+	}
+	if s.SY != nil {
+		w.s.SY = make([]float64, n)
+	}
+	if s.R != nil {
+		w.s.R = make([]float64, n)
+	}
+	for _, e := range ests {
+		w.fitters = append(w.fitters, e.NewFitter(n))
+	}
+	return w
+}
+
+func (w *bootWorker) drawPairs(s Sample) {
+	n := len(s.X)
+	for i := range n {
+		j := w.rng.IntN(n)
+		w.s.X[i], w.s.Y[i] = s.X[j], s.Y[j]
+		if s.SX != nil {
+			w.s.SX[i] = s.SX[j]
+		}
+		if s.SY != nil {
+			w.s.SY[i] = s.SY[j]
+		}
+		if s.R != nil {
+			w.s.R[i] = s.R[j]
+		}
+	}
+}
+
+// drawParametric draws x* = x̂ + σx·z1, y* = ŷ + σy·(r·z1 + √(1−r²)·z2).
+func (w *bootWorker) drawParametric(s Sample, xh, yh []float64) {
+	copy(w.s.SX, s.SX)
+	copy(w.s.SY, s.SY)
+	if s.R != nil {
+		copy(w.s.R, s.R)
+	}
+	for i := range s.X {
+		z1, z2 := w.rng.NormFloat64(), w.rng.NormFloat64()
+		r := rAt(s.R, i)
+		w.s.X[i] = xh[i] + s.SX[i]*z1
+		w.s.Y[i] = yh[i] + s.SY[i]*(r*z1+math.Sqrt(1-r*r)*z2)
+	}
+}
+
+// jackknife fits every estimator to each leave-one-out sample, for the BCa
+// acceleration.
+func (res *BootstrapResult) jackknife(ctx context.Context, s Sample, ests []Estimator) error {
+	n := s.Len()
+	k := res.k
+	res.loo = make([]Line, n*k)
+	drop := func(dst, src []float64, i int) []float64 {
+		if src == nil {
+			return nil
+		}
+		copy(dst, src[:i])
+		copy(dst[i:], src[i+1:])
+		return dst
+	}
+	buf := make([]float64, 5*(n-1))
+	cols := [5][]float64{buf[:n-1], buf[n-1 : 2*(n-1)], buf[2*(n-1) : 3*(n-1)], buf[3*(n-1) : 4*(n-1)], buf[4*(n-1):]}
+	fitters := make([]LineFitter, k)
+	for j, e := range ests {
+		fitters[j] = e.NewFitter(n)
+	}
+	for i := range n {
+		if i%256 == 0 && ctx.Err() != nil {
+			return ctx.Err()
+		}
+		ls := Sample{X: drop(cols[0], s.X, i), Y: drop(cols[1], s.Y, i), SX: drop(cols[2], s.SX, i),
+			SY: drop(cols[3], s.SY, i), R: drop(cols[4], s.R, i)}
+		for j, f := range fitters {
+			a, b, err := f.FitLine(ls)
+			if err != nil || !allFinite(a, b) {
+				res.loo = nil // a degenerate leave-one-out sample: no acceleration
+				res.Warnings = append(res.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: fmt.Sprintf(
+					"%s could not be fitted without point %d, so the BCa acceleration was set to zero", ests[j].Method(), i+1)})
+				return nil
+			}
+			res.loo[i*k+j] = Line{a, b}
+		}
+	}
+	return nil
+}
+
+// BootSummary is the bootstrap uncertainty of one statistic.
+type BootSummary struct {
+	Estimate   float64   // the statistic on the original sample
+	SE         float64   // standard deviation of the replicates
+	Percentile *Interval // nil when refused (too many failures)
+	BCa        *Interval // nil when refused
+}
+
+// Statistic computes a number from the lines of every estimator (in the
+// order they were given to Bootstrap) on one sample.
+type Statistic func(lines []Line) float64
+
+// SlopeOf and InterceptOf are the statistics of estimator j.
+func SlopeOf(j int) Statistic     { return func(l []Line) float64 { return l[j].Slope } }
+func InterceptOf(j int) Statistic { return func(l []Line) float64 { return l[j].Intercept } }
+
+// Summarize returns the bootstrap SE and the percentile and BCa intervals
+// (Efron 1987, JASA 82:171) of a statistic:
+//
+//	z0 = Φ⁻¹(share of replicates below the estimate, ties counted half)
+//	â  = Σ(θ̄₍.₎ − θ₍ᵢ₎)³ / (6·[Σ(θ̄₍.₎ − θ₍ᵢ₎)²]^{3/2})    (jackknife)
+//	α₁,₂ = Φ(z0 + (z0 + z_{α})/(1 − â(z0 + z_{α}))),  α = (1 ∓ level)/2
+//
+// and the interval is the α₁ and α₂ quantiles of the replicates (linear
+// interpolation between order statistics, as numpy's default).
+func (res *BootstrapResult) Summarize(stat Statistic) (BootSummary, error) {
+	k := res.k
+	full := stat(res.Full)
+	vals := make([]float64, 0, res.Resamples)
+	for i := range res.Resamples {
+		l := res.lines[i*k : (i+1)*k]
+		if math.IsNaN(l[0].Slope) {
+			continue
+		}
+		if v := stat(l); allFinite(v) {
+			vals = append(vals, v)
+		}
+	}
+	sum := BootSummary{Estimate: full}
+	if len(vals) < 2 {
+		return sum, ErrTooManyFailures
+	}
+	var m float64
+	for _, v := range vals {
+		m += v
+	}
+	m /= float64(len(vals))
+	var ss float64
+	for _, v := range vals {
+		ss += (v - m) * (v - m)
+	}
+	sum.SE = math.Sqrt(ss / float64(len(vals)-1))
+	if float64(res.Resamples-len(vals)) > MaxFailedShare*float64(res.Resamples) {
+		return sum, ErrTooManyFailures
+	}
+	slices.Sort(vals)
+	lo, hi := (1-res.Confidence)/2, (1+res.Confidence)/2
+	sum.Percentile = &Interval{Lower: quantile7(vals, lo), Upper: quantile7(vals, hi),
+		Level: res.Confidence, Method: "percentile"}
+
+	// Bias correction: mid-rank share of replicates below the estimate.
+	below, equal := 0, 0
+	for _, v := range vals {
+		if v < full {
+			below++
+		} else if v == full {
+			equal++
+		}
+	}
+	p0 := (float64(below) + 0.5*float64(equal)) / float64(len(vals))
+	if p0 <= 0 || p0 >= 1 {
+		// Every replicate on one side: BCa is undefined (Efron & Tibshirani 1993, §14.3).
+		return sum, nil
+	}
+	z0 := distuv.UnitNormal.Quantile(p0)
+	acc := 0.0
+	if res.loo != nil {
+		n := len(res.loo) / k
+		th := make([]float64, n)
+		var mean float64
+		for i := range n {
+			th[i] = stat(res.loo[i*k : (i+1)*k])
+			mean += th[i]
+		}
+		mean /= float64(n)
+		var num, den float64
+		for _, t := range th {
+			d := mean - t
+			num += d * d * d
+			den += d * d
+		}
+		if den > 0 {
+			acc = num / (6 * math.Pow(den, 1.5))
+		}
+	}
+	adj := func(alpha float64) float64 {
+		z := distuv.UnitNormal.Quantile(alpha)
+		return distuv.UnitNormal.CDF(z0 + (z0+z)/(1-acc*(z0+z)))
+	}
+	a1, a2 := adj(lo), adj(hi)
+	if allFinite(a1, a2) {
+		sum.BCa = &Interval{Lower: quantile7(vals, a1), Upper: quantile7(vals, a2),
+			Level: res.Confidence, Method: "BCa"}
+	}
+	return sum, nil
+}
+
+// quantile7 is the p quantile of sorted data by linear interpolation
+// between order statistics (Hyndman & Fan 1996, definition 7).
+func quantile7(sorted []float64, p float64) float64 {
+	h := p * float64(len(sorted)-1)
+	lo := int(math.Floor(h))
+	if lo < 0 {
+		return sorted[0]
+	}
+	if lo >= len(sorted)-1 {
+		return sorted[len(sorted)-1]
+	}
+	return sorted[lo] + (h-float64(lo))*(sorted[lo+1]-sorted[lo])
+}
+
+// Replicates returns the statistic on every successful resample, in
+// resample order (for plots of the bootstrap distribution).
+func (res *BootstrapResult) Replicates(stat Statistic) []float64 {
+	k := res.k
+	out := make([]float64, 0, res.Resamples)
+	for i := range res.Resamples {
+		l := res.lines[i*k : (i+1)*k]
+		if !math.IsNaN(l[0].Slope) {
+			out = append(out, stat(l))
+		}
+	}
+	return out
+}

@@ -1,0 +1,180 @@
+package eiv
+
+import (
+	"fmt"
+	"math"
+)
+
+// Prediction is the fitted value and the bias against identity at one x.
+type Prediction struct {
+	X float64
+	// Y is ŷ(x0) = a + b·x0 with
+	//	se² = var(a) + x0²·var(b) + 2·x0·cov(a, b)
+	// and an interval with the fit's own critical value.
+	Y Estimate
+	// Bias is D(x0) = a + (b − 1)·x0 = ŷ(x0) − x0, the systematic
+	// difference of y from x at x0 (method comparison); same SE as Y.
+	Bias Estimate
+}
+
+// At returns the prediction and bias at x0 from the fit's analytic
+// covariance (the jackknife's for weighted_deming).
+func (f *Fit) At(x0 float64) Prediction {
+	a, b := f.Intercept.Value, f.Slope.Value
+	v := f.Intercept.SE*f.Intercept.SE + x0*x0*f.Slope.SE*f.Slope.SE + 2*x0*f.CovSlopeIntercept
+	se := math.Sqrt(math.Max(v, 0))
+	crit := 0.0
+	if f.Slope.SE > 0 {
+		crit = (f.Slope.CI.Upper - f.Slope.CI.Lower) / (2 * f.Slope.SE)
+	}
+	y := a + b*x0
+	p := Prediction{X: x0,
+		Y:    Estimate{Value: y, SE: se, CI: symmetric(y, crit*se, f.Confidence, f.Slope.CI.Method)},
+		Bias: Estimate{Value: y - x0, SE: se, CI: symmetric(y-x0, crit*se, f.Confidence, f.Slope.CI.Method)},
+	}
+	return p
+}
+
+// Band returns the lower and upper confidence limits of the fitted line at
+// each x (the pointwise confidence band).
+func (f *Fit) Band(xs []float64) (lower, upper []float64) {
+	lower, upper = make([]float64, len(xs)), make([]float64, len(xs))
+	for i, x := range xs {
+		p := f.At(x)
+		lower[i], upper[i] = p.Y.CI.Lower, p.Y.CI.Upper
+	}
+	return
+}
+
+// OLSComparison shows how far ordinary least squares is from an
+// errors-in-variables fit of the same data.
+type OLSComparison struct {
+	Method Method // the errors-in-variables method compared with
+	// SlopeDiff and InterceptDiff are OLS minus EIV; SlopeRelative is
+	// 100·(b_OLS/b_EIV − 1) percent. Their intervals are paired bootstrap
+	// percentile intervals when a bootstrap ran, else paired jackknife t
+	// intervals; Interval.Method says which, and it is empty when neither
+	// could be had.
+	SlopeDiff, InterceptDiff, SlopeRelative Estimate
+	// Reliability is κ = 1 − mean(σx²)/var(x_obs) when σx is stated
+	// (HasReliability), and PredictedOLSSlope = κ·b_EIV is the attenuated
+	// slope that classical measurement error predicts OLS to find.
+	HasReliability    bool
+	Reliability       float64
+	PredictedOLSSlope float64
+	// At holds the bias against identity under each fit at the x values asked for.
+	At []BiasShift
+	// Summary is one plain sentence.
+	Summary string
+}
+
+// BiasShift is the bias at one x under OLS and under the EIV fit.
+type BiasShift struct {
+	X, OLS, EIV, Difference float64
+}
+
+// CompareOLS compares ols with eiv. sx may be nil. boot, when not nil,
+// must hold the lines of (eiv, ols) as its estimators 0 and 1, fitted on the
+// same resamples; jack, when not nil, the leave-one-out lines in the same
+// order (from JackknifeLines).
+func CompareOLS(ols, eiv *Fit, x, sx []float64, at []float64, boot *BootstrapResult, jack [][]Line) *OLSComparison {
+	c := &OLSComparison{Method: eiv.Method}
+	slopeDiff := func(l []Line) float64 { return l[1].Slope - l[0].Slope }
+	intDiff := func(l []Line) float64 { return l[1].Intercept - l[0].Intercept }
+	rel := func(l []Line) float64 { return 100 * (l[1].Slope/l[0].Slope - 1) }
+	full := []Line{{eiv.Intercept.Value, eiv.Slope.Value}, {ols.Intercept.Value, ols.Slope.Value}}
+	est := func(stat Statistic) Estimate {
+		e := Estimate{Value: stat(full)}
+		if boot != nil {
+			if s, err := boot.Summarize(stat); err == nil && s.Percentile != nil {
+				e.SE, e.CI = s.SE, *s.Percentile
+				e.CI.Method = "paired bootstrap percentile"
+				return e
+			}
+		}
+		if jack != nil {
+			se := jackSE(jack, stat)
+			t := tQuantile(eiv.Confidence, eiv.N-2)
+			e.SE = se
+			e.CI = symmetric(e.Value, t*se, eiv.Confidence, "paired jackknife-t")
+		}
+		return e
+	}
+	c.SlopeDiff, c.InterceptDiff, c.SlopeRelative = est(slopeDiff), est(intDiff), est(rel)
+	if sx != nil {
+		var vx float64
+		for _, s := range sx {
+			vx += s * s
+		}
+		vx /= float64(len(sx))
+		m := centredMoments(x, x)
+		if varX := m.sxx / (m.n - 1); varX > 0 {
+			c.HasReliability = true
+			c.Reliability = 1 - vx/varX
+			c.PredictedOLSSlope = c.Reliability * eiv.Slope.Value
+		}
+	}
+	for _, x0 := range at {
+		do := ols.Intercept.Value + (ols.Slope.Value-1)*x0
+		de := eiv.Intercept.Value + (eiv.Slope.Value-1)*x0
+		c.At = append(c.At, BiasShift{X: x0, OLS: do, EIV: de, Difference: do - de})
+	}
+	c.Summary = c.sentence(eiv.Confidence)
+	return c
+}
+
+func (c *OLSComparison) sentence(conf float64) string {
+	r := c.SlopeRelative
+	verb, mag, lo, hi := "overstates", r.Value, r.CI.Lower, r.CI.Upper
+	if r.Value < 0 {
+		verb, mag, lo, hi = "understates", -r.Value, -r.CI.Upper, -r.CI.Lower
+	}
+	s := fmt.Sprintf("Compared with %s, OLS %s the slope by %.3g %%", c.Method, verb, mag)
+	if r.CI.Method != "" {
+		s += fmt.Sprintf(" (%g %% CI %.3g to %.3g %%)", 100*conf, lo, hi)
+	}
+	if len(c.At) > 0 {
+		s += fmt.Sprintf("; at x = %g its bias estimate is off by %+.3g", c.At[0].X, c.At[0].Difference)
+	}
+	if c.HasReliability {
+		s += fmt.Sprintf("; the reliability ratio κ = %.3g predicts an OLS slope of %.4g", c.Reliability, c.PredictedOLSSlope)
+	}
+	return s + "."
+}
+
+func jackSE(jack [][]Line, stat Statistic) float64 {
+	n := float64(len(jack))
+	th := make([]float64, len(jack))
+	var m float64
+	for i, l := range jack {
+		th[i] = stat(l)
+		m += th[i]
+	}
+	m /= n
+	var ss float64
+	for _, t := range th {
+		ss += (t - m) * (t - m)
+	}
+	return math.Sqrt((n - 1) / n * ss)
+}
+
+// JackknifeLines fits every estimator to each leave-one-out sample of s;
+// element i holds the lines without point i, in the order of ests.
+func JackknifeLines(s Sample, ests []Estimator) ([][]Line, error) {
+	n := s.Len()
+	if n < 4 {
+		return nil, ErrTooFewPoints
+	}
+	res := &BootstrapResult{k: len(ests)}
+	if err := res.jackknife(contextBackground, s, ests); err != nil {
+		return nil, err
+	}
+	if res.loo == nil {
+		return nil, ErrDegenerate
+	}
+	out := make([][]Line, n)
+	for i := range n {
+		out[i] = res.loo[i*len(ests) : (i+1)*len(ests)]
+	}
+	return out, nil
+}
