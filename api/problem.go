@@ -111,7 +111,8 @@ func fitProblem(err error, method eiv.Method, loc locator, methodPointer string)
 		}
 		return newProblem(kindInvalid, detail, FieldError{Pointer: p, Detail: detail})
 	case errors.Is(err, eiv.ErrTooFewPoints), errors.Is(err, eiv.ErrConstantX),
-		errors.Is(err, eiv.ErrDegenerate), errors.Is(err, eiv.ErrLengthMismatch):
+		errors.Is(err, eiv.ErrDegenerate), errors.Is(err, eiv.ErrLengthMismatch),
+		errors.Is(err, eiv.ErrMagnitude):
 		return newProblem(kindUnfittable, detail, FieldError{Pointer: loc(-1, ""), Detail: detail})
 	}
 	return newProblem(kindUnfittable, detail, FieldError{Pointer: methodPointer, Detail: detail})

@@ -71,16 +71,39 @@ var methodNames = []string{"ols", "deming", "weighted_deming", "york"}
 // trailing data, non-numbers and numbers outside the double range are
 // errors naming the field.
 func DecodeFitJSON(r io.Reader) (*FitRequest, error) {
-	dec := json.NewDecoder(r)
-	dec.DisallowUnknownFields()
 	var req FitRequest
-	if err := dec.Decode(&req); err != nil {
-		return nil, jsonProblem(err, "")
-	}
-	if _, err := dec.Token(); err != io.EOF {
-		return nil, invalid("", "the body holds more than one JSON value")
+	if err := decodeStrict(r, &req); err != nil {
+		return nil, err
 	}
 	return &req, nil
+}
+
+// decodeStrict reads one JSON value into v: unknown fields and trailing
+// data are errors, and a syntax error is reported at the pointer of the
+// value where it occurred.
+func decodeStrict(r io.Reader, v any) error {
+	body, err := io.ReadAll(r)
+	if err != nil {
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			return mbe
+		}
+		return invalid("", "the body could not be read")
+	}
+	dec := json.NewDecoder(bytes.NewReader(body))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(v); err != nil {
+		var se *json.SyntaxError
+		if errors.As(err, &se) {
+			ptr := pointerAt(body, se.Offset-1)
+			return invalid(ptr, fmt.Sprintf("the body is not valid JSON at byte %d (%s); numbers must be finite JSON numbers, not NaN or Infinity", se.Offset, se.Error()))
+		}
+		return jsonProblem(err, "")
+	}
+	if _, err := dec.Token(); err != io.EOF {
+		return invalid("", "the body holds more than one JSON value")
+	}
+	return nil
 }
 
 // jsonProblem maps an encoding/json error to a problem naming the field.

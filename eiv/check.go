@@ -18,6 +18,12 @@ func checkXY(x, y []float64) error {
 			return &PointError{Index: i, Field: "y", Err: ErrNonFinite}
 		}
 	}
+	if err := checkMagnitude(x); err != nil {
+		return err
+	}
+	if err := checkMagnitude(y); err != nil {
+		return err
+	}
 	x0 := x[0]
 	for _, v := range x[1:] {
 		if v != x0 {
@@ -25,6 +31,18 @@ func checkXY(x, y []float64) error {
 		}
 	}
 	return ErrConstantX
+}
+
+// checkMagnitude refuses a column whose squares would overflow or underflow.
+func checkMagnitude(v []float64) error {
+	var m float64
+	for _, f := range v {
+		m = math.Max(m, math.Abs(f))
+	}
+	if m > 1e150 || (m > 0 && m < 1e-150) {
+		return ErrMagnitude
+	}
+	return nil
 }
 
 // checkSigma validates one column of standard uncertainties: finite and ≥ 0.

@@ -30,6 +30,9 @@ var (
 	// relation between x and y at all, or values so large that double
 	// precision overflows).
 	ErrDegenerate = errors.New("eiv: the data do not determine a finite line")
+	// ErrMagnitude: values so large or so small that their squares leave
+	// the double-precision range (|v| > 1e150 or 0 < max|v| < 1e-150).
+	ErrMagnitude = errors.New("eiv: values beyond 1e150 or all below 1e-150 in magnitude cannot be fitted in double precision; rescale the units")
 	// ErrNotConverged: an iterative estimator stopped at its iteration cap.
 	ErrNotConverged = errors.New("eiv: iteration did not converge")
 )

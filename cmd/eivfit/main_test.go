@@ -1,0 +1,127 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+	"testing"
+
+	"eivfit/api"
+)
+
+func runCmd(t *testing.T, stdin string, args ...string) (stdout, stderr string, err error) {
+	t.Helper()
+	var o, e bytes.Buffer
+	err = run(context.Background(), args, strings.NewReader(stdin), &o, &e)
+	return o.String(), e.String(), err
+}
+
+// `eivfit fit --format json` on Pearson's data with York's weights prints the
+// published York line (Neri, Saitta & Chiofalo 1989; Reed 1989: slope
+// −0.480533407, intercept 5.47991022) and York et al.'s (2004) standard errors
+// (0.0579850, 0.2949707), as given in testdata/ref/pearson-york.csv.
+func TestFitPearsonYorkCLI(t *testing.T) {
+	out, stderr, err := runCmd(t, "", "fit", "--format", "json", "../../testdata/pearson-york.csv")
+	if err != nil {
+		t.Fatalf("%v\n%s", err, stderr)
+	}
+	var resp api.FitResponse
+	if err := json.Unmarshal([]byte(out), &resp); err != nil {
+		t.Fatal(err)
+	}
+	y := resp.Fits.York
+	if y == nil {
+		t.Fatal("no york fit")
+	}
+	for _, c := range []struct {
+		name      string
+		got       float64
+		published string
+	}{
+		{"slope", y.Slope.Estimate, "-0.480533407"},
+		{"intercept", y.Intercept.Estimate, "5.47991022"},
+		{"se(slope)", y.Slope.SE, "0.0579850"},
+		{"se(intercept)", y.Intercept.SE, "0.2949707"},
+		{"mswd", *y.MSWD, "1.4832941"},
+	} {
+		want, _ := strconv.ParseFloat(c.published, 64)
+		dec := len(c.published) - strings.IndexByte(c.published, '.') - 1
+		if math.Abs(c.got-want) > 0.5*math.Pow(10, -float64(dec)) {
+			t.Errorf("%s = %.12g, published %s", c.name, c.got, c.published)
+		}
+	}
+	if resp.N != 10 || y.DOF != 8 || !y.Converged {
+		t.Errorf("n %d dof %d converged %v", resp.N, y.DOF, y.Converged)
+	}
+}
+
+func TestFitStdinAndText(t *testing.T) {
+	csv := "x,y\n1,2.1\n2,3.9\n3,6.2\n4,7.8\n5,10.1\n"
+	out, _, err := runCmd(t, csv, "fit", "-", "--format", "text", "--methods", "ols,deming", "--at", "2.5")
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"ols", "deming", "λ = 1 (assumed)", "at decision levels", "2.5", "OLS"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("text output lacks %q:\n%s", want, out)
+		}
+	}
+}
+
+func TestFitBadInputExitsTwo(t *testing.T) {
+	cases := []struct {
+		name, stdin string
+		args        []string
+		stderr      string
+	}{
+		{"bad cell", "x,y\n1,2\n2,abc\n3,4\n", []string{"fit", "-"}, "row 3, column y"},
+		{"unknown column", "x,y,sigma_y\n1,2,3\n", []string{"fit", "-"}, "row 1, column sigma_y"},
+		{"too few points", "x,y\n1,2\n2,3\n", []string{"fit", "-"}, "cannot be fitted"},
+		{"no file", "", []string{"fit"}, "exactly one CSV file"},
+		{"missing file", "", []string{"fit", "does-not-exist.csv"}, "does-not-exist.csv"},
+		{"bad format", "", []string{"fit", "--format", "xml", "-"}, "--format"},
+		{"bad flag", "", []string{"fit", "--sigma", "-"}, "sigma"},
+		{"unknown command", "", []string{"fitt"}, "unknown command"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			_, stderr, err := runCmd(t, c.stdin, c.args...)
+			var ee exitError
+			if !errors.As(err, &ee) || ee.code != 2 {
+				t.Fatalf("err %v, want exit status 2", err)
+			}
+			if !strings.Contains(stderr, c.stderr) {
+				t.Errorf("stderr %q lacks %q", stderr, c.stderr)
+			}
+		})
+	}
+}
+
+// The demo files in testdata are the synthetic scenarios; the CLI fits them.
+func TestFitDemoData(t *testing.T) {
+	for _, f := range []string{"../../testdata/demo-glucose.csv", "../../testdata/demo-gas-sensor.csv"} {
+		b, err := os.ReadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !bytes.Contains(b, []byte("SYNTHETIC DEMO DATA")) {
+			t.Errorf("%s does not say it is invented", f)
+		}
+		out, stderr, err := runCmd(t, "", "fit", "--resamples", "200", "--seed", "1", f)
+		if err != nil {
+			t.Fatalf("%s: %v\n%s", f, err, stderr)
+		}
+		var resp api.FitResponse
+		if err := json.Unmarshal([]byte(out), &resp); err != nil {
+			t.Fatal(err)
+		}
+		if resp.Fits.York == nil || resp.Fits.York.Bootstrap == nil || resp.Fits.York.Bootstrap.Seed != 1 {
+			t.Errorf("%s: york or its bootstrap missing", f)
+		}
+	}
+}
