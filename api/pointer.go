@@ -50,7 +50,7 @@ func pointerAt(b []byte, off int64) string {
 				j++
 			}
 			if expectKey && len(stack) > 0 {
-				s, err := strconv.Unquote(string(b[i : min(j+1, len(b))]))
+				s, err := strconv.Unquote(string(b[i:min(j+1, len(b))]))
 				if err != nil {
 					s = string(b[i+1 : min(j, len(b))])
 				}
