@@ -1,0 +1,71 @@
+package eiv_test
+
+import (
+	"context"
+	"fmt"
+	"testing"
+
+	"eivfit/eiv"
+)
+
+var sinkFit *eiv.Fit
+
+func BenchmarkYork(b *testing.B) {
+	for _, n := range []int{100, 10_000, 1_000_000} {
+		d := randomData(1, n, false)
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				f, err := eiv.York(d.x, d.y, d.sx, d.sy, nil, nil)
+				if err != nil {
+					b.Fatal(err)
+				}
+				sinkFit = f
+			}
+		})
+	}
+}
+
+func BenchmarkDeming(b *testing.B) {
+	for _, n := range []int{100, 10_000, 1_000_000} {
+		d := randomData(1, n, false)
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				f, err := eiv.Deming(d.x, d.y, &eiv.DemingOptions{Lambda: 1.2})
+				if err != nil {
+					b.Fatal(err)
+				}
+				sinkFit = f
+			}
+		})
+	}
+}
+
+// BenchmarkBootstrap times B = 10,000 pairs resamples (with the jackknife
+// for BCa and the summary) and reports the cost per resample.
+func BenchmarkBootstrap(b *testing.B) {
+	const B = 10_000
+	for _, c := range []struct {
+		name string
+		est  eiv.Estimator
+	}{{"york", eiv.YorkEstimator{}}, {"deming", eiv.DemingEstimator{Lambda: 1.2}}} {
+		for _, n := range []int{100, 1000} {
+			s := sampleOf(randomData(2, n, false))
+			s.R = nil
+			b.Run(fmt.Sprintf("%s/n=%d", c.name, n), func(b *testing.B) {
+				b.ReportAllocs()
+				for b.Loop() {
+					r, err := eiv.Bootstrap(context.Background(), s, []eiv.Estimator{c.est}, &eiv.BootstrapOptions{Resamples: B, Seed: 1})
+					if err != nil {
+						b.Fatal(err)
+					}
+					if _, err := r.Summarize(eiv.SlopeOf(0)); err != nil {
+						b.Fatal(err)
+					}
+				}
+				b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/B, "ns/resample")
+			})
+		}
+	}
+}

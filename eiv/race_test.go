@@ -1,0 +1,5 @@
+//go:build race
+
+package eiv_test
+
+func init() { raceEnabled = true }
