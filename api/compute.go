@@ -9,6 +9,7 @@ import (
 	"math/rand/v2"
 	"net/url"
 	"slices"
+	"time"
 
 	"eivfit/eiv"
 )
@@ -21,6 +22,9 @@ type Settings struct {
 	// JackknifeMaxN bounds the York jackknife and the paired jackknife of
 	// the OLS comparison (each costs n refits). Zero means 2000.
 	JackknifeMaxN int
+	// Observe, when set, is told the time each method took (bootstrap
+	// included) and the resamples it computed; the service feeds metrics.
+	Observe func(method string, d time.Duration, resamples int)
 }
 
 // DefaultSettings are used by the CLI and, unless configured, the service.
@@ -84,8 +88,11 @@ func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, erro
 		out  *MethodFit
 	}
 	var fits []done
+	elapsed := map[string]time.Duration{}
 	for _, m := range methods {
+		t0 := time.Now()
 		f, est, lsrc, err := fitOne(m, req, conf, set)
+		elapsed[m] = time.Since(t0)
 		if err != nil {
 			return nil, fitProblem(err, eiv.Method(m), d.locate, methodPtr(m))
 		}
@@ -123,6 +130,7 @@ func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, erro
 			ests = append(ests, eiv.OLSEstimator{})
 		}
 		var br *eiv.BootstrapResult
+		t0 := time.Now()
 		if boot {
 			var err error
 			br, err = eiv.Bootstrap(ctx, s, ests, &eiv.BootstrapOptions{
@@ -149,6 +157,13 @@ func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, erro
 					}
 				}
 			}
+		}
+		if set.Observe != nil {
+			r := 0
+			if boot {
+				r = req.Bootstrap.Resamples
+			}
+			set.Observe(f.name, elapsed[f.name]+time.Since(t0), r)
 		}
 		if olsFit == nil || f.name == "ols" {
 			continue

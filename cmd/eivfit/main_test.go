@@ -1,15 +1,20 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
+	"io"
 	"math"
+	"net/http"
+	"net/http/httptest"
 	"os"
 	"strconv"
 	"strings"
 	"testing"
+	"time"
 
 	"eivfit/api"
 )
@@ -123,5 +128,93 @@ func TestFitDemoData(t *testing.T) {
 		if resp.Fits.York == nil || resp.Fits.York.Bootstrap == nil || resp.Fits.York.Bootstrap.Seed != 1 {
 			t.Errorf("%s: york or its bootstrap missing", f)
 		}
+	}
+}
+
+// The CLI and the service give byte-identical JSON for the same input and seed.
+func TestCLIAndServiceIdentical(t *testing.T) {
+	srv, err := api.NewServer(api.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		file, query string
+		args        []string
+	}{
+		{"../../testdata/demo-glucose.csv", "at=7,11.1&resamples=500&seed=42", []string{"--at", "7,11.1", "--resamples", "500", "--seed", "42"}},
+		{"../../testdata/pearson-york.csv", "methods=york,ols&scheme=parametric&resamples=300&seed=9&confidence=0.9",
+			[]string{"--methods", "york,ols", "--scheme", "parametric", "--resamples", "300", "--seed", "9", "--confidence", "0.9"}},
+	} {
+		body, err := os.ReadFile(c.file)
+		if err != nil {
+			t.Fatal(err)
+		}
+		cli, stderr, err := runCmd(t, "", append(append([]string{"fit"}, c.args...), c.file)...)
+		if err != nil {
+			t.Fatalf("%v: %s", err, stderr)
+		}
+		req := httptest.NewRequest("POST", "/v1/fit?"+c.query, bytes.NewReader(body))
+		req.Header.Set("Content-Type", "text/csv")
+		rec := httptest.NewRecorder()
+		srv.Handler().ServeHTTP(rec, req)
+		if rec.Code != 200 {
+			t.Fatalf("%s: status %d %s", c.file, rec.Code, rec.Body.String())
+		}
+		if rec.Body.String() != cli {
+			t.Errorf("%s: CLI and service differ\nCLI:\n%.400s\nservice:\n%.400s", c.file, cli, rec.Body.String())
+		}
+	}
+}
+
+// `eivfit serve` prints its URL and a curl line, serves the demo, and on
+// cancellation (SIGTERM in main) drains and returns without error.
+func TestServe(t *testing.T) {
+	ctx, cancel := context.WithCancel(context.Background())
+	pr, pw := io.Pipe()
+	done := make(chan error, 1)
+	go func() {
+		var stderr bytes.Buffer
+		done <- run(ctx, []string{"serve", "--addr", "127.0.0.1:0", "--slots", "1"}, nil, pw, &stderr)
+		pw.Close()
+	}()
+	sc := bufio.NewScanner(pr)
+	var base, curl string
+	for sc.Scan() {
+		line := sc.Text()
+		if u, ok := strings.CutPrefix(line, "eivfit dev listening on "); ok {
+			base = u
+		}
+		if strings.Contains(line, "curl ") {
+			curl = line
+			break
+		}
+	}
+	go io.Copy(io.Discard, pr)
+	if base == "" || !strings.Contains(curl, base+"/demo/demo-glucose.csv") {
+		t.Fatalf("start-up lines: base %q curl %q", base, curl)
+	}
+	resp, err := http.Get(base + "/demo/demo-glucose.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	demo, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	resp, err = http.Post(base+"/v1/fit?at=7", "text/csv", bytes.NewReader(demo))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var fit api.FitResponse
+	if err := json.NewDecoder(resp.Body).Decode(&fit); err != nil || fit.N != 60 {
+		t.Fatalf("demo fit: %v n=%d", err, fit.N)
+	}
+	resp.Body.Close()
+	cancel()
+	select {
+	case err := <-done:
+		if err != nil {
+			t.Fatalf("serve returned %v", err)
+		}
+	case <-time.After(10 * time.Second):
+		t.Fatal("serve did not stop")
 	}
 }

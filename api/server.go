@@ -1,0 +1,426 @@
+package api
+
+import (
+	"context"
+	"crypto/rand"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"mime"
+	"net"
+	"net/http"
+	"runtime"
+	"strconv"
+	"strings"
+	"sync/atomic"
+	"time"
+
+	"github.com/gin-gonic/gin"
+	"github.com/prometheus/client_golang/prometheus/promhttp"
+)
+
+// Config is the service's configuration. The zero value of a field means
+// its documented default (DefaultConfig).
+type Config struct {
+	Addr string // listen address; default 127.0.0.1:8080
+	// MetricsAddr, when set, serves /metrics on a separate listener instead
+	// of the main one.
+	MetricsAddr string
+	// MaxBodyBytes bounds a request body; default 64 MiB.
+	MaxBodyBytes int64
+	Limits       Limits
+	// RequestTimeout is the deadline of one computation; default 60 s.
+	RequestTimeout time.Duration
+	// Slots is the number of computations run at once; default GOMAXPROCS.
+	Slots int
+	// SlotWait is how long a request waits for a free slot before a 503;
+	// default 2 s.
+	SlotWait time.Duration
+	// MaxBatch bounds the datasets of one batch request; default 1000.
+	MaxBatch int
+	// ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout protect
+	// against slow clients; defaults 5 s, 60 s, 120 s, 120 s.
+	ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout time.Duration
+	// ShutdownTimeout bounds the drain on SIGTERM; default 90 s.
+	ShutdownTimeout time.Duration
+	// APIKeys, when not empty, are required as "Authorization: Bearer KEY"
+	// on /v1/*; each entry is a key or its SHA-256 in hex.
+	APIKeys []string
+	// Logger receives one line per request (never request data); default
+	// JSON on stderr.
+	Logger *slog.Logger
+	// Version is reported in reports and /healthz.
+	Version string
+}
+
+// DefaultConfig holds the defaults, documented in `eivfit serve --help`
+// and the OpenAPI document.
+var DefaultConfig = Config{
+	Addr:              "127.0.0.1:8080",
+	MaxBodyBytes:      64 << 20,
+	Limits:            DefaultLimits,
+	RequestTimeout:    60 * time.Second,
+	SlotWait:          2 * time.Second,
+	MaxBatch:          1000,
+	ReadHeaderTimeout: 5 * time.Second,
+	ReadTimeout:       60 * time.Second,
+	WriteTimeout:      120 * time.Second,
+	IdleTimeout:       120 * time.Second,
+	ShutdownTimeout:   90 * time.Second,
+}
+
+func (c Config) withDefaults() Config {
+	d := DefaultConfig
+	if c.Addr == "" {
+		c.Addr = d.Addr
+	}
+	if c.MaxBodyBytes <= 0 {
+		c.MaxBodyBytes = d.MaxBodyBytes
+	}
+	if c.Limits.MaxPoints <= 0 {
+		c.Limits.MaxPoints = d.Limits.MaxPoints
+	}
+	if c.Limits.MaxResamples <= 0 {
+		c.Limits.MaxResamples = d.Limits.MaxResamples
+	}
+	if c.Limits.MaxAt <= 0 {
+		c.Limits.MaxAt = d.Limits.MaxAt
+	}
+	if c.RequestTimeout <= 0 {
+		c.RequestTimeout = d.RequestTimeout
+	}
+	if c.Slots <= 0 {
+		c.Slots = runtime.GOMAXPROCS(0)
+	}
+	if c.SlotWait <= 0 {
+		c.SlotWait = d.SlotWait
+	}
+	if c.MaxBatch <= 0 {
+		c.MaxBatch = d.MaxBatch
+	}
+	for _, p := range []struct{ v, d *time.Duration }{{&c.ReadHeaderTimeout, &d.ReadHeaderTimeout},
+		{&c.ReadTimeout, &d.ReadTimeout}, {&c.WriteTimeout, &d.WriteTimeout}, {&c.IdleTimeout, &d.IdleTimeout},
+		{&c.ShutdownTimeout, &d.ShutdownTimeout}} {
+		if *p.v <= 0 {
+			*p.v = *p.d
+		}
+	}
+	if c.Logger == nil {
+		c.Logger = slog.New(slog.NewJSONHandler(io.Discard, nil))
+	}
+	if c.Version == "" {
+		c.Version = "dev"
+	}
+	return c
+}
+
+// Server is the HTTP service. Create it with NewServer.
+type Server struct {
+	cfg      Config
+	engine   *gin.Engine
+	metrics  *metrics
+	slots    chan struct{}
+	draining atomic.Bool
+	keys     *keyring
+}
+
+// NewServer builds the router and its dependencies.
+func NewServer(cfg Config) (*Server, error) {
+	cfg = cfg.withDefaults()
+	keys, err := newKeyring(cfg.APIKeys)
+	if err != nil {
+		return nil, err
+	}
+	s := &Server{cfg: cfg, metrics: newMetrics(cfg.Slots), slots: make(chan struct{}, cfg.Slots), keys: keys}
+	gin.SetMode(gin.ReleaseMode)
+	e := gin.New()
+	e.HandleMethodNotAllowed = true
+	e.ContextWithFallback = true
+	e.Use(s.observe, gin.CustomRecovery(s.recovered))
+	e.NoRoute(func(c *gin.Context) { s.problem(c, newProblem(kindNotFound, "no such resource: see /openapi.yaml")) })
+	e.NoMethod(func(c *gin.Context) {
+		s.problem(c, newProblem(kindMethod, fmt.Sprintf("%s is not allowed here", c.Request.Method)))
+	})
+	v1 := e.Group("/v1", s.authorize)
+	v1.POST("/fit", s.handleFit)
+	v1.POST("/batch", s.handleBatch)
+	e.GET("/healthz", s.handleHealthz)
+	e.GET("/readyz", s.handleReadyz)
+	e.GET("/openapi.yaml", handleOpenAPI)
+	e.GET("/demo/:file", s.handleDemo)
+	if cfg.MetricsAddr == "" {
+		e.GET("/metrics", gin.WrapH(s.MetricsHandler()))
+	}
+	s.engine = e
+	return s, nil
+}
+
+// Handler is the service's http.Handler.
+func (s *Server) Handler() http.Handler { return s.engine }
+
+// MetricsHandler serves the Prometheus metrics.
+func (s *Server) MetricsHandler() http.Handler {
+	return promhttp.HandlerFor(s.metrics.reg, promhttp.HandlerOpts{Registry: s.metrics.reg})
+}
+
+// Routes lists the registered method and path templates (for the OpenAPI
+// coverage test).
+func (s *Server) Routes() []string {
+	var out []string
+	for _, r := range s.engine.Routes() {
+		out = append(out, r.Method+" "+r.Path)
+	}
+	return out
+}
+
+// Serve accepts connections on ln until ctx is done, then drains: /readyz
+// turns 503, new connections are refused, and in-flight requests finish
+// within ShutdownTimeout.
+func (s *Server) Serve(ctx context.Context, ln net.Listener, metricsLn net.Listener) error {
+	srv := s.httpServer(s.engine)
+	errc := make(chan error, 2)
+	go func() { errc <- srv.Serve(ln) }()
+	var msrv *http.Server
+	if metricsLn != nil {
+		mux := http.NewServeMux()
+		mux.Handle("/metrics", s.MetricsHandler())
+		msrv = s.httpServer(mux)
+		go func() { errc <- msrv.Serve(metricsLn) }()
+	}
+	select {
+	case err := <-errc:
+		return err
+	case <-ctx.Done():
+	}
+	s.draining.Store(true)
+	s.cfg.Logger.Info("draining", "timeout", s.cfg.ShutdownTimeout.String())
+	sctx, cancel := context.WithTimeout(context.Background(), s.cfg.ShutdownTimeout)
+	defer cancel()
+	err := srv.Shutdown(sctx)
+	if msrv != nil {
+		_ = msrv.Shutdown(sctx)
+	}
+	if errors.Is(err, context.DeadlineExceeded) {
+		return fmt.Errorf("shutdown: in-flight requests did not finish within %v", s.cfg.ShutdownTimeout)
+	}
+	return err
+}
+
+func (s *Server) httpServer(h http.Handler) *http.Server {
+	return &http.Server{
+		Handler:           h,
+		ReadHeaderTimeout: s.cfg.ReadHeaderTimeout,
+		ReadTimeout:       s.cfg.ReadTimeout,
+		WriteTimeout:      s.cfg.WriteTimeout,
+		IdleTimeout:       s.cfg.IdleTimeout,
+		MaxHeaderBytes:    64 << 10,
+		ErrorLog:          slog.NewLogLogger(s.cfg.Logger.Handler(), slog.LevelWarn),
+	}
+}
+
+// observe is the outer middleware: security headers, a request id, the
+// request log line (route, status, duration: never the data) and metrics
+// labelled by route template.
+func (s *Server) observe(c *gin.Context) {
+	start := time.Now()
+	id := newRequestID()
+	c.Header("X-Request-Id", id)
+	c.Header("X-Content-Type-Options", "nosniff")
+	s.metrics.inFlight.Inc()
+	c.Next()
+	s.metrics.inFlight.Dec()
+	route := c.FullPath()
+	if route == "" {
+		route = "unmatched"
+	}
+	status := c.Writer.Status()
+	d := time.Since(start)
+	s.metrics.requests.WithLabelValues(route, c.Request.Method, strconv.Itoa(status)).Inc()
+	s.metrics.duration.WithLabelValues(route).Observe(d.Seconds())
+	level := slog.LevelInfo
+	if status >= 500 {
+		level = slog.LevelWarn
+	}
+	s.cfg.Logger.LogAttrs(c.Request.Context(), level, "request",
+		slog.String("request_id", id), slog.String("method", c.Request.Method), slog.String("route", route),
+		slog.Int("status", status), slog.Float64("duration_ms", float64(d.Microseconds())/1000))
+}
+
+func newRequestID() string {
+	var b [8]byte
+	_, _ = rand.Read(b[:])
+	return hex.EncodeToString(b[:])
+}
+
+func (s *Server) recovered(c *gin.Context, v any) {
+	s.cfg.Logger.Error("panic", "route", c.FullPath(), "panic", fmt.Sprint(v))
+	s.problem(c, newProblem(kindInternal, "the server met an internal error; it has been logged"))
+}
+
+// problem writes an RFC 9457 answer and counts it.
+func (s *Server) problem(c *gin.Context, p *Problem) {
+	s.metrics.problems.WithLabelValues(strings.TrimPrefix(p.Type, ProblemTypeBase)).Inc()
+	if p.RetryAfter > 0 {
+		c.Header("Retry-After", strconv.Itoa(p.RetryAfter))
+	}
+	if p.Status == http.StatusUnauthorized {
+		c.Header("WWW-Authenticate", `Bearer realm="eivfit"`)
+	}
+	c.Header("Content-Type", "application/problem+json")
+	c.Status(p.Status)
+	_ = WriteJSON(c.Writer, p)
+	c.Abort()
+}
+
+// toProblem maps any error of the compute path to a problem; unknown
+// errors are internal and their text is not shown.
+func (s *Server) toProblem(c *gin.Context, err error) *Problem {
+	var p *Problem
+	var mbe *http.MaxBytesError
+	switch {
+	case errors.As(err, &p):
+		return p
+	case errors.As(err, &mbe):
+		return newProblem(kindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", s.cfg.MaxBodyBytes))
+	case errors.Is(err, context.DeadlineExceeded):
+		p := newProblem(kindDeadline, fmt.Sprintf("the computation did not finish within %v; ask for fewer resamples or points", s.cfg.RequestTimeout))
+		p.RetryAfter = 1
+		return p
+	case errors.Is(err, context.Canceled):
+		return newProblem(kindDeadline, "the request was cancelled")
+	}
+	s.cfg.Logger.Error("internal error", "route", c.FullPath(), "error", err.Error())
+	return newProblem(kindInternal, "the server met an internal error; it has been logged")
+}
+
+// acquire takes a compute slot, waiting up to SlotWait.
+func (s *Server) acquire(ctx context.Context) (release func(), p *Problem) {
+	start := time.Now()
+	t := time.NewTimer(s.cfg.SlotWait)
+	defer t.Stop()
+	select {
+	case s.slots <- struct{}{}:
+	case <-t.C:
+		s.metrics.slotRejected.Inc()
+		p := newProblem(kindBusy, fmt.Sprintf("every compute slot (%d) stayed busy for %v; retry later", cap(s.slots), s.cfg.SlotWait))
+		p.RetryAfter = 1
+		return nil, p
+	case <-ctx.Done():
+		return nil, newProblem(kindDeadline, "the request was cancelled while waiting for a compute slot")
+	}
+	s.metrics.slotWait.Observe(time.Since(start).Seconds())
+	s.metrics.slotsInUse.Inc()
+	return func() { <-s.slots; s.metrics.slotsInUse.Dec() }, nil
+}
+
+// body wraps the request body with the size limit. A declared length above
+// the limit is refused before anything is read.
+func (s *Server) body(c *gin.Context) (io.Reader, *Problem) {
+	if c.Request.ContentLength > s.cfg.MaxBodyBytes {
+		return nil, newProblem(kindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
+			c.Request.ContentLength, s.cfg.MaxBodyBytes))
+	}
+	return http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes), nil
+}
+
+// mediaType returns the request's media type: "json", "csv", or "" after
+// writing a 415.
+func (s *Server) mediaType(c *gin.Context, allowCSV bool) string {
+	ct := c.GetHeader("Content-Type")
+	mt, _, err := mime.ParseMediaType(ct)
+	if ct == "" {
+		err = errors.New("missing")
+	}
+	switch {
+	case err == nil && (mt == "application/json" || strings.HasSuffix(mt, "+json")):
+		return "json"
+	case err == nil && allowCSV && (mt == "text/csv" || mt == "application/csv"):
+		return "csv"
+	}
+	want := "application/json"
+	if allowCSV {
+		want += " or text/csv"
+	}
+	s.problem(c, newProblem(kindMediaType, fmt.Sprintf("Content-Type %q is not accepted here; send %s", ct, want)))
+	return ""
+}
+
+func (s *Server) settings(workers int) Settings {
+	return Settings{Limits: s.cfg.Limits, Workers: workers, Observe: func(method string, d time.Duration, resamples int) {
+		s.metrics.fitDuration.WithLabelValues(method).Observe(d.Seconds())
+		s.metrics.resamples.Add(float64(resamples))
+	}}
+}
+
+// handleFit serves POST /v1/fit: decode (JSON or CSV), validate, compute
+// in a compute slot under the request deadline, encode.
+func (s *Server) handleFit(c *gin.Context) {
+	kind := s.mediaType(c, true)
+	if kind == "" {
+		return
+	}
+	body, p := s.body(c)
+	if p != nil {
+		s.problem(c, p)
+		return
+	}
+	var req *FitRequest
+	var err error
+	if kind == "csv" {
+		var d *Dataset
+		if d, err = DecodeCSV(body); err == nil {
+			req, err = FitRequestFromQuery(c.Request.URL.Query(), d)
+		}
+	} else {
+		if len(c.Request.URL.RawQuery) > 0 {
+			s.problem(c, invalid("query", "a JSON request carries its options in the body, not the query string"))
+			return
+		}
+		req, err = DecodeFitJSON(body)
+	}
+	if err != nil {
+		s.problem(c, s.toProblem(c, err))
+		return
+	}
+	if err := req.Validate(s.cfg.Limits); err != nil {
+		s.problem(c, s.toProblem(c, err))
+		return
+	}
+	release, p := s.acquire(c.Request.Context())
+	if p != nil {
+		s.problem(c, p)
+		return
+	}
+	defer release()
+	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
+	defer cancel()
+	resp, err := Fit(ctx, req, s.settings(0))
+	if err != nil {
+		s.problem(c, s.toProblem(c, err))
+		return
+	}
+	s.metrics.points.Add(float64(resp.N))
+	s.writeJSON(c, http.StatusOK, resp)
+}
+
+func (s *Server) writeJSON(c *gin.Context, status int, v any) {
+	c.Header("Content-Type", "application/json")
+	c.Status(status)
+	if err := WriteJSON(c.Writer, v); err != nil {
+		s.cfg.Logger.Warn("write failed", "route", c.FullPath(), "error", err.Error())
+	}
+}
+
+func (s *Server) handleHealthz(c *gin.Context) {
+	s.writeJSON(c, http.StatusOK, map[string]string{"status": "ok", "version": s.cfg.Version})
+}
+
+func (s *Server) handleReadyz(c *gin.Context) {
+	if s.draining.Load() {
+		s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "draining"})
+		return
+	}
+	s.writeJSON(c, http.StatusOK, map[string]any{"status": "ready", "slots": cap(s.slots), "slots_in_use": len(s.slots)})
+}
