@@ -1,0 +1,234 @@
+package eiv
+
+import (
+	"fmt"
+	"math"
+	"slices"
+)
+
+// PassingBablokResult is the Passing–Bablok line with its checks.
+type PassingBablokResult struct {
+	Fit *Fit // Slope and Intercept with the paper's CIs; SE is the CI half-width over z (an equivalent, for tables)
+	// Slopes is N, the number of pairwise slopes used; Shift is K, the
+	// number of them below −1.
+	Slopes, Shift int
+	// Cusum is the linearity test.
+	Cusum CusumResult
+	// Kendall is Kendall's τ of x and y: the method assumes a positive
+	// correlation (a significant τ > 0).
+	Kendall TestResult
+}
+
+// CusumResult is Passing & Bablok's cumulative-sum linearity test.
+type CusumResult struct {
+	// Max is max |cusum| of the residual scores ordered along the line.
+	Max float64
+	// Above and Below count the points above and below the line (l and L).
+	Above, Below int
+	// KS is Max/√(l+L), the cusum read as the two-sample Kolmogorov–Smirnov
+	// statistic √(lL/(l+L))·D of the positions of the points above and
+	// below the line; PValue is its asymptotic Kolmogorov p-value.
+	KS, PValue float64
+	// Linear is PValue ≥ 0.05 (no evidence against linearity).
+	Linear bool
+}
+
+// PassingBablok fits y = a + b·x by the method of Passing & Bablok (1983,
+// J. Clin. Chem. Clin. Biochem. 21:709), which assumes only that the errors
+// of both methods have the same distribution up to a constant ratio and
+// that x and y are positively correlated:
+//
+//   - pairwise slopes S_ij = (y_j − y_i)/(x_j − x_i), i < j; a pair of
+//     identical points is skipped, a slope of exactly −1 is skipped, and a
+//     pair with equal x (points ordered by x, then y) counts as +∞;
+//   - b is the median of the N slopes shifted by K, the number below −1:
+//     S₍(N+1)/2+K₎ for odd N, the mean of S₍N/2+K₎ and S₍N/2+1+K₎ for even N;
+//   - a = median{y_i − b·x_i};
+//   - the CI of b is [S₍M1+K₎, S₍M2+K₎] with C = z_{1−α/2}·√(n(n−1)(2n+5)/18),
+//     M1 = round((N − C)/2), M2 = N − M1 + 1; the CI of a is
+//     [median{y − b_U·x}, median{y − b_L·x}].
+func PassingBablok(x, y []float64, opt *Options) (*PassingBablokResult, error) {
+	conf, err := opt.confidence()
+	if err != nil {
+		return nil, err
+	}
+	if err := checkXY(x, y); err != nil {
+		return nil, err
+	}
+	n := len(x)
+	if n > 20000 {
+		return nil, &OptionError{Option: "n", Reason: "Passing–Bablok needs n(n−1)/2 slopes; at most 20,000 points"}
+	}
+	idx := make([]int, n)
+	for i := range idx {
+		idx[i] = i
+	}
+	slices.SortFunc(idx, func(a, b int) int {
+		switch {
+		case x[a] != x[b]:
+			return cmpFloat(x[a], x[b])
+		default:
+			return cmpFloat(y[a], y[b])
+		}
+	})
+	s := make([]float64, 0, n*(n-1)/2)
+	k := 0
+	for p := range n {
+		i := idx[p]
+		for q := p + 1; q < n; q++ {
+			j := idx[q]
+			dx, dy := x[j]-x[i], y[j]-y[i]
+			if dx == 0 && dy == 0 {
+				continue
+			}
+			var sl float64
+			if dx == 0 {
+				sl = math.Inf(1)
+			} else {
+				sl = dy / dx
+			}
+			if sl == -1 {
+				continue
+			}
+			if sl < -1 {
+				k++
+			}
+			s = append(s, sl)
+		}
+	}
+	N := len(s)
+	if N < 2 {
+		return nil, fmt.Errorf("%w: too few distinct pairs for Passing–Bablok", ErrDegenerate)
+	}
+	slices.Sort(s)
+	at := func(r int) (float64, bool) { // 1-based order statistic, within range
+		if r < 1 || r > N {
+			return 0, false
+		}
+		return s[r-1], true
+	}
+	var b float64
+	var ok1, ok2 bool
+	if N%2 == 1 {
+		b, ok1 = at((N+1)/2 + k)
+		ok2 = ok1
+	} else {
+		var lo, hi float64
+		lo, ok1 = at(N/2 + k)
+		hi, ok2 = at(N/2 + 1 + k)
+		b = (lo + hi) / 2
+	}
+	if !ok1 || !ok2 || math.IsInf(b, 0) {
+		return nil, fmt.Errorf("%w: the shifted median slope is not finite (x and y show no positive relation)", ErrDegenerate)
+	}
+	z := zQuantile(conf)
+	c := z * math.Sqrt(float64(n)*float64(n-1)*float64(2*n+5)/18)
+	m1 := int(math.Round((float64(N) - c) / 2))
+	m2 := N - m1 + 1
+	bl, okl := at(m1 + k)
+	bu, oku := at(m2 + k)
+	res := &PassingBablokResult{Slopes: N, Shift: k}
+	f := &Fit{Method: MethodPassingBablok, N: n, Confidence: conf, DOF: n - 2, Converged: true}
+	a := medianOf(y, x, b)
+	f.Slope.Value, f.Intercept.Value = b, a
+	if okl && oku && !math.IsInf(bl, 0) && !math.IsInf(bu, 0) {
+		al, au := medianOf(y, x, bu), medianOf(y, x, bl)
+		f.Slope.CI = Interval{Lower: bl, Upper: bu, Level: conf, Method: "Passing-Bablok rank interval"}
+		f.Intercept.CI = Interval{Lower: al, Upper: au, Level: conf, Method: "Passing-Bablok rank interval"}
+		f.Slope.SE = (bu - bl) / (2 * z)
+		f.Intercept.SE = (au - al) / (2 * z)
+	} else {
+		f.Warnings = append(f.Warnings, &Warning{Code: "interval_unavailable", Message: "passing_bablok: too few slopes for a confidence interval at this level"})
+		f.Slope.CI = Interval{Lower: b, Upper: b, Level: conf, Method: "unavailable"}
+		f.Intercept.CI = Interval{Lower: a, Upper: a, Level: conf, Method: "unavailable"}
+	}
+	res.Fit = f
+	res.Cusum = cusumTest(x, y, a, b)
+	if !res.Cusum.Linear {
+		f.Warnings = append(f.Warnings, &Warning{Code: "nonlinear", Message: fmt.Sprintf(
+			"passing_bablok: the cusum test finds a departure from linearity (p = %.2g)", res.Cusum.PValue)})
+	}
+	if kt, err := KendallTau(x, y); err == nil {
+		res.Kendall = kt
+		if !(kt.Statistic > 0 && kt.PValue < 0.05) {
+			f.Warnings = append(f.Warnings, &Warning{Code: "no_positive_correlation", Message: fmt.Sprintf(
+				"passing_bablok: Kendall's τ = %.3g (p = %.2g) does not show the significant positive correlation the method assumes", kt.Statistic, kt.PValue)})
+		}
+	}
+	return res, nil
+}
+
+// MethodPassingBablok is the Passing–Bablok estimator.
+const MethodPassingBablok Method = "passing_bablok"
+
+func cmpFloat(a, b float64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
+}
+
+// medianOf returns median{y_i − b·x_i}.
+func medianOf(y, x []float64, b float64) float64 {
+	r := make([]float64, len(y))
+	for i := range y {
+		r[i] = y[i] - b*x[i]
+	}
+	return median(r)
+}
+
+func median(v []float64) float64 {
+	s := slices.Clone(v)
+	slices.Sort(s)
+	n := len(s)
+	if n%2 == 1 {
+		return s[n/2]
+	}
+	return (s[n/2-1] + s[n/2]) / 2
+}
+
+// cusumTest scores each point +√(L/l) above the line and −√(l/L) below it
+// (0 on it), orders the points by their position along the line
+// D_i = (y_i + x_i/b − a)/√(1 + 1/b²), and takes the largest |cusum|.
+func cusumTest(x, y []float64, a, b float64) CusumResult {
+	n := len(x)
+	var l, L int
+	for i := range n {
+		switch r := y[i] - a - b*x[i]; {
+		case r > 0:
+			l++
+		case r < 0:
+			L++
+		}
+	}
+	res := CusumResult{Above: l, Below: L, PValue: 1, Linear: true}
+	if l == 0 || L == 0 || b == 0 {
+		return res
+	}
+	up, down := math.Sqrt(float64(L)/float64(l)), -math.Sqrt(float64(l)/float64(L))
+	idx := make([]int, n)
+	pos := make([]float64, n)
+	norm := math.Sqrt(1 + 1/(b*b))
+	for i := range n {
+		idx[i] = i
+		pos[i] = (y[i] + x[i]/b - a) / norm
+	}
+	slices.SortStableFunc(idx, func(p, q int) int { return cmpFloat(pos[p], pos[q]) })
+	var cs float64
+	for _, i := range idx {
+		switch r := y[i] - a - b*x[i]; {
+		case r > 0:
+			cs += up
+		case r < 0:
+			cs += down
+		}
+		res.Max = math.Max(res.Max, math.Abs(cs))
+	}
+	res.KS = res.Max / math.Sqrt(float64(l+L))
+	res.PValue = KolmogorovSurvival(res.KS)
+	res.Linear = res.PValue >= 0.05
+	return res
+}
