@@ -81,116 +81,201 @@ func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, erro
 			"only %d points: intervals are wide and the checks of the assumptions have little power", n)})
 	}
 
-	type done struct {
-		name string
-		fit  *eiv.Fit
-		est  eiv.Estimator
-		out  *MethodFit
-	}
-	var fits []done
-	elapsed := map[string]time.Duration{}
+	var fits []*fitted
 	for _, m := range methods {
 		t0 := time.Now()
+		if m == "passing_bablok" {
+			ft, err := pbFitted(s, conf, set)
+			if err != nil {
+				return nil, fitProblem(err, eiv.MethodPassingBablok, d.locate, methodPtr(m))
+			}
+			fits = append(fits, ft)
+			continue
+		}
 		f, est, lsrc, err := fitOne(m, req, conf, set)
-		elapsed[m] = time.Since(t0)
 		if err != nil {
 			return nil, fitProblem(err, eiv.Method(m), d.locate, methodPtr(m))
 		}
-		out := methodFit(f)
+		ft := &fitted{name: m, fit: f, est: est, out: methodFit(f), elapsed: time.Since(t0)}
 		if lsrc != "" {
-			out.Lambda, out.LambdaSource = ptr(f.Lambda), lsrc
+			ft.out.Lambda, ft.out.LambdaSource = ptr(f.Lambda), lsrc
 		}
-		for _, w := range f.Warnings {
-			resp.Warnings = append(resp.Warnings, warning(m, w))
-		}
-		for _, x0 := range req.At {
-			p := f.At(x0)
-			out.At = append(out.At, AtOut{X: x0, Y: interval(p.Y), Bias: interval(p.Bias)})
-		}
-		fits = append(fits, done{m, f, est, out})
+		fits = append(fits, ft)
 	}
+	var err error
+	resp.Fits, resp.OLSBias, err = finishFits(ctx, s, fits, req.At, req.Bootstrap, set, &resp.Warnings,
+		func(m string, err error) error { return fitProblem(err, eiv.Method(m), d.locate, methodPtr(m)) })
+	if err != nil {
+		return nil, err
+	}
+	if err := checkFinite(resp); err != nil {
+		return nil, err
+	}
+	return resp, nil
+}
 
+// fitted is one method's fit on its way to the answer.
+type fitted struct {
+	name    string
+	fit     *eiv.Fit
+	est     eiv.Estimator
+	out     *MethodFit
+	elapsed time.Duration
+	// at, when set, replaces fit.At for the predictions (Passing–Bablok's
+	// jackknife).
+	at func(x0 float64) (eiv.Prediction, bool)
+}
+
+// finishFits adds to each fit its predictions at the x values in at, its
+// bootstrap (when bo asks for one; every method refitted on the same
+// resamples, paired with OLS), and the OLS comparison, and assembles the
+// fits block. problem maps an estimator error of method m.
+func finishFits(ctx context.Context, s eiv.Sample, fits []*fitted, at []float64, bo *BootstrapOptions,
+	set Settings, warnings *[]Warning, problem func(m string, err error) error) (Fits, []OLSBias, error) {
+	n := s.Len()
+	var out Fits
+	var olsBias []OLSBias
 	var olsFit *eiv.Fit
 	for _, f := range fits {
 		if f.name == "ols" {
 			olsFit = f.fit
 		}
+		for _, w := range f.fit.Warnings {
+			*warnings = append(*warnings, warning(f.name, w))
+		}
+		for _, x0 := range at {
+			p, ok := f.fit.At(x0), true
+			if f.at != nil {
+				p, ok = f.at(x0)
+			}
+			a := AtOut{X: x0, Y: interval(p.Y), Bias: interval(p.Bias)}
+			if !ok {
+				a.Y.CI.Method, a.Bias.CI.Method = "unavailable", "unavailable"
+			}
+			f.out.At = append(f.out.At, a)
+		}
 	}
-	boot := req.Bootstrap != nil && req.Bootstrap.Resamples > 0
+	boot := bo != nil && bo.Resamples > 0
 	var seed uint64
 	if boot {
 		seed = rand.Uint64()
-		if req.Bootstrap.Seed != nil {
-			seed = *req.Bootstrap.Seed
+		if bo.Seed != nil {
+			seed = *bo.Seed
 		}
 	}
 	for _, f := range fits {
+		conf := f.fit.Confidence
 		ests := []eiv.Estimator{f.est}
 		if olsFit != nil && f.name != "ols" {
 			ests = append(ests, eiv.OLSEstimator{})
 		}
 		var br *eiv.BootstrapResult
 		t0 := time.Now()
-		if boot {
+		if boot && f.name == "passing_bablok" && n > pbBootstrapMaxN {
+			*warnings = append(*warnings, warning(f.name, &eiv.Warning{Code: eiv.WarnBootstrapSkipped, Message: fmt.Sprintf(
+				"passing_bablok: no bootstrap above %d samples (each resample sorts n(n−1)/2 slopes); its rank interval is reported", pbBootstrapMaxN)}))
+		} else if boot {
 			var err error
 			br, err = eiv.Bootstrap(ctx, s, ests, &eiv.BootstrapOptions{
-				Resamples: req.Bootstrap.Resamples, Seed: seed, Scheme: eiv.Scheme(req.Bootstrap.Scheme),
+				Resamples: bo.Resamples, Seed: seed, Scheme: eiv.Scheme(bo.Scheme),
 				Workers: set.Workers, Confidence: conf, JackknifeMaxN: set.jackMax()})
 			if err != nil {
 				if ctx.Err() != nil {
-					return nil, ctx.Err()
+					return out, nil, ctx.Err()
 				}
-				return nil, fitProblem(err, eiv.Method(f.name), d.locate, methodPtr(f.name))
+				return out, nil, problem(f.name, err)
 			}
 			f.out.Bootstrap = bootstrapOut(br, seed)
 			for _, w := range br.Warnings {
-				resp.Warnings = append(resp.Warnings, warning(f.name, w))
+				*warnings = append(*warnings, warning(f.name, w))
 			}
-			for i, x0 := range req.At {
+			for i, x0 := range at {
 				y := func(l []eiv.Line) float64 { return l[0].Intercept + l[0].Slope*x0 }
 				if sum, err := br.Summarize(y); err == nil && sum.Percentile != nil {
-					f.out.At[i].Y.Bootstrap = bounds(sum.Percentile)
-					f.out.At[i].Bias.Bootstrap = &Bounds{sum.Percentile.Lower - x0, sum.Percentile.Upper - x0}
+					iv := sum.Percentile
 					if sum.BCa != nil {
-						f.out.At[i].Y.Bootstrap = bounds(sum.BCa)
-						f.out.At[i].Bias.Bootstrap = &Bounds{sum.BCa.Lower - x0, sum.BCa.Upper - x0}
+						iv = sum.BCa
 					}
+					f.out.At[i].Y.Bootstrap = bounds(iv)
+					f.out.At[i].Bias.Bootstrap = &Bounds{iv.Lower - x0, iv.Upper - x0}
 				}
 			}
 		}
 		if set.Observe != nil {
 			r := 0
 			if boot {
-				r = req.Bootstrap.Resamples
+				r = bo.Resamples
 			}
-			set.Observe(f.name, elapsed[f.name]+time.Since(t0), r)
+			set.Observe(f.name, f.elapsed+time.Since(t0), r)
 		}
 		if olsFit == nil || f.name == "ols" {
 			continue
 		}
 		var jack [][]eiv.Line
-		if br == nil && n <= set.jackMax() {
+		if br == nil && n <= set.jackMax() && f.name != "passing_bablok" {
 			jack, _ = eiv.JackknifeLines(s, ests) // nil on a degenerate sample: no interval
 		}
-		c := eiv.CompareOLS(olsFit, f.fit, d.X, d.SX, req.At, br, jack)
-		resp.OLSBias = append(resp.OLSBias, olsBiasOut(c))
+		c := eiv.CompareOLS(olsFit, f.fit, s.X, s.SX, at, br, jack)
+		olsBias = append(olsBias, olsBiasOut(c))
 	}
 	for _, f := range fits {
 		switch f.name {
 		case "ols":
-			resp.Fits.OLS = f.out
+			out.OLS = f.out
 		case "deming":
-			resp.Fits.Deming = f.out
+			out.Deming = f.out
 		case "weighted_deming":
-			resp.Fits.WeightedDeming = f.out
+			out.WeightedDeming = f.out
+		case "passing_bablok":
+			out.PassingBablok = f.out
 		case "york":
-			resp.Fits.York = f.out
+			out.York = f.out
 		}
 	}
-	if err := checkFinite(resp); err != nil {
+	return out, olsBias, nil
+}
+
+// pbJackknifeMaxN bounds the Passing–Bablok jackknife used for its
+// predictions: n refits of O(n² log n) each.
+const pbJackknifeMaxN = 200
+
+// pbBootstrapMaxN bounds the samples for which Passing–Bablok joins the bootstrap.
+const pbBootstrapMaxN = 300
+
+// pbFitted runs Passing–Bablok with its checks. Its predictions and bias
+// intervals come from the jackknife (the method has no analytic
+// covariance); above pbJackknifeMaxN points they are given without interval.
+func pbFitted(s eiv.Sample, conf float64, set Settings) (*fitted, error) {
+	t0 := time.Now()
+	pb, err := eiv.PassingBablok(s.X, s.Y, &eiv.Options{Confidence: conf})
+	if err != nil {
 		return nil, err
 	}
-	return resp, nil
+	out := methodFit(pb.Fit)
+	out.PairwiseSlopes, out.Shift = ptr(pb.Slopes), ptr(pb.Shift)
+	c := pb.Cusum
+	out.Cusum = &CusumOut{Max: c.Max, Above: c.Above, Below: c.Below, KS: c.KS, PValue: c.PValue, Linear: c.Linear}
+	out.KendallTau = &TestOut{Statistic: pb.Kendall.Statistic, PValue: pb.Kendall.PValue, Detail: pb.Kendall.Detail}
+	ft := &fitted{name: "passing_bablok", fit: pb.Fit, est: eiv.PassingBablokEstimator{}, out: out}
+	full := eiv.Line{Intercept: pb.Fit.Intercept.Value, Slope: pb.Fit.Slope.Value}
+	var loo []eiv.Line
+	if s.Len() <= pbJackknifeMaxN {
+		if jl, err := eiv.JackknifeLines(s, []eiv.Estimator{eiv.PassingBablokEstimator{}}); err == nil {
+			for _, l := range jl {
+				loo = append(loo, l[0])
+			}
+		}
+	}
+	ft.at = func(x0 float64) (eiv.Prediction, bool) {
+		if loo == nil {
+			y := full.Intercept + full.Slope*x0
+			return eiv.Prediction{X: x0, Y: eiv.Estimate{Value: y, CI: eiv.Interval{Lower: y, Upper: y, Level: conf}},
+				Bias: eiv.Estimate{Value: y - x0, CI: eiv.Interval{Lower: y - x0, Upper: y - x0, Level: conf}}}, false
+		}
+		return eiv.JackknifeAt(full, loo, x0, conf), true
+	}
+	ft.elapsed = time.Since(t0)
+	return ft, nil
 }
 
 // fitOne runs one estimator. lsrc says where λ came from (Deming fits only).
@@ -247,6 +332,7 @@ var seBasis = map[eiv.Method]string{
 	eiv.MethodDeming:         "large-sample (Fuller 1987, Theorem 1.3.1)",
 	eiv.MethodWeightedDeming: "jackknife (Linnet 1990)",
 	eiv.MethodYork:           "York et al. (2004), stated uncertainties, unscaled",
+	eiv.MethodPassingBablok:  "rank interval of Passing & Bablok (1983); se = half-width / z",
 }
 
 func methodFit(f *eiv.Fit) *MethodFit {
@@ -353,13 +439,9 @@ func checkFinite(r *FitResponse) error {
 			bad = name
 		}
 	}
-	for name, f := range map[string]*MethodFit{"ols": r.Fits.OLS, "deming": r.Fits.Deming,
-		"weighted_deming": r.Fits.WeightedDeming, "york": r.Fits.York} {
-		if f == nil {
-			continue
-		}
+	r.Fits.each(func(name string, f *MethodFit) {
 		f.eachNumber(func(field string, v float64) { visit(name+"/"+field, v) })
-	}
+	})
 	for _, c := range r.OLSBias {
 		for _, iv := range []Interval{c.SlopeDifference, c.InterceptDifference, c.SlopeRelativePercent} {
 			iv.eachNumber(func(field string, v float64) { visit("ols_bias/"+field, v) })

@@ -19,7 +19,7 @@ var Demo embed.FS
 func (s *Server) handleDemo(c *gin.Context) {
 	b, err := Demo.ReadFile("demo/" + c.Param("file"))
 	if err != nil {
-		s.problem(c, newProblem(kindNotFound, "demo files: demo-glucose.csv, demo-gas-sensor.csv"))
+		s.problem(c, newProblem(kindNotFound, "demo files: demo-glucose.csv, demo-gas-sensor.csv, demo-glucose-duplicates.csv"))
 		return
 	}
 	c.Data(http.StatusOK, "text/csv; charset=utf-8", b)

@@ -8,6 +8,7 @@ import (
 	"net"
 	"net/http"
 	"os"
+	"path/filepath"
 	"strings"
 	"sync"
 	"testing"
@@ -107,7 +108,12 @@ func (l *lockedWriter) Write(p []byte) (int, error) {
 
 // The embedded demo files are the ones in testdata.
 func TestDemoFilesMatchTestdata(t *testing.T) {
-	for _, f := range []string{"demo-glucose.csv", "demo-gas-sensor.csv"} {
+	files, _ := filepath.Glob("../testdata/demo-*.csv")
+	if len(files) < 3 {
+		t.Fatalf("demo files: %v", files)
+	}
+	for _, f := range files {
+		f = filepath.Base(f)
 		want, err := os.ReadFile("../testdata/" + f)
 		if err != nil {
 			t.Fatal(err)

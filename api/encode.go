@@ -60,30 +60,26 @@ func WriteText(w io.Writer, r *FitResponse) error {
 				bs.Slope.SE, fmtB(bs.Slope), bs.Intercept.SE, fmtB(bs.Intercept), bs.Resamples, bs.Seed, bs.Scheme)
 		}
 	}
-	row("ols", r.Fits.OLS)
-	row("deming", r.Fits.Deming)
-	row("weighted_deming", r.Fits.WeightedDeming)
-	row("york", r.Fits.York)
+	r.Fits.each(row)
 	if err := tw.Flush(); err != nil {
 		return err
 	}
-	for _, name := range []struct {
-		n string
-		f *MethodFit
-	}{{"ols", r.Fits.OLS}, {"deming", r.Fits.Deming}, {"weighted_deming", r.Fits.WeightedDeming}, {"york", r.Fits.York}} {
-		if name.f == nil || len(name.f.At) == 0 {
-			continue
+	var ferr error
+	r.Fits.each(func(name string, f *MethodFit) {
+		if len(f.At) == 0 || ferr != nil {
+			return
 		}
-		fmt.Fprintf(&b, "\n%s at decision levels:\n", name.n)
-		tw = tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+		fmt.Fprintf(&b, "\n%s at decision levels:\n", name)
+		tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 		fmt.Fprintln(tw, "  x\tfitted y\tCI\tbias y − x\tCI")
-		for _, a := range name.f.At {
+		for _, a := range f.At {
 			fmt.Fprintf(tw, "  %g\t%.6g\t[%.6g, %.6g]\t%.4g\t[%.4g, %.4g]\n", a.X, a.Y.Estimate, a.Y.CI.Lower, a.Y.CI.Upper,
 				a.Bias.Estimate, a.Bias.CI.Lower, a.Bias.CI.Upper)
 		}
-		if err := tw.Flush(); err != nil {
-			return err
-		}
+		ferr = tw.Flush()
+	})
+	if ferr != nil {
+		return ferr
 	}
 	if len(r.OLSBias) > 0 {
 		b.WriteString("\nHow far OLS is off:\n")
@@ -103,4 +99,78 @@ func WriteText(w io.Writer, r *FitResponse) error {
 	}
 	_, err := io.WriteString(w, b.String())
 	return err
+}
+
+// WriteCompareText writes a method-comparison study for a terminal.
+func WriteCompareText(w io.Writer, r *CompareResponse) error {
+	var b strings.Builder
+	writeComparisonText(&b, r, &r.Comparison)
+	if r.WithoutExcluded != nil {
+		fmt.Fprintf(&b, "\n==== Without %s ====\n", strings.Join(r.WithoutExcluded.Excluded, ", "))
+		writeComparisonText(&b, r, r.WithoutExcluded)
+	}
+	fmt.Fprintf(&b, "\n%s\n%s\n", r.SignConvention, r.Caution)
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+func writeComparisonText(b *strings.Builder, r *CompareResponse, c *Comparison) {
+	fmt.Fprintf(b, "%s (y) against %s (x)", r.YName, r.XName)
+	if r.Unit != "" {
+		fmt.Fprintf(b, ", %s", r.Unit)
+	}
+	fmt.Fprintf(b, ": %d samples, intervals at %g %%\n", c.N, 100*c.Confidence)
+	fmt.Fprintf(b, "Error model: %s (%s), λ = %.4g (%s). %s\n\n", c.ErrorModel.Model, c.ErrorModel.Source,
+		c.ErrorModel.Lambda, c.ErrorModel.LambdaSource, c.ErrorModel.Reading)
+	tw := tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
+	fmt.Fprintln(tw, "fit\tslope\tCI\tintercept\tCI")
+	c.Fits.each(func(name string, f *MethodFit) {
+		fmt.Fprintf(tw, "%s\t%.5g\t[%.5g, %.5g]\t%.5g\t[%.5g, %.5g]\n", name, f.Slope.Estimate, f.Slope.CI.Lower, f.Slope.CI.Upper,
+			f.Intercept.Estimate, f.Intercept.CI.Lower, f.Intercept.CI.Upper)
+	})
+	_ = tw.Flush()
+	a := c.Agreement
+	fmt.Fprintf(b, "\nBland–Altman (y − x): mean difference %.4g [%.4g, %.4g], SD %.4g, limits of agreement %.4g to %.4g\n",
+		a.MeanDifference.Estimate, a.MeanDifference.CI.Lower, a.MeanDifference.CI.Upper, a.SDDifference,
+		a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate)
+	fmt.Fprintf(b, "  %s\n", a.ProportionalBias.Reading)
+	if len(c.DecisionLevels) > 0 {
+		b.WriteString("\nBias at decision levels:\n")
+		tw = tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
+		fmt.Fprintln(tw, "  level\tfit\tbias\tCI\tbias %\tallowable\tverdict")
+		for _, l := range c.DecisionLevels {
+			allow := "-"
+			if l.Allowable != nil {
+				allow = fmt.Sprintf("±%.4g", l.Allowable.Limit)
+			}
+			c.Fits.each(func(name string, _ *MethodFit) {
+				f := l.Fits[name]
+				v := f.Verdict
+				if v == "" {
+					v = "-"
+				}
+				fmt.Fprintf(tw, "  %g\t%s\t%.4g\t[%.4g, %.4g]\t%.3g\t%s\t%s\n", l.Level, name, f.Bias.Estimate, f.Bias.CI.Lower, f.Bias.CI.Upper,
+					f.BiasPercent.Estimate, allow, v)
+			})
+		}
+		_ = tw.Flush()
+	}
+	d := c.Diagnostics
+	fmt.Fprintf(b, "\nChecks on the %s residuals (%s):\n", d.ResidualsOf, d.Scale)
+	for _, s := range []string{d.Normality.Reading, d.Independence.Reading, d.Variance.Reading, d.Linearity.Reading, d.Outliers.Reading} {
+		fmt.Fprintf(b, "  - %s\n", s)
+	}
+	if len(c.OLSBias) > 0 {
+		b.WriteString("\nHow far OLS is off:\n")
+		for _, o := range c.OLSBias {
+			fmt.Fprintf(b, "  %s\n", o.Summary)
+		}
+	}
+	fmt.Fprintf(b, "\nRecommendation: %s\n", c.Recommendation.Text)
+	if len(c.Warnings) > 0 {
+		b.WriteString("\nWarnings:\n")
+		for _, wn := range c.Warnings {
+			fmt.Fprintf(b, "  %s\n", wn.Message)
+		}
+	}
 }

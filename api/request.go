@@ -19,8 +19,9 @@ import (
 type FitRequest struct {
 	// Points are the paired measurements.
 	Points Dataset `json:"points"`
-	// Methods to fit: any of ols, deming, weighted_deming, york. Empty means
-	// every method the data support.
+	// Methods to fit: any of ols, deming, weighted_deming, passing_bablok,
+	// york. Empty means every method the data support (passing_bablok is
+	// fitted only when asked for).
 	Methods []string `json:"methods,omitempty"`
 	// Lambda is the error-variance ratio var(y error)/var(x error) for the
 	// Deming fits. Nil means: derived from sx and sy when stated, else 1.
@@ -65,7 +66,7 @@ type Limits struct {
 var DefaultLimits = Limits{MaxPoints: 1_000_000, MaxResamples: 100_000, MaxAt: 1000}
 
 // Method names, in the order fits are reported.
-var methodNames = []string{"ols", "deming", "weighted_deming", "york"}
+var methodNames = []string{"ols", "deming", "weighted_deming", "passing_bablok", "york"}
 
 // DecodeFitJSON reads a FitRequest from JSON, strictly: unknown fields,
 // trailing data, non-numbers and numbers outside the double range are
@@ -296,26 +297,8 @@ func (req *FitRequest) Validate(lim Limits) error {
 		add(param("confidence"), "confidence must lie strictly between 0 and 1, e.g. 0.95")
 	}
 	if b := req.Bootstrap; b != nil {
-		rp, sp := "/bootstrap/resamples", "/bootstrap/scheme"
-		if d.csv {
-			rp, sp = param("resamples"), param("scheme")
-		}
-		switch {
-		case b.Resamples < 0:
-			add(rp, "resamples must be 0 (no bootstrap) or at least %d", minResamples)
-		case b.Resamples > 0 && b.Resamples < minResamples:
-			add(rp, "resamples must be 0 (no bootstrap) or at least %d for stable intervals", minResamples)
-		case lim.MaxResamples > 0 && b.Resamples > lim.MaxResamples:
-			add(rp, "resamples must not exceed this server's limit of %d", lim.MaxResamples)
-		}
-		switch b.Scheme {
-		case "", "pairs":
-		case "parametric":
-			if d.SX == nil || d.SY == nil {
-				add(sp, "the parametric bootstrap draws around the fitted points with the stated uncertainties, so every point needs sx and sy")
-			}
-		default:
-			add(sp, "scheme must be \"pairs\" or \"parametric\", not %q", truncate(b.Scheme))
+		for _, e := range validateBootstrap(b, d.SX != nil && d.SY != nil, d.csv, lim) {
+			add(e.Pointer, "%s", e.Detail)
 		}
 	}
 	if lim.MaxAt > 0 && len(req.At) > lim.MaxAt {
@@ -332,3 +315,34 @@ func (req *FitRequest) Validate(lim Limits) error {
 }
 
 const minResamples = 100
+
+// validateBootstrap checks bootstrap options; hasSigma says whether every
+// point states sx and sy (the parametric scheme needs them).
+func validateBootstrap(b *BootstrapOptions, hasSigma, csv bool, lim Limits) []FieldError {
+	var errs []FieldError
+	add := func(ptr, format string, a ...any) {
+		errs = append(errs, FieldError{Pointer: ptr, Detail: fmt.Sprintf(format, a...)})
+	}
+	rp, sp := "/bootstrap/resamples", "/bootstrap/scheme"
+	if csv {
+		rp, sp = "query parameter resamples", "query parameter scheme"
+	}
+	switch {
+	case b.Resamples < 0:
+		add(rp, "resamples must be 0 (no bootstrap) or at least %d", minResamples)
+	case b.Resamples > 0 && b.Resamples < minResamples:
+		add(rp, "resamples must be 0 (no bootstrap) or at least %d for stable intervals", minResamples)
+	case lim.MaxResamples > 0 && b.Resamples > lim.MaxResamples:
+		add(rp, "resamples must not exceed this server's limit of %d", lim.MaxResamples)
+	}
+	switch b.Scheme {
+	case "", "pairs":
+	case "parametric":
+		if !hasSigma {
+			add(sp, "the parametric bootstrap draws around the fitted points with the stated uncertainties, so every point needs sx and sy")
+		}
+	default:
+		add(sp, "scheme must be \"pairs\" or \"parametric\", not %q", truncate(b.Scheme))
+	}
+	return errs
+}

@@ -18,7 +18,21 @@ type Fits struct {
 	OLS            *MethodFit `json:"ols,omitempty"`
 	Deming         *MethodFit `json:"deming,omitempty"`
 	WeightedDeming *MethodFit `json:"weighted_deming,omitempty"`
+	PassingBablok  *MethodFit `json:"passing_bablok,omitempty"`
 	York           *MethodFit `json:"york,omitempty"`
+}
+
+// each calls f for every fit present, in order.
+func (fs *Fits) each(f func(name string, m *MethodFit)) {
+	for _, e := range []struct {
+		n string
+		m *MethodFit
+	}{{"ols", fs.OLS}, {"deming", fs.Deming}, {"weighted_deming", fs.WeightedDeming},
+		{"passing_bablok", fs.PassingBablok}, {"york", fs.York}} {
+		if e.m != nil {
+			f(e.n, e.m)
+		}
+	}
 }
 
 // MethodFit is one estimator's line. Method-specific fields are omitted
@@ -43,9 +57,33 @@ type MethodFit struct {
 	Iterations *int     `json:"iterations,omitempty"`
 	Converged  bool     `json:"converged"`
 
+	// Passing–Bablok: the number of pairwise slopes used and the shift K,
+	// the cusum linearity test and Kendall's τ.
+	PairwiseSlopes *int      `json:"pairwise_slopes,omitempty"`
+	Shift          *int      `json:"shift,omitempty"`
+	Cusum          *CusumOut `json:"cusum,omitempty"`
+	KendallTau     *TestOut  `json:"kendall_tau,omitempty"`
+
 	Jackknife *JackknifeOut `json:"jackknife,omitempty"`
 	Bootstrap *BootstrapOut `json:"bootstrap,omitempty"`
 	At        []AtOut       `json:"at,omitempty"`
+}
+
+// CusumOut is Passing & Bablok's cusum linearity test.
+type CusumOut struct {
+	Max    float64 `json:"max_cusum"`
+	Above  int     `json:"above"`
+	Below  int     `json:"below"`
+	KS     float64 `json:"ks_statistic"`
+	PValue float64 `json:"p_value"`
+	Linear bool    `json:"linear"`
+}
+
+// TestOut is a hypothesis test's result.
+type TestOut struct {
+	Statistic float64 `json:"statistic"`
+	PValue    float64 `json:"p_value"`
+	Detail    string  `json:"detail,omitempty"`
 }
 
 // Param is a fitted parameter.

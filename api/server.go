@@ -146,6 +146,7 @@ func NewServer(cfg Config) (*Server, error) {
 	v1 := e.Group("/v1", s.authorize)
 	v1.POST("/fit", s.handleFit)
 	v1.POST("/batch", s.handleBatch)
+	v1.POST("/method-comparison", s.handleCompare)
 	e.GET("/healthz", s.handleHealthz)
 	e.GET("/readyz", s.handleReadyz)
 	e.GET("/openapi.yaml", handleOpenAPI)

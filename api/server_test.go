@@ -171,6 +171,10 @@ func TestEndpoints(t *testing.T) {
 		{"body too large", "POST", "/v1/fit", "application/json", bigBody, 413, "body-too-large", ""},
 		{"too many points", "POST", "/v1/fit", "application/json", manyPoints, 413, "body-too-large", "/points"},
 		{"batch empty", "POST", "/v1/batch", "application/json", `{"datasets":[]}`, 400, "invalid-request", "/datasets"},
+		{"compare json", "POST", "/v1/method-comparison", "application/json", `{"samples":[{"id":"S1","order":1,"x":[5.1,5.2],"y":[5.4,5.3]},{"id":"S2","order":2,"x":[7.0,7.1],"y":[7.5,7.3]},{"id":"S3","order":3,"x":[11.2,11.0],"y":[11.8,11.6]},{"id":"S4","order":4,"x":[3.9,4.0],"y":[4.1,4.2]},{"id":"S5","order":5,"x":[15.3,15.1],"y":[16.0,15.9]},{"id":"S6","order":6,"x":[9.3,9.1],"y":[9.6,9.9]}],"unit":"mmol/L","decision_levels":[7.0,{"level":11.1,"allowable_bias":{"percent":5}}],"allowable_bias":{"absolute":0.3},"exclude":["S6"],"bootstrap":{"resamples":200,"seed":2}}`, 200, "", ""},
+		{"compare csv", "POST", "/v1/method-comparison?decision_levels=7&allowable_percent=5&unit=mmol/L", "text/csv", "id,order,x1,x2,y1,y2\nS1,1,5.1,5.2,5.4,5.3\nS2,2,7.0,7.1,7.5,7.3\nS3,3,11.2,11.0,11.8,11.6\nS4,4,3.9,4.0,4.1,4.2\nS5,5,15.3,15.1,16.0,15.9\n", 200, "", ""},
+		{"compare bad", "POST", "/v1/method-comparison", "application/json", `{"samples":[{"x":[1,"a"],"y":2}]}`, 400, "invalid-request", "/samples/0/x/1"},
+		{"compare csv bad", "POST", "/v1/method-comparison", "text/csv", "id,x1,q\n", 400, "invalid-request", "row 1, column q"},
 		{"healthz", "GET", "/healthz", "", "", 200, "", ""},
 		{"readyz", "GET", "/readyz", "", "", 200, "", ""},
 		{"openapi", "GET", "/openapi.yaml", "", "", 200, "", ""},
@@ -204,7 +208,7 @@ func TestEndpoints(t *testing.T) {
 	rec := h.do("GET", "/metrics", "", "")
 	for _, want := range []string{`eivfit_http_requests_total{code="200",method="POST",route="/v1/fit"}`,
 		`route="/demo/:file"`, `eivfit_problems_total{type="invalid-request"}`, "eivfit_fit_duration_seconds_bucket{method=\"york\"",
-		"eivfit_compute_slots ", "go_goroutines", "process_resident_memory_bytes", "eivfit_resamples_processed_total 1600"} { // 300 resamples × 4 methods + 200 × 2
+		"eivfit_compute_slots ", "go_goroutines", "process_resident_memory_bytes", "eivfit_resamples_processed_total 3200"} { // 300 resamples × 4 methods + 200 × 2 + 200 × 4 methods × 2 analyses (with and without S6)
 		if !strings.Contains(rec.Body.String(), want) {
 			t.Errorf("metrics lack %s", want)
 		}

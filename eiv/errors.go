@@ -97,6 +97,7 @@ const (
 	WarnScatterExceeds     = "scatter_exceeds_uncertainties"
 	WarnJackknifeSkipped   = "jackknife_skipped"
 	WarnBootstrapFailures  = "bootstrap_failures"
+	WarnBootstrapSkipped   = "bootstrap_skipped"
 	WarnFewPoints          = "few_points"
 	WarnPerfectFit         = "perfect_fit"
 	WarnNoUncertaintyInX   = "no_uncertainty_in_x"

@@ -232,3 +232,83 @@ func cusumTest(x, y []float64, a, b float64) CusumResult {
 	res.Linear = res.PValue >= 0.05
 	return res
 }
+
+// PassingBablokEstimator is Passing–Bablok for the resampling engines. Its
+// fitter keeps a buffer for the n(n−1)/2 slopes, so that after the first
+// fit it allocates nothing.
+type PassingBablokEstimator struct{}
+
+func (PassingBablokEstimator) Method() Method { return MethodPassingBablok }
+func (PassingBablokEstimator) NewFitter(n int) LineFitter {
+	return &pbFitter{s: make([]float64, 0, n*(n-1)/2), r: make([]float64, n)}
+}
+
+// TruePoints for Passing–Bablok move each point to the line along the
+// direction of equal error ratio 1 (the method's assumption of errors of
+// equal size in x and y, up to the slope).
+func (PassingBablokEstimator) TruePoints(s Sample, a, b float64, xh, yh []float64) {
+	adjustDeming(s.X, s.Y, a, b, b*b, xh, yh)
+}
+
+type pbFitter struct{ s, r []float64 }
+
+func (f *pbFitter) FitLine(smp Sample) (float64, float64, error) {
+	x, y := smp.X, smp.Y
+	n := len(x)
+	s := f.s[:0]
+	k := 0
+	for i := range n {
+		for j := i + 1; j < n; j++ {
+			dx, dy := x[j]-x[i], y[j]-y[i]
+			if dx == 0 && dy == 0 {
+				continue
+			}
+			sl := math.Inf(1)
+			if dx != 0 {
+				sl = dy / dx
+			}
+			if sl == -1 {
+				continue
+			}
+			if sl < -1 {
+				k++
+			}
+			s = append(s, sl)
+		}
+	}
+	f.s = s
+	N := len(s)
+	if N < 2 {
+		return 0, 0, ErrDegenerate
+	}
+	slices.Sort(s)
+	var b float64
+	if N%2 == 1 {
+		r := (N+1)/2 + k
+		if r > N {
+			return 0, 0, ErrDegenerate
+		}
+		b = s[r-1]
+	} else {
+		r := N/2 + k
+		if r+1 > N {
+			return 0, 0, ErrDegenerate
+		}
+		b = (s[r-1] + s[r]) / 2
+	}
+	if math.IsInf(b, 0) || math.IsNaN(b) {
+		return 0, 0, ErrDegenerate
+	}
+	res := f.r[:n]
+	for i := range n {
+		res[i] = y[i] - b*x[i]
+	}
+	slices.Sort(res)
+	var a float64
+	if n%2 == 1 {
+		a = res[n/2]
+	} else {
+		a = (res[n/2-1] + res[n/2]) / 2
+	}
+	return a, b, nil
+}

@@ -164,3 +164,22 @@ func TestPassingBablokTies(t *testing.T) {
 	near(t, "slope", pb.Fit.Slope.Value, b, 1e-14)
 	near(t, "intercept", pb.Fit.Intercept.Value, a, 1e-14)
 }
+
+// The allocation-free fitter used by the bootstrap gives the same line as
+// PassingBablok.
+func TestPassingBablokEstimatorMatches(t *testing.T) {
+	for _, ties := range []bool{false, true} {
+		x, y := pbData(11, 37, ties)
+		pb, err := eiv.PassingBablok(x, y, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		a, b, err := eiv.PassingBablokEstimator{}.NewFitter(len(x)).FitLine(eiv.Sample{X: x, Y: y})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if a != pb.Fit.Intercept.Value || b != pb.Fit.Slope.Value {
+			t.Errorf("fitter (%v, %v), PassingBablok (%v, %v)", a, b, pb.Fit.Intercept.Value, pb.Fit.Slope.Value)
+		}
+	}
+}

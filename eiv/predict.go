@@ -178,3 +178,34 @@ func JackknifeLines(s Sample, ests []Estimator) ([][]Line, error) {
 	}
 	return out, nil
 }
+
+// JackknifeAt is the jackknife estimate of uncertainty of ŷ(x0) and of the
+// bias D(x0) = ŷ(x0) − x0 from leave-one-out lines (loo[i] the line without
+// point i), with a t interval on n−2 df around the full-sample line.
+func JackknifeAt(full Line, loo []Line, x0, conf float64) Prediction {
+	v := make([]float64, len(loo))
+	for i, l := range loo {
+		v[i] = l.Intercept + l.Slope*x0
+	}
+	se := jackSE1(v)
+	t := tQuantile(conf, len(loo)-2)
+	y := full.Intercept + full.Slope*x0
+	return Prediction{X: x0,
+		Y:    Estimate{Value: y, SE: se, CI: symmetric(y, t*se, conf, "jackknife-t")},
+		Bias: Estimate{Value: y - x0, SE: se, CI: symmetric(y-x0, t*se, conf, "jackknife-t")},
+	}
+}
+
+func jackSE1(v []float64) float64 {
+	n := float64(len(v))
+	var m float64
+	for _, x := range v {
+		m += x
+	}
+	m /= n
+	var ss float64
+	for _, x := range v {
+		ss += (x - m) * (x - m)
+	}
+	return math.Sqrt((n - 1) / n * ss)
+}

@@ -39,6 +39,7 @@ const usage = `eivfit fits straight lines when both x and y carry measurement er
 
 Usage:
   eivfit fit [flags] FILE     fit a CSV file (FILE "-" reads standard input)
+  eivfit compare [flags] FILE run a method-comparison study on a CSV file
   eivfit serve [flags]        run the HTTP service
   eivfit version              print the version
 
@@ -53,6 +54,8 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 	switch args[0] {
 	case "fit":
 		return runFit(ctx, args[1:], stdin, stdout, stderr)
+	case "compare":
+		return runCompare(ctx, args[1:], stdin, stdout, stderr)
 	case "serve":
 		return runServe(ctx, args[1:], stdout, stderr)
 	case "version", "--version", "-version":

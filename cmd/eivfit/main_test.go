@@ -218,3 +218,40 @@ func TestServe(t *testing.T) {
 		t.Fatal("serve did not stop")
 	}
 }
+
+// `eivfit compare` on the synthetic duplicate study flags the invented
+// interference, and prints the caution; the JSON matches the service's.
+func TestCompareCLI(t *testing.T) {
+	out, stderr, err := runCmd(t, "", "compare", "--decision-levels", "3.9,7,11.1", "--allowable-percent", "5",
+		"--unit", "mmol/L", "../../testdata/demo-glucose-duplicates.csv")
+	if err != nil {
+		t.Fatalf("%v: %s", err, stderr)
+	}
+	var resp api.CompareResponse
+	if err := json.Unmarshal([]byte(out), &resp); err != nil {
+		t.Fatal(err)
+	}
+	if resp.N != 80 || !resp.Replicates || len(resp.DecisionLevels) != 3 || resp.Caution != api.Caution {
+		t.Errorf("n %d replicates %v levels %d", resp.N, resp.Replicates, len(resp.DecisionLevels))
+	}
+	flagged := false
+	for _, o := range resp.Diagnostics.Outliers.Flagged {
+		flagged = flagged || o.ID == "D042"
+	}
+	if !flagged {
+		t.Errorf("D042 not flagged: %+v", resp.Diagnostics.Outliers)
+	}
+	body, _ := os.ReadFile("../../testdata/demo-glucose-duplicates.csv")
+	srv, _ := api.NewServer(api.Config{})
+	req := httptest.NewRequest("POST", "/v1/method-comparison?decision_levels=3.9,7,11.1&allowable_percent=5&unit=mmol/L&confidence=0.95", bytes.NewReader(body))
+	req.Header.Set("Content-Type", "text/csv")
+	rec := httptest.NewRecorder()
+	srv.Handler().ServeHTTP(rec, req)
+	if rec.Body.String() != out {
+		t.Error("CLI and service differ")
+	}
+	text, _, err := runCmd(t, "", "compare", "--format", "text", "../../testdata/demo-glucose-duplicates.csv")
+	if err != nil || !strings.Contains(text, "Recommendation:") || !strings.Contains(text, "ISO 15189") {
+		t.Errorf("text output: %v\n%s", err, text)
+	}
+}
