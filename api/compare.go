@@ -128,7 +128,7 @@ type LevelFit struct {
 // DiagnosticsOut checks the assumptions on the residuals of one fit.
 type DiagnosticsOut struct {
 	ResidualsOf  string          `json:"residuals_of"`
-	Scale        string          `json:"scale"` // "absolute" or "relative"
+	Scale        string          `json:"scale"` // "absolute", "relative" or "normalized" (York: in units of the stated SD)
 	Normality    NormalityOut    `json:"normality"`
 	Independence IndependenceOut `json:"independence"`
 	Variance     VarianceOut     `json:"variance"`
@@ -711,6 +711,13 @@ func diagnostics(st *study, f *eiv.Fit, name, model string, cusum *CusumOut, c *
 	}
 	if model == string(eiv.ErrorProportional) {
 		d.Scale = "relative"
+	}
+	if name == "york" && st.sx != nil {
+		// York's residuals in units of their stated SD about the line.
+		for i := range n {
+			e[i] = (st.y[i] - a - b*st.x[i]) / math.Sqrt(st.sy[i]*st.sy[i]+b*b*st.sx[i]*st.sx[i])
+		}
+		d.Scale = "normalized"
 	}
 	var ss float64
 	for _, v := range e {

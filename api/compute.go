@@ -143,6 +143,13 @@ func finishFits(ctx context.Context, s eiv.Sample, fits []*fitted, at []float64,
 		for _, w := range f.fit.Warnings {
 			*warnings = append(*warnings, warning(f.name, w))
 		}
+		f.out.band = func(x0 float64) (float64, float64, bool) {
+			p, ok := f.fit.At(x0), true
+			if f.at != nil {
+				p, ok = f.at(x0)
+			}
+			return p.Y.CI.Lower, p.Y.CI.Upper, ok
+		}
 		for _, x0 := range at {
 			p, ok := f.fit.At(x0), true
 			if f.at != nil {
@@ -186,6 +193,7 @@ func finishFits(ctx context.Context, s eiv.Sample, fits []*fitted, at []float64,
 				return out, nil, problem(f.name, err)
 			}
 			f.out.Bootstrap = bootstrapOut(br, seed)
+			f.out.bootSlopes = br.Replicates(eiv.SlopeOf(0))
 			for _, w := range br.Warnings {
 				*warnings = append(*warnings, warning(f.name, w))
 			}

@@ -127,3 +127,15 @@ func TestDemoFilesMatchTestdata(t *testing.T) {
 		}
 	}
 }
+
+// newTCPServer serves h on a loopback port for the length of the test.
+func newTCPServer(t *testing.T, h http.Handler) string {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	srv := &http.Server{Handler: h, ReadHeaderTimeout: 5 * time.Second}
+	go srv.Serve(ln)
+	t.Cleanup(func() { srv.Close() })
+	return "http://" + ln.Addr().String()
+}

@@ -67,6 +67,10 @@ type MethodFit struct {
 	Jackknife *JackknifeOut `json:"jackknife,omitempty"`
 	Bootstrap *BootstrapOut `json:"bootstrap,omitempty"`
 	At        []AtOut       `json:"at,omitempty"`
+
+	// For the plots and the report, not sent.
+	bootSlopes []float64                                  // bootstrap replicate slopes
+	band       func(x0 float64) (lo, hi float64, ok bool) // pointwise confidence band
 }
 
 // CusumOut is Passing & Bablok's cusum linearity test.

@@ -147,6 +147,9 @@ func NewServer(cfg Config) (*Server, error) {
 	v1.POST("/fit", s.handleFit)
 	v1.POST("/batch", s.handleBatch)
 	v1.POST("/method-comparison", s.handleCompare)
+	v1.POST("/plots/:kind", s.handlePlot)
+	e.GET("/", s.handleIndex)
+	e.POST("/report", s.handleFormReport)
 	e.GET("/healthz", s.handleHealthz)
 	e.GET("/readyz", s.handleReadyz)
 	e.GET("/openapi.yaml", handleOpenAPI)
@@ -367,6 +370,7 @@ func (s *Server) handleFit(c *gin.Context) {
 		s.problem(c, p)
 		return
 	}
+	body, sum := hashingBody(body)
 	var req *FitRequest
 	var err error
 	if kind == "csv" {
@@ -381,28 +385,27 @@ func (s *Server) handleFit(c *gin.Context) {
 		}
 		req, err = DecodeFitJSON(body)
 	}
+	if err == nil {
+		err = req.Validate(s.cfg.Limits)
+	}
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	if err := req.Validate(s.cfg.Limits); err != nil {
-		s.problem(c, s.toProblem(c, err))
-		return
-	}
-	release, p := s.acquire(c.Request.Context())
-	if p != nil {
-		s.problem(c, p)
-		return
-	}
-	defer release()
-	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
-	defer cancel()
-	resp, err := Fit(ctx, req, s.settings(0))
+	resp, err := s.computeFit(c, req)
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	s.metrics.points.Add(float64(resp.N))
+	if wantsHTML(c) {
+		page, err := FitReport(resp, &req.Points, hexSum(sum), s.cfg.Version)
+		if err != nil {
+			s.problem(c, s.toProblem(c, err))
+			return
+		}
+		s.writeHTML(c, http.StatusOK, page.Write)
+		return
+	}
 	s.writeJSON(c, http.StatusOK, resp)
 }
 

@@ -33,6 +33,7 @@ func (s *Server) handleCompare(c *gin.Context) {
 		s.problem(c, p)
 		return
 	}
+	body, sum := hashingBody(body)
 	var req *CompareRequest
 	var err error
 	if kind == "csv" {
@@ -53,19 +54,19 @@ func (s *Server) handleCompare(c *gin.Context) {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	release, p := s.acquire(c.Request.Context())
-	if p != nil {
-		s.problem(c, p)
-		return
-	}
-	defer release()
-	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
-	defer cancel()
-	resp, err := Compare(ctx, req, s.settings(0))
+	resp, err := s.computeCompare(c, req)
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	s.metrics.points.Add(float64(resp.N))
+	if wantsHTML(c) {
+		page, err := CompareReport(resp, req, hexSum(sum), s.cfg.Version)
+		if err != nil {
+			s.problem(c, s.toProblem(c, err))
+			return
+		}
+		s.writeHTML(c, http.StatusOK, page.Write)
+		return
+	}
 	s.writeJSON(c, http.StatusOK, resp)
 }

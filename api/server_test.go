@@ -34,10 +34,13 @@ func spec(t *testing.T) (*openapi3.T, routers.Router) {
 	specOnce.Do(func() {
 		// The CSV bodies carry '#' comment lines, which the library's own
 		// text/csv decoder (a strict CSV reader) rejects; take them as text.
-		openapi3filter.RegisterBodyDecoder("text/csv", func(r io.Reader, _ http.Header, _ *openapi3.SchemaRef, _ openapi3filter.EncodingFn) (any, error) {
+		text := func(r io.Reader, _ http.Header, _ *openapi3.SchemaRef, _ openapi3filter.EncodingFn) (any, error) {
 			b, err := io.ReadAll(r)
 			return string(b), err
-		})
+		}
+		for _, ct := range []string{"text/csv", "text/html", "image/svg+xml"} {
+			openapi3filter.RegisterBodyDecoder(ct, text)
+		}
 		loader := openapi3.NewLoader()
 		specDoc, specErr = loader.LoadFromData(openapi.Spec)
 		if specErr != nil {

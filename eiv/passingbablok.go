@@ -190,6 +190,10 @@ func median(v []float64) float64 {
 	return (s[n/2-1] + s[n/2]) / 2
 }
 
+// CusumLinearity runs Passing & Bablok's cusum linearity test for any line
+// (a, b) fitted to (x, y).
+func CusumLinearity(x, y []float64, a, b float64) CusumResult { return cusumTest(x, y, a, b) }
+
 // cusumTest scores each point +√(L/l) above the line and −√(l/L) below it
 // (0 on it), orders the points by their position along the line
 // D_i = (y_i + x_i/b − a)/√(1 + 1/b²), and takes the largest |cusum|.

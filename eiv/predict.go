@@ -137,7 +137,7 @@ func (c *OLSComparison) sentence(conf float64) string {
 		s += fmt.Sprintf("; at x = %g its bias estimate is off by %+.3g", c.At[0].X, c.At[0].Difference)
 	}
 	if c.HasReliability {
-		s += fmt.Sprintf("; the reliability ratio κ = %.3g predicts an OLS slope of %.4g", c.Reliability, c.PredictedOLSSlope)
+		s += fmt.Sprintf("; the reliability ratio κ = %.4g predicts an OLS slope of %.4g", c.Reliability, c.PredictedOLSSlope)
 	}
 	return s + "."
 }

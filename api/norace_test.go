@@ -1,0 +1,4 @@
+package api
+
+// raceEnabled is set under the race detector, where the browser test is skipped.
+var raceEnabled bool
