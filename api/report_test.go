@@ -101,7 +101,7 @@ func TestHTMLReports(t *testing.T) {
 	h := newHarness(t, Config{Version: "9.9.9"})
 	for _, c := range []struct {
 		name, target, file string
-		want           []string
+		want               []string
 	}{
 		{"fit", "/v1/fit?at=500&resamples=400&seed=77", "../testdata/demo-gas-sensor.csv",
 			[]string{"Straight-line fit", "0.84465", "How far OLS would have been off", "Checks of the assumptions", "Decision levels"}},
