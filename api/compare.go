@@ -471,7 +471,7 @@ func (req *CompareRequest) analyse(ctx context.Context, st *study, set Settings)
 		return nil, fail("ols", err)
 	}
 	add("ols", olsF, eiv.OLSEstimator{}, "")
-	dem, err := eiv.Deming(st.x, st.y, &eiv.DemingOptions{Options: opt, Lambda: em.lambdaConst})
+	dem, err := eiv.Deming(st.x, st.y, &eiv.DemingOptions{Options: opt, Lambda: em.lambdaConst, Jackknife: true})
 	if err != nil {
 		return nil, fail("deming", err)
 	}

@@ -311,7 +311,7 @@ func fitOne(m string, req *FitRequest, conf float64, set Settings) (*eiv.Fit, ei
 			}
 			lsrc = "uncertainties"
 		}
-		o := &eiv.DemingOptions{Options: opt, Lambda: lambda}
+		o := &eiv.DemingOptions{Options: opt, Lambda: lambda, Jackknife: true}
 		if m == "deming" {
 			f, err := eiv.Deming(d.X, d.Y, o)
 			if err != nil {

@@ -66,7 +66,7 @@ func coverage(rg regime, n, reps, B int, seed uint64) coverageRow {
 			}
 		}
 		lam, _ := eiv.LambdaFromUncertainties(s.SX, s.SY)
-		if f, err := eiv.Deming(s.X, s.Y, &eiv.DemingOptions{Lambda: lam}); err == nil {
+		if f, err := eiv.Deming(s.X, s.Y, &eiv.DemingOptions{Lambda: lam, Jackknife: true}); err == nil {
 			row.demN++
 			if in(f.Jackknife.Slope.CI) {
 				hd++

@@ -18,6 +18,10 @@ type DemingOptions struct {
 	MaxIter int
 	// Tol is the relative slope change at which WeightedDeming stops. Zero means 1e-12.
 	Tol float64
+	// Jackknife, when set, adds Deming's leave-one-out standard errors
+	// (Fit.Jackknife; O(n) by downdating). WeightedDeming always computes
+	// its jackknife, which is its standard error.
+	Jackknife bool
 	// JackknifeMaxN is the largest n for which WeightedDeming refits every
 	// leave-one-out sample; above it the weights are held at their
 	// full-sample values (an O(n) approximation, flagged by a warning).
@@ -99,17 +103,18 @@ func RelativeLambdaFromUncertainties(x, y, sx, sy []float64) (float64, error) {
 //	a = ȳ − b·x̄
 //
 // λ = 1 is orthogonal regression. Standard errors are Fuller's (1987,
-// Theorem 1.3.1) large-sample ones; Fit.Jackknife holds the leave-one-out
-// standard errors and intervals (Linnet 1990). Intervals use t with n−2 df.
+// Theorem 1.3.1) large-sample ones; with Jackknife set, Fit.Jackknife holds
+// the leave-one-out standard errors and intervals (Linnet 1990). Intervals
+// use t with n−2 df. The moments come from one pass over the data.
 func Deming(x, y []float64, opt *DemingOptions) (*Fit, error) {
 	conf, lambda, assumed, err := opt.resolve()
 	if err != nil {
 		return nil, err
 	}
-	if err := checkXY(x, y); err != nil {
+	m, err := checkedMoments(x, y)
+	if err != nil {
 		return nil, err
 	}
-	m := centredMoments(x, y)
 	if m.sxy == 0 {
 		return nil, fmt.Errorf("%w: x and y are uncorrelated, so the Deming slope is undefined", ErrDegenerate)
 	}
@@ -124,11 +129,9 @@ func Deming(x, y []float64, opt *DemingOptions) (*Fit, error) {
 	// defined at b = 0):
 	//	V(b) = [σ_xx·σ_vv + σ_uu·σ_vv − σ_uv²] / ((n−1)·σ_xx²)
 	//	V(a) = σ_vv/n + x̄²·V(b)
-	var ssr float64
-	for i := range x {
-		e := y[i] - m.my - b*(x[i]-m.mx)
-		ssr += e * e
-	}
+	// Σ(y − ȳ − b(x − x̄))² from the moments; its rounding error relative
+	// to s_yy is ε, which matters only for a near-perfect line.
+	ssr := math.Max(0, m.syy-2*b*m.sxy+b*b*m.sxx)
 	svv := ssr / float64(df)
 	suu := svv / (lambda + b*b)
 	suv := -b * suu
@@ -154,11 +157,13 @@ func Deming(x, y []float64, opt *DemingOptions) (*Fit, error) {
 	if !allFinite(a, b, varA, varB) {
 		return nil, fmt.Errorf("%w: the values overflow double precision", ErrDegenerate)
 	}
-	f.Jackknife = demingJackknife(x, y, m, lambda, a, b, t, conf)
+	if opt != nil && opt.Jackknife {
+		f.Jackknife = demingJackknife(x, y, m, lambda, a, b, t, conf)
+	}
 	if assumed {
 		f.Warnings = append(f.Warnings, lambdaAssumed(MethodDeming))
 	}
-	if ssr == 0 {
+	if ssr <= 1e-15*m.syy {
 		f.Warnings = append(f.Warnings, &Warning{Code: WarnPerfectFit,
 			Message: "the points lie exactly on a line: standard errors are zero"})
 	}

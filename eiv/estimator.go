@@ -47,7 +47,7 @@ func (OLSEstimator) TruePoints(s Sample, a, b float64, xh, yh []float64) {
 type olsFitter struct{}
 
 func (olsFitter) FitLine(s Sample) (float64, float64, error) {
-	m := centredMoments(s.X, s.Y)
+	m := shiftedMoments(s.X, s.Y)
 	if !(m.sxx > 0) {
 		return 0, 0, ErrConstantX
 	}
@@ -78,7 +78,7 @@ func adjustDeming(x, y []float64, a, b, lambda float64, xh, yh []float64) {
 type demingFitter struct{ lambda float64 }
 
 func (f demingFitter) FitLine(s Sample) (float64, float64, error) {
-	m := centredMoments(s.X, s.Y)
+	m := shiftedMoments(s.X, s.Y)
 	if !(m.sxx > 0) {
 		return 0, 0, ErrConstantX
 	}
@@ -152,10 +152,9 @@ func (e YorkEstimator) TruePoints(s Sample, a, b float64, xh, yh []float64) {
 
 type yorkFitter struct{ yk *york }
 
+// FitLine needs no separate check for constant x: the starting slope is
+// then not finite and the iteration reports ErrDegenerate.
 func (f yorkFitter) FitLine(s Sample) (float64, float64, error) {
-	if !(centredMoments(s.X, s.Y).sxx > 0) {
-		return 0, 0, ErrConstantX
-	}
 	a, b, _, err := f.yk.slopeLine(s.X, s.Y, s.SX, s.SY, s.R, math.NaN())
 	return a, b, err
 }

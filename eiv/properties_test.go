@@ -235,7 +235,7 @@ func TestDemingLargeLambdaIsOLS(t *testing.T) {
 // leave-one-out sample (brute force, in the test).
 func TestDemingJackknifeMatchesRefits(t *testing.T) {
 	d := randomData(3, 25, false)
-	f := must(t)(eiv.Deming(d.x, d.y, &eiv.DemingOptions{Lambda: 2}))
+	f := must(t)(eiv.Deming(d.x, d.y, &eiv.DemingOptions{Lambda: 2, Jackknife: true}))
 	n := len(d.x)
 	var bs, as []float64
 	for i := range n {

@@ -136,22 +136,41 @@ func checkYork(x, y, sx, sy, r []float64) error {
 	if sx == nil || sy == nil {
 		return &OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties of x and y"}
 	}
-	if err := checkSigma(sx, n, "sx"); err != nil {
-		return err
+	if len(sx) != n || len(sy) != n {
+		return ErrLengthMismatch
 	}
-	if err := checkSigma(sy, n, "sy"); err != nil {
-		return err
-	}
-	if err := checkCorrelation(r, n); err != nil {
-		return err
-	}
+	var mx, my float64
 	for i := range n {
-		if sx[i] == 0 && sy[i] == 0 {
+		a, b := sx[i], sy[i]
+		if !(a-a == 0 && a >= 0 && b-b == 0 && b >= 0) || (a == 0 && b == 0) {
+			if err := checkSigma(sx[i:i+1], 1, "sx"); err != nil {
+				return pointAt(err, i)
+			}
+			if err := checkSigma(sy[i:i+1], 1, "sy"); err != nil {
+				return pointAt(err, i)
+			}
 			return &PointError{Index: i, Field: "sy", Err: fmt.Errorf(
 				"%w: sx and sy are both zero, which would give the point infinite weight", ErrInvalidUncertainty)}
 		}
+		if a > mx {
+			mx = a
+		}
+		if b > my {
+			my = b
+		}
 	}
-	return nil
+	if outOfRange(mx) || outOfRange(my) {
+		return ErrMagnitude
+	}
+	return checkCorrelation(r, n)
+}
+
+// pointAt moves a *PointError found on a one-element slice to index i.
+func pointAt(err error, i int) error {
+	if pe, ok := err.(*PointError); ok {
+		pe.Index = i
+	}
+	return err
 }
 
 // york holds the settings and scratch of the York iteration.
@@ -167,7 +186,7 @@ type yorkResult struct {
 }
 
 func newYork(opt *YorkOptions, n int) *york {
-	yk := &york{tol: 1e-15, maxIter: 1000, w: make([]float64, n)}
+	yk := &york{tol: 1e-15, maxIter: 1000}
 	if opt.Tol > 0 {
 		yk.tol = opt.Tol
 	}
@@ -193,6 +212,9 @@ func origin(x, y []float64) (x0, y0 float64) {
 // weights fills w with York's W_i for slope b and returns ΣW and the
 // weighted means X̄, Ȳ of the data relative to (x0, y0).
 func (yk *york) weights(x, y, sx, sy, r []float64, x0, y0, b float64) (sw, mx, my float64, err error) {
+	if cap(yk.w) < len(x) {
+		yk.w = make([]float64, len(x))
+	}
 	w := yk.w[:len(x)]
 	var swx, swy float64
 	for i := range x {
@@ -217,88 +239,213 @@ func (yk *york) weights(x, y, sx, sy, r []float64, x0, y0, b float64) (sw, mx, m
 // slopeLine returns only (a, b) and the iteration count; the hot path of
 // the jackknife and bootstrap. b0, when not NaN, is the starting slope.
 //
+// Each iteration is one pass over the data. With the points taken relative
+// to the previous iteration's weighted centroid c (X′ = X − c_x, Y′ = Y − c_y)
+// and δ = ΣW·X′/ΣW (and likewise for y) the small remaining shift,
+// York's β_i = W_i(α_i·U_i + γ_i·V_i) with α = σy² − b·ρ, γ = b·σx² − ρ,
+// ρ = r·σx·σy, U = X′ − δx, V = Y′ − δy, so that
+//
+//	ΣWβV = ΣW²α(X′Y′) − δy·ΣW²αX′ − δx·ΣW²αY′ + δxδy·ΣW²α + ΣW²γY′² − 2δy·ΣW²γY′ + δy²·ΣW²γ
+//
+// and likewise ΣWβU: thirteen sums gathered in one pass. As the iteration
+// converges, c tends to the centroid and δ to zero, so the corrections
+// cost no precision.
+//
 // The iteration stops when the relative slope change is at most Tol, or
 // when it has reached the rounding floor of the data: the change is below
 // 1e-12 and no longer shrinking, or the iterates cycle. Otherwise it stops
 // at MaxIter with a *ConvergenceError.
 func (yk *york) slopeLine(x, y, sx, sy, r []float64, b0 float64) (a, b float64, iter int, err error) {
-	x0, y0 := origin(x, y)
-	b = b0
-	if math.IsNaN(b) {
-		m := centredMoments(x, y)
-		b = m.sxy / m.sxx
+	a, b, _, _, iter, err = yk.iterate(x, y, sx, sy, r, b0)
+	return
+}
+
+// yorkStart returns the unweighted means and a starting slope: Deming's
+// with λ = Σσy²/Σσx² (OLS when every σx is 0), from one pass.
+func yorkStart(x, y, sx, sy []float64) (cx, cy, b float64) {
+	n := len(x)
+	y, sx, sy = y[:n], sx[:n], sy[:n]
+	x0, y0 := x[0], y[0]
+	var s1, s2, sxx, syy, sxy, vx, vy float64
+	for i := range n {
+		dx, dy := x[i]-x0, y[i]-y0
+		s1 += dx
+		s2 += dy
+		sxx += dx * dx
+		syy += dy * dy
+		sxy += dx * dy
+		vx += sx[i] * sx[i]
+		vy += sy[i] * sy[i]
+	}
+	fn := float64(n)
+	mx, my := s1/fn, s2/fn
+	sxx, syy, sxy = sxx-s1*mx, syy-s2*my, sxy-s1*my
+	lambda := math.Inf(1)
+	if vx > 0 {
+		lambda = vy / vx
+	}
+	b = sxy / sxx
+	if sxy != 0 && lambda > 0 {
+		b = demingSlope(sxx, syy, sxy, lambda)
+	}
+	if !allFinite(b) {
+		b = sxy / sxx
+	}
+	return x0 + mx, y0 + my, b
+}
+
+// iterate runs the York iteration and returns the line with the weighted
+// centroid (cx, cy) of its last pass.
+func (yk *york) iterate(x, y, sx, sy, r []float64, b0 float64) (a, b, cx, cy float64, iter int, err error) {
+	cx, cy, b = yorkStart(x, y, sx, sy)
+	if !math.IsNaN(b0) {
+		b = b0
+	}
+	if !allFinite(b) {
+		return 0, 0, 0, 0, 0, fmt.Errorf("%w: no starting slope (x is constant)", ErrDegenerate)
 	}
 	prev2 := math.NaN()
 	change, prevChange := math.Inf(1), math.Inf(1)
 	for iter = 1; iter <= yk.maxIter; iter++ {
-		_, mx, my, err := yk.weights(x, y, sx, sy, r, x0, y0, b)
+		var s yorkSums
+		if r == nil {
+			s, err = yorkPass(x, y, sx, sy, cx, cy, b)
+		} else {
+			s, err = yorkPassR(x, y, sx, sy, r, cx, cy, b)
+		}
 		if err != nil {
-			return 0, 0, iter, err
+			return 0, 0, 0, 0, iter, err
 		}
-		w := yk.w[:len(x)]
-		var num, den float64
-		for i := range x {
-			u, v := x[i]-x0-mx, y[i]-y0-my
-			vx, vy := sx[i]*sx[i], sy[i]*sy[i]
-			beta := u*vy + b*v*vx
-			if r != nil {
-				beta -= (b*u + v) * r[i] * sx[i] * sy[i]
-			}
-			beta *= w[i]
-			num += w[i] * beta * v
-			den += w[i] * beta * u
-		}
+		dx, dy := s.wx/s.w, s.wy/s.w
+		num := s.num - dy*s.aX - dx*s.aY + dx*dy*s.a - 2*dy*s.gY + dy*dy*s.g
+		den := s.den - 2*dx*s.aX + dx*dx*s.a - dy*s.gX - dx*s.gY + dx*dy*s.g
 		nb := num / den
 		if !allFinite(nb) {
-			return 0, 0, iter, fmt.Errorf("%w: the York iteration left the finite range", ErrDegenerate)
+			return 0, 0, 0, 0, iter, fmt.Errorf("%w: the York iteration left the finite range", ErrDegenerate)
 		}
+		cx, cy = cx+dx, cy+dy // the weighted centroid for slope b
 		change = math.Abs(nb - b)
 		if nb != 0 {
 			change /= math.Abs(nb)
 		}
 		if change <= yk.tol || nb == prev2 || (change < 1e-12 && change >= prevChange) {
-			return (y0 + my) - nb*(x0+mx), nb, iter, nil
+			return cy - nb*cx, nb, cx, cy, iter, nil
 		}
 		prev2, b, prevChange = b, nb, change
 	}
-	return 0, 0, yk.maxIter, &ConvergenceError{Method: MethodYork, Iterations: yk.maxIter, Change: change}
+	return 0, 0, 0, 0, yk.maxIter, &ConvergenceError{Method: MethodYork, Iterations: yk.maxIter, Change: change}
 }
 
-// fit iterates to convergence and evaluates the standard errors and S.
+// yorkSums are the sums of one York pass (see slopeLine).
+type yorkSums struct {
+	w, wx, wy float64
+	num, den  float64 // ΣW²(αX′Y′ + γY′²), ΣW²(αX′² + γX′Y′)
+	a, aX, aY float64 // ΣW²α, ΣW²αX′, ΣW²αY′
+	g, gX, gY float64 // ΣW²γ, ΣW²γX′, ΣW²γY′
+}
+
+// yorkPass gathers the sums for uncorrelated errors (ρ = 0: α = σy², γ = b·σx²).
+func yorkPass(x, y, sx, sy []float64, cx, cy, b float64) (s yorkSums, err error) {
+	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)] // one bounds check here, none in the loop
+	b2 := b * b
+	for i := range x {
+		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
+		d := vy + b2*vx
+		if !(d > 0) {
+			return s, &PointError{Index: i, Field: "sy", Err: fmt.Errorf(
+				"%w: the point's combined variance about the line is zero", ErrDegenerate)}
+		}
+		w := 1 / d
+		xp, yp := x[i]-cx, y[i]-cy
+		w2 := w * w
+		al, ga := w2*vy, w2*b*vx
+		t := xp * yp
+		s.w += w
+		s.wx += w * xp
+		s.wy += w * yp
+		s.num += al*t + ga*yp*yp
+		s.den += al*xp*xp + ga*t
+		s.a += al
+		s.aX += al * xp
+		s.aY += al * yp
+		s.g += ga
+		s.gX += ga * xp
+		s.gY += ga * yp
+	}
+	return s, nil
+}
+
+// yorkPassR gathers the sums for correlated errors.
+func yorkPassR(x, y, sx, sy, r []float64, cx, cy, b float64) (s yorkSums, err error) {
+	y, sx, sy, r = y[:len(x)], sx[:len(x)], sy[:len(x)], r[:len(x)]
+	b2 := b * b
+	for i := range x {
+		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
+		rho := r[i] * sx[i] * sy[i]
+		d := vy + b2*vx - 2*b*rho
+		if !(d > 0) {
+			return s, &PointError{Index: i, Field: "sy", Err: fmt.Errorf(
+				"%w: the point's combined variance about the line is zero", ErrDegenerate)}
+		}
+		w := 1 / d
+		xp, yp := x[i]-cx, y[i]-cy
+		w2 := w * w
+		al, ga := w2*(vy-b*rho), w2*(b*vx-rho)
+		t := xp * yp
+		s.w += w
+		s.wx += w * xp
+		s.wy += w * yp
+		s.num += al*t + ga*yp*yp
+		s.den += al*xp*xp + ga*t
+		s.a += al
+		s.aX += al * xp
+		s.aY += al * yp
+		s.g += ga
+		s.gX += ga * xp
+		s.gY += ga * yp
+	}
+	return s, nil
+}
+
+// fit iterates to convergence and evaluates, in one more pass, the
+// standard errors and S. Relative to the converged centroid c (U = X − c_x,
+// V = Y − c_y, with weighted means δu, δv that are zero up to rounding):
+//
+//	S = ΣW(V − bU)² − ΣW·(δv − b·δu)²
+//	Σ W(x_adj − x̄_adj)² = ΣWβ² − (ΣWβ)²/ΣW,  x̄_adj = c_x + δu + ΣWβ/ΣW
 func (yk *york) fit(x, y, sx, sy, r []float64, b0 float64) (yorkResult, error) {
-	_, b, iter, err := yk.slopeLine(x, y, sx, sy, r, b0)
+	_, b, cx, cy, iter, err := yk.iterate(x, y, sx, sy, r, b0)
 	if err != nil {
 		return yorkResult{}, err
 	}
-	x0, y0 := origin(x, y)
-	sw, mx, my, err := yk.weights(x, y, sx, sy, r, x0, y0, b)
-	if err != nil {
-		return yorkResult{}, err
-	}
-	w := yk.w[:len(x)]
-	// Adjusted points x_i = X̄ + β_i (relative to x0); their weighted mean,
-	// spread, and S.
-	var swb, s float64
+	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
+	var sw, su, sv, sb, sbb, sr float64
 	for i := range x {
-		u, v := x[i]-x0-mx, y[i]-y0-my
-		beta := yorkBeta(u, v, b, sx[i], sy[i], rAt(r, i)) * w[i]
-		swb += w[i] * beta
+		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
+		rho := 0.0
+		if r != nil {
+			rho = r[i] * sx[i] * sy[i]
+		}
+		w := 1 / (vy + b*b*vx - 2*b*rho)
+		u, v := x[i]-cx, y[i]-cy
+		beta := w * (u*(vy-b*rho) + v*(b*vx-rho))
 		e := v - b*u
-		s += w[i] * e * e
+		sw += w
+		su += w * u
+		sv += w * v
+		sb += w * beta
+		sbb += w * beta * beta
+		sr += w * e * e
 	}
-	xbar := mx + swb/sw // relative to x0
-	var swuu float64
-	for i := range x {
-		u, v := x[i]-x0-mx, y[i]-y0-my
-		beta := yorkBeta(u, v, b, sx[i], sy[i], rAt(r, i)) * w[i]
-		d := mx + beta - xbar
-		swuu += w[i] * d * d
-	}
-	xbar += x0
+	du, dv := su/sw, sv/sw
+	mx, my := cx+du, cy+dv
+	s := sr - sw*(dv-b*du)*(dv-b*du)
+	xbar := mx + sb/sw
+	swuu := sbb - sb*sb/sw
 	varB := 1 / swuu
 	varA := 1/sw + xbar*xbar*varB
-	return yorkResult{a: (y0 + my) - b*(x0+mx), b: b, seA: math.Sqrt(varA), seB: math.Sqrt(varB),
-		cov: -xbar * varB, s: s, iter: iter}, nil
+	return yorkResult{a: my - b*mx, b: b, seA: math.Sqrt(varA), seB: math.Sqrt(varB),
+		cov: -xbar * varB, s: math.Max(s, 0), iter: iter}, nil
 }
 
 func yorkBeta(u, v, b, sx, sy, r float64) float64 {
