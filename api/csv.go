@@ -25,6 +25,19 @@ var csvColumns = []string{"x", "y", "sx", "sy", "r", "id", "order"}
 // DecodeCSV reads a dataset from CSV. Errors are *Problem values whose
 // pointers read "row N, column C".
 func DecodeCSV(r io.Reader) (*Dataset, error) {
+	body, err := readBody(r)
+	if err != nil {
+		return nil, err
+	}
+	body = bytes.TrimPrefix(body, []byte("\xef\xbb\xbf"))
+	if bytes.IndexByte(body, '"') < 0 {
+		return decodeCSVPlain(body)
+	}
+	return decodeCSVReader(bytes.NewReader(body))
+}
+
+// decodeCSVReader is the general path, through encoding/csv (quoted fields).
+func decodeCSVReader(r io.Reader) (*Dataset, error) {
 	br := bufio.NewReaderSize(r, 64<<10)
 	if b, err := br.Peek(3); err == nil && bytes.Equal(b, []byte("\xef\xbb\xbf")) {
 		_, _ = br.Discard(3)
@@ -42,38 +55,66 @@ func DecodeCSV(r io.Reader) (*Dataset, error) {
 		return nil, csvReadError(err)
 	}
 	line, _ := cr.FieldPos(0)
-	cols := make([]int, len(header)) // column index -> field id
+	cols, seen, err := csvHeader(header, line)
+	if err != nil {
+		return nil, err
+	}
+	d := newCSVDataset(seen, 0)
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			return nil, csvReadError(err)
+		}
+		row, _ := cr.FieldPos(0)
+		if err := d.addRecord(rec, cols, row); err != nil {
+			return nil, err
+		}
+	}
+	return d.finishCSV()
+}
+
+// csvHeader maps header fields to column ids (indices into csvColumns).
+func csvHeader(header []string, line int) ([]int, [7]bool, error) {
+	cols := make([]int, len(header))
 	var seen [7]bool
 	for j, h := range header {
 		if !utf8.ValidString(h) {
-			return nil, invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
+			return nil, seen, invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
 		}
 		name := strings.ToLower(strings.TrimSpace(h))
 		k := indexOf(csvColumns, name)
 		if k < 0 {
 			if len(header) == 1 && strings.Contains(h, ";") {
-				return nil, invalid(fmt.Sprintf("row %d", line),
+				return nil, seen, invalid(fmt.Sprintf("row %d", line),
 					"the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
 			}
 			if _, perr := strconv.ParseFloat(name, 64); perr == nil {
-				return nil, invalid(fmt.Sprintf("row %d", line),
+				return nil, seen, invalid(fmt.Sprintf("row %d", line),
 					"the first row must be a header naming the columns, e.g. x,y,sx,sy")
 			}
-			return nil, invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
+			return nil, seen, invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
 				"unknown column %q (known: x, y, sx, sy, r, id, order)", truncate(h)))
 		}
 		if seen[k] {
-			return nil, invalid(fmt.Sprintf("row %d, column %s", line, name), fmt.Sprintf("column %q appears twice", name))
+			return nil, seen, invalid(fmt.Sprintf("row %d, column %s", line, name), fmt.Sprintf("column %q appears twice", name))
 		}
 		seen[k] = true
 		cols[j] = k
 	}
 	if !seen[0] || !seen[1] {
-		return nil, invalid(fmt.Sprintf("row %d", line), "the header must name columns x and y")
+		return nil, seen, invalid(fmt.Sprintf("row %d", line), "the header must name columns x and y")
 	}
-	d := &Dataset{csv: true}
+	return cols, seen, nil
+}
+
+// newCSVDataset makes the columns the header names, with room for n rows.
+func newCSVDataset(seen [7]bool, n int) *Dataset {
+	d := &Dataset{csv: true, X: make([]float64, 0, n), Y: make([]float64, 0, n), rows: make([]int, 0, n)}
 	if seen[2] {
-		d.SX = []float64{}
+		d.SX = make([]float64, 0, n)
 	}
 	if seen[3] {
 		d.SY = []float64{}
@@ -85,51 +126,131 @@ func DecodeCSV(r io.Reader) (*Dataset, error) {
 		d.ID = []string{}
 	}
 	if seen[6] {
-		d.Order = []float64{}
+		d.Order = make([]float64, 0, n)
 	}
-	for {
-		rec, err := cr.Read()
-		if err == io.EOF {
-			break
+	if seen[5] {
+		d.ID = make([]string, 0, n)
+	}
+	return d
+}
+
+// addRecord appends one CSV record.
+func (d *Dataset) addRecord(rec []string, cols []int, row int) error {
+	for j, f := range rec {
+		k := cols[j]
+		if k == 5 {
+			if !utf8.ValidString(f) {
+				return invalid(fmt.Sprintf("row %d, column id", row), "the id is not valid UTF-8 text")
+			}
+			d.ID = append(d.ID, strings.Clone(f))
+			continue
 		}
+		v, err := parseCell(f)
 		if err != nil {
-			return nil, csvReadError(err)
+			return invalid(fmt.Sprintf("row %d, column %s", row, csvColumns[k]), err.Error())
 		}
-		row, _ := cr.FieldPos(0)
-		for j, f := range rec {
-			k := cols[j]
-			if k == 5 {
-				if !utf8.ValidString(f) {
-					return nil, invalid(fmt.Sprintf("row %d, column id", row), "the id is not valid UTF-8 text")
-				}
-				d.ID = append(d.ID, f)
-				continue
-			}
-			v, err := parseCell(f)
-			if err != nil {
-				return nil, invalid(fmt.Sprintf("row %d, column %s", row, csvColumns[k]), err.Error())
-			}
-			switch k {
-			case 0:
-				d.X = append(d.X, v)
-			case 1:
-				d.Y = append(d.Y, v)
-			case 2:
-				d.SX = append(d.SX, v)
-			case 3:
-				d.SY = append(d.SY, v)
-			case 4:
-				d.R = append(d.R, v)
-			case 6:
-				d.Order = append(d.Order, v)
-			}
-		}
-		d.rows = append(d.rows, row)
+		d.put(k, v)
 	}
+	d.rows = append(d.rows, row)
+	return nil
+}
+
+func (d *Dataset) put(k int, v float64) {
+	switch k {
+	case 0:
+		d.X = append(d.X, v)
+	case 1:
+		d.Y = append(d.Y, v)
+	case 2:
+		d.SX = append(d.SX, v)
+	case 3:
+		d.SY = append(d.SY, v)
+	case 4:
+		d.R = append(d.R, v)
+	case 6:
+		d.Order = append(d.Order, v)
+	}
+}
+
+func (d *Dataset) finishCSV() (*Dataset, error) {
 	if d.R != nil && (d.SX == nil || d.SY == nil) {
 		return nil, invalid("row 1, column r", "r (error correlation) needs columns sx and sy")
 	}
 	return d, nil
+}
+
+// decodeCSVPlain is the fast path for CSV without quotes: one scan of the
+// body, numbers parsed in place, the columns sized once from the line count.
+func decodeCSVPlain(body []byte) (*Dataset, error) {
+	var d *Dataset
+	var cols []int
+	line := 0
+	var fields [][]byte
+	var strs []string
+	for len(body) > 0 {
+		line++
+		var l []byte
+		if i := bytes.IndexByte(body, '\n'); i >= 0 {
+			l, body = body[:i], body[i+1:]
+		} else {
+			l, body = body, nil
+		}
+		l = bytes.TrimSuffix(l, []byte{'\r'})
+		if len(l) == 0 || l[0] == '#' {
+			continue
+		}
+		fields = fields[:0]
+		for {
+			i := bytes.IndexByte(l, ',')
+			if i < 0 {
+				fields = append(fields, l)
+				break
+			}
+			fields = append(fields, l[:i])
+			l = l[i+1:]
+		}
+		if d == nil {
+			strs = strs[:0]
+			for _, f := range fields {
+				strs = append(strs, string(bytes.TrimLeft(f, " \t")))
+			}
+			var seen [7]bool
+			var err error
+			if cols, seen, err = csvHeader(strs, line); err != nil {
+				return nil, err
+			}
+			d = newCSVDataset(seen, bytes.Count(body, []byte{'\n'})+1)
+			continue
+		}
+		if len(fields) != len(cols) {
+			return nil, invalid(fmt.Sprintf("row %d, column 1", line), "this row has a different number of fields from the header")
+		}
+		for j, f := range fields {
+			k := cols[j]
+			if k == 5 {
+				f = bytes.TrimLeft(f, " \t")
+				if !utf8.Valid(f) {
+					return nil, invalid(fmt.Sprintf("row %d, column id", line), "the id is not valid UTF-8 text")
+				}
+				d.ID = append(d.ID, string(f))
+				continue
+			}
+			v, ok := parseFloat(bytes.TrimSpace(f))
+			if !ok {
+				var err error
+				v, err = parseCell(string(f)) // the slow path names the fault
+				if err != nil {
+					return nil, invalid(fmt.Sprintf("row %d, column %s", line, csvColumns[k]), err.Error())
+				}
+			}
+			d.put(k, v)
+		}
+		d.rows = append(d.rows, line)
+	}
+	if d == nil {
+		return nil, invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
+	}
+	return d.finishCSV()
 }
 
 func parseCell(f string) (float64, error) {

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
-	"math"
 	"strconv"
 	"unicode/utf8"
 )
@@ -84,8 +83,9 @@ func (p *pointParser) parse() error {
 	}
 	p.pos++
 	d := p.d
-	// A rough size hint: one point per 20 bytes keeps re-allocation low.
-	hint := len(p.b) / 24
+	// One '{' per point: counting them (a fast byte scan) sizes the columns
+	// exactly, so they are allocated once.
+	hint := bytes.Count(p.b[p.pos:], []byte{'{'})
 	d.X = make([]float64, 0, hint)
 	d.Y = make([]float64, 0, hint)
 	p.ws()
@@ -125,9 +125,9 @@ const (
 )
 
 func (p *pointParser) point(i int) error {
-	ptr := fmt.Sprintf("/points/%d", i)
+	ptr := lazyPtr(i) // built only on an error: no allocation per point
 	if p.pos >= len(p.b) || p.b[p.pos] != '{' {
-		return p.fail(ptr, "each point must be an object such as {\"x\": 1.2, \"y\": 1.3}")
+		return p.fail(ptr.s(), "each point must be an object such as {\"x\": 1.2, \"y\": 1.3}")
 	}
 	p.pos++
 	var seen int
@@ -139,18 +139,37 @@ func (p *pointParser) point(i int) error {
 	} else {
 		for {
 			p.ws()
-			key, ok := p.str()
+			kb, ok := p.key()
 			if !ok {
-				return p.fail(ptr, "expected a quoted key")
+				return p.fail(ptr.s(), "expected a quoted key")
 			}
 			p.ws()
 			if p.pos >= len(p.b) || p.b[p.pos] != ':' {
-				return p.fail(ptr+"/"+key, "expected ':' after the key")
+				return p.fail(ptr.s()+"/"+escapePointer(string(kb)), "expected ':' after the key")
 			}
 			p.pos++
 			p.ws()
 			var bit int
 			var dst *float64
+			var key string
+			switch string(kb) { // compiled without allocating
+			case "x":
+				key = "x"
+			case "y":
+				key = "y"
+			case "sx":
+				key = "sx"
+			case "sy":
+				key = "sy"
+			case "r":
+				key = "r"
+			case "order":
+				key = "order"
+			case "id":
+				key = "id"
+			default:
+				key = string(kb)
+			}
 			switch key {
 			case "x":
 				bit, dst = fX, &x
@@ -167,15 +186,15 @@ func (p *pointParser) point(i int) error {
 			case "id":
 				bit = fID
 			default:
-				return p.fail(ptr+"/"+escapePointer(key), "unknown field %q (known: x, y, sx, sy, r, id, order)", key)
+				return p.fail(ptr.s()+"/"+escapePointer(key), "unknown field %q (known: x, y, sx, sy, r, id, order)", key)
 			}
-			fptr := ptr + "/" + key
+			fptr := fieldPtr{ptr, key}
 			if seen&bit != 0 {
-				return p.fail(fptr, "field %q appears twice", key)
+				return p.fail(fptr.s(), "field %q appears twice", key)
 			}
 			if p.null() {
 				if bit == fX || bit == fY {
-					return p.fail(fptr, "%s is required and must be a number", key)
+					return p.fail(fptr.s(), "%s is required and must be a number", key)
 				}
 			} else if bit == fID {
 				seen |= bit
@@ -183,29 +202,29 @@ func (p *pointParser) point(i int) error {
 					id = s
 				} else if v, ok, err := p.num(); ok {
 					if err != nil {
-						return p.fail(fptr, "%v", err)
+						return p.fail(fptr.s(), "%v", err)
 					}
 					id = strconv.FormatFloat(v, 'g', -1, 64)
 				} else {
-					return p.fail(fptr, "id must be a string or a number")
+					return p.fail(fptr.s(), "id must be a string or a number")
 				}
 			} else {
 				seen |= bit
 				v, ok, err := p.num()
 				if !ok {
 					if s, isStr := p.str(); isStr {
-						return p.fail(fptr, "%s must be a JSON number, not the string %q", key, truncate(s))
+						return p.fail(fptr.s(), "%s must be a JSON number, not the string %q", key, truncate(s))
 					}
-					return p.fail(fptr, "%s must be a number", key)
+					return p.fail(fptr.s(), "%s must be a number", key)
 				}
 				if err != nil {
-					return p.fail(fptr, "%s: %v", key, err)
+					return p.fail(fptr.s(), "%s: %v", key, err)
 				}
 				*dst = v
 			}
 			p.ws()
 			if p.pos >= len(p.b) {
-				return p.fail(ptr, "unexpected end inside a point")
+				return p.fail(ptr.s(), "unexpected end inside a point")
 			}
 			if p.b[p.pos] == ',' {
 				p.pos++
@@ -215,14 +234,14 @@ func (p *pointParser) point(i int) error {
 				p.pos++
 				break
 			}
-			return p.fail(ptr, "expected ',' or '}' in a point")
+			return p.fail(ptr.s(), "expected ',' or '}' in a point")
 		}
 	}
 	if seen&fX == 0 {
-		return p.fail(ptr+"/x", "x is required")
+		return p.fail(ptr.s()+"/x", "x is required")
 	}
 	if seen&fY == 0 {
-		return p.fail(ptr+"/y", "y is required")
+		return p.fail(ptr.s()+"/y", "y is required")
 	}
 	p.d.add(i, x, y, sx, sy, r, order, id, seen)
 	return nil
@@ -272,6 +291,39 @@ func (d *Dataset) finish() error {
 	}
 	d.hasSX, d.hasSY, d.hasR, d.hasOrder = nil, nil, nil, nil
 	return nil
+}
+
+// lazyPtr is the pointer /points/i, formatted only when needed.
+type lazyPtr int
+
+func (l lazyPtr) s() string { return fmt.Sprintf("/points/%d", int(l)) }
+
+type fieldPtr struct {
+	p   lazyPtr
+	key string
+}
+
+func (f fieldPtr) s() string { return f.p.s() + "/" + f.key }
+
+// key reads a quoted key without allocating when it has no escapes.
+func (p *pointParser) key() ([]byte, bool) {
+	if p.pos >= len(p.b) || p.b[p.pos] != '"' {
+		return nil, false
+	}
+	for j := p.pos + 1; j < len(p.b); j++ {
+		switch c := p.b[j]; {
+		case c == '\\':
+			s, ok := p.str()
+			return []byte(s), ok
+		case c == '"':
+			k := p.b[p.pos+1 : j]
+			p.pos = j + 1
+			return k, true
+		case c < 0x20:
+			return nil, false
+		}
+	}
+	return nil, false
 }
 
 func (p *pointParser) null() bool {
@@ -357,8 +409,8 @@ func (p *pointParser) num() (v float64, ok bool, err error) {
 	}
 	s := b[p.pos:j]
 	p.pos = j
-	v, perr := strconv.ParseFloat(unsafeString(s), 64)
-	if perr != nil || math.IsInf(v, 0) {
+	v, ok = parseFloat(s)
+	if !ok {
 		return 0, true, fmt.Errorf("%s is outside the double-precision range", truncate(string(s)))
 	}
 	return v, true, nil

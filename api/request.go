@@ -72,8 +72,16 @@ var methodNames = []string{"ols", "deming", "weighted_deming", "passing_bablok",
 // trailing data, non-numbers and numbers outside the double range are
 // errors naming the field.
 func DecodeFitJSON(r io.Reader) (*FitRequest, error) {
+	body, err := readBody(r)
+	if err != nil {
+		return nil, err
+	}
+	if req, ok, err := decodeFitFast(body); ok {
+		return req, err
+	}
+	// Not a well-formed object: the general decoder finds and names the fault.
 	var req FitRequest
-	if err := decodeStrict(r, &req); err != nil {
+	if err := decodeStrict(bytes.NewReader(body), &req); err != nil {
 		return nil, err
 	}
 	return &req, nil

@@ -326,7 +326,11 @@ func (s *Server) body(c *gin.Context) (io.Reader, *Problem) {
 		return nil, newProblem(kindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
 			c.Request.ContentLength, s.cfg.MaxBodyBytes))
 	}
-	return http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes), nil
+	r := http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes)
+	if n := c.Request.ContentLength; n > 0 {
+		return SizedReader{Reader: r, N: n}, nil
+	}
+	return r, nil
 }
 
 // mediaType returns the request's media type: "json", "csv", or "" after
