@@ -221,7 +221,15 @@ func finishFits(ctx context.Context, s eiv.Sample, fits []*fitted, at []float64,
 		}
 		var jack [][]eiv.Line
 		if br == nil && n <= set.jackMax() && f.name != "passing_bablok" {
-			jack, _ = eiv.JackknifeLines(s, ests) // nil on a degenerate sample: no interval
+			// The fits' own leave-one-out lines pair up without refitting.
+			if jf, jo := f.fit.Jackknife, olsFit.Jackknife; jf != nil && jo != nil && len(jf.SlopeLOO) == n && len(jo.SlopeLOO) == n {
+				jack = make([][]eiv.Line, n)
+				for i := range n {
+					jack[i] = []eiv.Line{{Intercept: jf.InterceptLOO[i], Slope: jf.SlopeLOO[i]}, {Intercept: jo.InterceptLOO[i], Slope: jo.SlopeLOO[i]}}
+				}
+			} else {
+				jack, _ = eiv.JackknifeLines(s, ests) // nil on a degenerate sample: no interval
+			}
 		}
 		c := eiv.CompareOLS(olsFit, f.fit, s.X, s.SX, at, br, jack)
 		olsBias = append(olsBias, olsBiasOut(c))
@@ -490,10 +498,13 @@ func (m *MethodFit) eachNumber(f func(string, float64)) {
 	m.Slope.eachNumber(func(k string, v float64) { f("slope/"+k, v) })
 	m.Intercept.eachNumber(func(k string, v float64) { f("intercept/"+k, v) })
 	f("cov_slope_intercept", m.CovSlopeIntercept)
-	for k, p := range map[string]*float64{"r_squared": m.RSquared, "residual_sd": m.ResidualSD,
-		"lambda": m.Lambda, "chi2": m.Chi2, "mswd": m.MSWD, "p_value": m.PValue} {
-		if p != nil {
-			f(k, *p)
+	for _, o := range [...]struct {
+		k string
+		p *float64
+	}{{"r_squared", m.RSquared}, {"residual_sd", m.ResidualSD}, {"lambda", m.Lambda},
+		{"chi2", m.Chi2}, {"mswd", m.MSWD}, {"p_value", m.PValue}} {
+		if o.p != nil {
+			f(o.k, *o.p)
 		}
 	}
 	if j := m.Jackknife; j != nil {

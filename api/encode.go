@@ -1,21 +1,94 @@
 package api
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"io"
 	"strings"
+	"sync"
 	"text/tabwriter"
 )
 
-// WriteJSON writes v as the service writes every JSON answer: indented by
-// two spaces, HTML characters unescaped, one trailing newline. The CLI uses
-// it too, so both print the same bytes.
+// WriteJSON writes v as the service writes every JSON answer: compact,
+// HTML characters unescaped, one trailing newline. The CLI uses it too, so
+// both print the same bytes (`eivfit fit --pretty`, or jq, indents).
 func WriteJSON(w io.Writer, v any) error {
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
+	buf := encodePool.Get().(*bytes.Buffer)
+	defer func() { buf.Reset(); encodePool.Put(buf) }()
+	enc := json.NewEncoder(buf)
 	enc.SetEscapeHTML(false)
-	return enc.Encode(v)
+	if err := enc.Encode(v); err != nil {
+		return err
+	}
+	_, err := w.Write(buf.Bytes())
+	return err
+}
+
+var encodePool = sync.Pool{New: func() any { return new(bytes.Buffer) }}
+
+// WritePrettyJSON writes v indented by two spaces.
+func WritePrettyJSON(w io.Writer, v any) error {
+	var compact bytes.Buffer
+	if err := WriteJSON(&compact, v); err != nil {
+		return err
+	}
+	_, err := w.Write(indentJSON(make([]byte, 0, compact.Len()*2), compact.Bytes()))
+	return err
+}
+
+// indentJSON indents compact, valid JSON by two spaces, as json.Indent
+// does (empty objects and arrays stay "{}" and "[]"), in one byte scan
+// without json.Indent's general scanner.
+func indentJSON(dst, src []byte) []byte {
+	depth := 0
+	nl := func() {
+		dst = append(dst, '\n')
+		for range depth {
+			dst = append(dst, ' ', ' ')
+		}
+	}
+	inStr := false
+	for i := 0; i < len(src); i++ {
+		c := src[i]
+		if inStr {
+			dst = append(dst, c)
+			switch c {
+			case '\\':
+				i++
+				dst = append(dst, src[i])
+			case '"':
+				inStr = false
+			}
+			continue
+		}
+		switch c {
+		case '"':
+			inStr = true
+			dst = append(dst, c)
+		case '{', '[':
+			dst = append(dst, c)
+			if i+1 < len(src) && (src[i+1] == '}' || src[i+1] == ']') {
+				dst = append(dst, src[i+1])
+				i++
+				continue
+			}
+			depth++
+			nl()
+		case '}', ']':
+			depth--
+			nl()
+			dst = append(dst, c)
+		case ',':
+			dst = append(dst, c)
+			nl()
+		case ':':
+			dst = append(dst, ':', ' ')
+		default:
+			dst = append(dst, c)
+		}
+	}
+	return dst
 }
 
 // WriteText writes a fit as a table for a terminal.

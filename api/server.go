@@ -252,10 +252,19 @@ func (s *Server) observe(c *gin.Context) {
 		slog.Int("status", status), slog.Float64("duration_ms", float64(d.Microseconds())/1000))
 }
 
+// Request ids: a random prefix drawn at start, then a counter (unique in
+// the process, cheap: no system call per request).
+var (
+	requestPrefix = func() string {
+		var b [4]byte
+		_, _ = rand.Read(b[:])
+		return hex.EncodeToString(b[:])
+	}()
+	requestCount atomic.Uint64
+)
+
 func newRequestID() string {
-	var b [8]byte
-	_, _ = rand.Read(b[:])
-	return hex.EncodeToString(b[:])
+	return requestPrefix + "-" + strconv.FormatUint(requestCount.Add(1), 16)
 }
 
 func (s *Server) recovered(c *gin.Context, v any) {

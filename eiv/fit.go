@@ -2,6 +2,8 @@ package eiv
 
 import (
 	"math"
+	"sync"
+	"sync/atomic"
 
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -107,10 +109,33 @@ func checkConfidence(c float64) (float64, error) {
 }
 
 // tQuantile returns the two-sided critical value of Student's t with df degrees
-// of freedom at the given confidence.
+// of freedom at the given confidence. The inverse incomplete beta function
+// behind it costs microseconds, so values are remembered (up to
+// quantileCacheMax distinct pairs, so that no client can grow the cache
+// without bound).
 func tQuantile(conf float64, df int) float64 {
-	return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(df)}.Quantile(0.5 + conf/2)
+	k := quantileKey{conf, df}
+	if v, ok := quantileCache.Load(k); ok {
+		return v.(float64)
+	}
+	q := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(df)}.Quantile(0.5 + conf/2)
+	if quantileCount.Add(1) <= quantileCacheMax {
+		quantileCache.Store(k, q)
+	}
+	return q
 }
+
+type quantileKey struct {
+	conf float64
+	df   int
+}
+
+const quantileCacheMax = 4096
+
+var (
+	quantileCache sync.Map
+	quantileCount atomic.Int64
+)
 
 // zQuantile returns the two-sided standard normal critical value.
 func zQuantile(conf float64) float64 {

@@ -51,6 +51,7 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	confidence := fs.Float64("confidence", 0.95, "confidence level of the intervals")
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = none)")
 	format := fs.String("format", "json", "output format: json or text")
+	pretty := fs.Bool("pretty", false, "indent the JSON")
 	var files []string
 	for {
 		if err := fs.Parse(args); err != nil {
@@ -98,8 +99,11 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	if *format == "text" {
+	switch {
+	case *format == "text":
 		return api.WriteCompareText(stdout, resp)
+	case *pretty:
+		return api.WritePrettyJSON(stdout, resp)
 	}
 	return api.WriteJSON(stdout, resp)
 }

@@ -36,6 +36,7 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	lambda := fs.String("lambda", "", "error-variance ratio var(y error)/var(x error) for Deming (default: from sx and sy, else 1)")
 	confidence := fs.Float64("confidence", 0.95, "confidence level of the intervals")
 	format := fs.String("format", "json", "output format: json or text")
+	pretty := fs.Bool("pretty", false, "indent the JSON")
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = no bootstrap)")
 	seed := fs.String("seed", "", "bootstrap seed (default: drawn at random and reported)")
 	scheme := fs.String("scheme", "", "bootstrap scheme: pairs (default) or parametric")
@@ -95,8 +96,11 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	if *format == "text" {
+	switch {
+	case *format == "text":
 		return api.WriteText(stdout, resp)
+	case *pretty:
+		return api.WritePrettyJSON(stdout, resp)
 	}
 	return api.WriteJSON(stdout, resp)
 }

@@ -41,6 +41,7 @@ Usage:
   eivfit fit [flags] FILE     fit a CSV file (FILE "-" reads standard input)
   eivfit compare [flags] FILE run a method-comparison study on a CSV file
   eivfit serve [flags]        run the HTTP service
+  eivfit bench [flags]        time the engine against scipy.odr and numpy
   eivfit version              print the version
 
 Run "eivfit COMMAND -h" for a command's flags.
@@ -58,6 +59,8 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 		return runCompare(ctx, args[1:], stdin, stdout, stderr)
 	case "serve":
 		return runServe(ctx, args[1:], stdout, stderr)
+	case "bench":
+		return runBench(ctx, args[1:], stdout, stderr)
 	case "version", "--version", "-version":
 		fmt.Fprintln(stdout, "eivfit", version)
 		return nil

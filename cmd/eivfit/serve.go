@@ -9,6 +9,7 @@ import (
 	"log/slog"
 	"net"
 	"os"
+	"runtime/debug"
 	"strconv"
 	"strings"
 	"time"
@@ -79,6 +80,8 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	sf.dur(&cfg.ShutdownTimeout, "shutdown-timeout", "SHUTDOWN_TIMEOUT", d.ShutdownTimeout, "drain time on SIGTERM/SIGINT")
 	sf.str(&keysFile, "api-keys-file", "API_KEYS_FILE", "", "file of API keys (one per line, KEY or sha256:HEX); when set, /v1/* needs \"Authorization: Bearer KEY\"")
 	sf.str(&logLevel, "log-level", "LOG_LEVEL", "info", "log level: debug, info, warn, error")
+	var gcPercent int
+	sf.int(&gcPercent, "gc-percent", "GC_PERCENT", 400, "garbage-collector target (GOGC): the live heap of small requests is tiny, so the Go default of 100 collects very often; set GOMEMLIMIT (or the container's memory limit) to bound the heap")
 	fs.Usage = func() {
 		fmt.Fprint(stderr, "Usage: eivfit serve [flags]\n\nRuns the HTTP service. Every flag can also be set by the EIVFIT_* variable named with it.\n\nFlags:\n")
 		fs.PrintDefaults()
@@ -100,6 +103,9 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		return exitError{2}
 	}
 	cfg.MaxBodyBytes = int64(bodyMiB) << 20
+	if _, set := os.LookupEnv("GOGC"); !set && gcPercent > 0 {
+		debug.SetGCPercent(gcPercent)
+	}
 	cfg.Version = version
 	var level slog.Level
 	if err := level.UnmarshalText([]byte(logLevel)); err != nil {
