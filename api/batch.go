@@ -129,22 +129,23 @@ func (s *Server) handleBatch(c *gin.Context) {
 	if s.mediaType(c, false) == "" {
 		return
 	}
-	body, p := s.body(c)
-	if p != nil {
-		s.problem(c, p)
-		return
-	}
-	var req BatchRequest
-	if err := decodeStrict(body, &req); err != nil {
-		s.problem(c, s.toProblem(c, err))
-		return
-	}
-	release, p := s.acquire(c.Request.Context())
+	body, release, p := s.body(c)
 	if p != nil {
 		s.problem(c, p)
 		return
 	}
 	defer release()
+	var req BatchRequest
+	if err := decodeStrict(body, &req); err != nil {
+		s.problem(c, s.toProblem(c, err))
+		return
+	}
+	freeSlot, p := s.acquire(c.Request.Context())
+	if p != nil {
+		s.problem(c, p)
+		return
+	}
+	defer freeSlot()
 	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
 	defer cancel()
 	resp, err := RunBatch(ctx, &req, s.settings(1), s.cfg.MaxBatch)

@@ -589,7 +589,7 @@ func (req *CompareRequest) errorModel(st *study, c *Comparison) (*modelChoice, e
 	case st.sx != nil:
 		var err error
 		if mc.lambdaConst, err = eiv.LambdaFromUncertainties(st.sx, st.sy); err != nil {
-			return nil, err
+			return nil, &eiv.OptionError{Option: "sx, sy", Reason: "the stated uncertainties give no error-variance ratio (all zero for one method); give lambda"}
 		}
 		mc.lambdaRel = mc.lambdaConst
 		if allPositive(st.x) && allPositive(st.y) {

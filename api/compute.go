@@ -53,10 +53,20 @@ func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, erro
 	hasSigma := d.SX != nil && d.SY != nil
 	methods := req.Methods
 	explicit := len(methods) > 0
+	resp := &FitResponse{N: n, Confidence: conf, Warnings: []Warning{}}
 	if !explicit {
-		methods = []string{"ols", "deming"}
-		if allPositive(d.X) && allPositive(d.Y) {
-			methods = append(methods, "weighted_deming")
+		methods = []string{"ols"}
+		// Stated uncertainties that are all zero on one axis make that axis
+		// exact: Deming's λ is then 0 or ∞ and the fit is OLS one way or
+		// the other, so the Deming fits are left out.
+		exactAxis := hasSigma && req.Lambda == nil && (allZero(d.SX) || allZero(d.SY))
+		if exactAxis {
+			resp.Warnings = append(resp.Warnings, Warning{Code: eiv.WarnNoUncertaintyInX, Message: "every stated uncertainty of one axis is zero, so that axis is taken as exact: the Deming fits are left out (they reduce to OLS), and york is weighted least squares"})
+		} else {
+			methods = append(methods, "deming")
+			if allPositive(d.X) && allPositive(d.Y) {
+				methods = append(methods, "weighted_deming")
+			}
 		}
 		if hasSigma {
 			methods = append(methods, "york")
@@ -65,7 +75,6 @@ func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, erro
 	// Report in a fixed order whatever order the client listed.
 	slices.SortFunc(methods, func(a, b string) int { return indexOf(methodNames, a) - indexOf(methodNames, b) })
 
-	resp := &FitResponse{N: n, Confidence: conf, Warnings: []Warning{}}
 	s := eiv.Sample{X: d.X, Y: d.Y, SX: d.SX, SY: d.SY, R: d.R}
 	methodPtr := func(m string) string {
 		if d.csv {
@@ -315,7 +324,7 @@ func fitOne(m string, req *FitRequest, conf float64, set Settings) (*eiv.Fit, ei
 				lambda, err = eiv.RelativeLambdaFromUncertainties(d.X, d.Y, d.SX, d.SY)
 			}
 			if err != nil {
-				return nil, nil, "", err
+				return nil, nil, "", &eiv.OptionError{Option: "sx, sy", Reason: "the stated uncertainties give no error-variance ratio (all zero on one axis); give lambda"}
 			}
 			lsrc = "uncertainties"
 		}
@@ -435,6 +444,15 @@ func warning(method string, err error) Warning {
 }
 
 func ptr[T any](v T) *T { return &v }
+
+func allZero(v []float64) bool {
+	for _, x := range v {
+		if x != 0 {
+			return false
+		}
+	}
+	return true
+}
 
 func allPositive(v []float64) bool {
 	for _, x := range v {

@@ -507,11 +507,12 @@ func (s *Server) handlePlot(c *gin.Context) {
 	if mt == "" {
 		return
 	}
-	body, p := s.body(c)
+	body, release, p := s.body(c)
 	if p != nil {
 		s.problem(c, p)
 		return
 	}
+	defer release()
 	q := c.Request.URL.Query()
 	method := q.Get("method")
 	q.Del("method")
@@ -602,7 +603,13 @@ func (s *Server) handleIndex(c *gin.Context) {
 // urlencoded, no JavaScript needed), answered with the HTML report; a bad
 // input is answered with the form again and the problem in words.
 func (s *Server) handleFormReport(c *gin.Context) {
-	c.Request.Body = http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes)
+	body, release, p := s.body(c)
+	if p != nil {
+		s.formError(c, p.Status, p.Title+". "+p.Detail)
+		return
+	}
+	defer release()
+	c.Request.Body = io.NopCloser(body)
 	if err := c.Request.ParseMultipartForm(32 << 20); err != nil && err != http.ErrNotMultipart {
 		s.formError(c, http.StatusBadRequest, "The form could not be read: "+err.Error())
 		return

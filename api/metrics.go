@@ -19,6 +19,7 @@ type metrics struct {
 	slotRejected prometheus.Counter
 	slotWait     prometheus.Histogram
 	inFlight     prometheus.Gauge
+	intakeBytes  prometheus.Gauge
 }
 
 func newMetrics(slots int) *metrics {
@@ -71,10 +72,14 @@ func newMetrics(slots int) *metrics {
 			Name: "eivfit_http_requests_in_flight",
 			Help: "HTTP requests being served now.",
 		}),
+		intakeBytes: prometheus.NewGauge(prometheus.GaugeOpts{
+			Name: "eivfit_intake_bytes_in_use",
+			Help: "Request-body bytes reserved in the memory budget now.",
+		}),
 	}
 	m.slotsTotal.Set(float64(slots))
 	m.reg.MustRegister(m.requests, m.duration, m.problems, m.fitDuration, m.points, m.resamples,
-		m.slotsInUse, m.slotsTotal, m.slotRejected, m.slotWait, m.inFlight,
+		m.slotsInUse, m.slotsTotal, m.slotRejected, m.slotWait, m.inFlight, m.intakeBytes,
 		collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
 	return m
 }

@@ -40,6 +40,12 @@ type Config struct {
 	SlotWait time.Duration
 	// MaxBatch bounds the datasets of one batch request; default 1000.
 	MaxBatch int
+	// MaxInFlightBytes bounds the request bodies being read or held at
+	// once (each counted at its Content-Length, or MaxBodyBytes when it
+	// declares none), so that memory stays bounded however many large
+	// requests arrive: past it a request waits SlotWait, then gets 503.
+	// Default 4 × MaxBodyBytes.
+	MaxInFlightBytes int64
 	// ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout protect
 	// against slow clients; defaults 5 s, 60 s, 120 s, 120 s.
 	ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout time.Duration
@@ -100,6 +106,9 @@ func (c Config) withDefaults() Config {
 	if c.MaxBatch <= 0 {
 		c.MaxBatch = d.MaxBatch
 	}
+	if c.MaxInFlightBytes <= 0 {
+		c.MaxInFlightBytes = 4 * c.MaxBodyBytes
+	}
 	for _, p := range []struct{ v, d *time.Duration }{{&c.ReadHeaderTimeout, &d.ReadHeaderTimeout},
 		{&c.ReadTimeout, &d.ReadTimeout}, {&c.WriteTimeout, &d.WriteTimeout}, {&c.IdleTimeout, &d.IdleTimeout},
 		{&c.ShutdownTimeout, &d.ShutdownTimeout}} {
@@ -124,6 +133,7 @@ type Server struct {
 	slots    chan struct{}
 	draining atomic.Bool
 	keys     *keyring
+	intake   *budget
 }
 
 // NewServer builds the router and its dependencies.
@@ -133,7 +143,8 @@ func NewServer(cfg Config) (*Server, error) {
 	if err != nil {
 		return nil, err
 	}
-	s := &Server{cfg: cfg, metrics: newMetrics(cfg.Slots), slots: make(chan struct{}, cfg.Slots), keys: keys}
+	s := &Server{cfg: cfg, metrics: newMetrics(cfg.Slots), slots: make(chan struct{}, cfg.Slots), keys: keys,
+		intake: newBudget(cfg.MaxInFlightBytes)}
 	gin.SetMode(gin.ReleaseMode)
 	e := gin.New()
 	e.HandleMethodNotAllowed = true
@@ -328,18 +339,38 @@ func (s *Server) acquire(ctx context.Context) (release func(), p *Problem) {
 	return func() { <-s.slots; s.metrics.slotsInUse.Dec() }, nil
 }
 
-// body wraps the request body with the size limit. A declared length above
-// the limit is refused before anything is read.
-func (s *Server) body(c *gin.Context) (io.Reader, *Problem) {
-	if c.Request.ContentLength > s.cfg.MaxBodyBytes {
-		return nil, newProblem(kindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
-			c.Request.ContentLength, s.cfg.MaxBodyBytes))
+// body wraps the request body with the size limit and reserves its bytes
+// in the intake budget; the caller must call release when done with the
+// request. A declared length above the limit is refused before anything is
+// read.
+func (s *Server) body(c *gin.Context) (io.Reader, func(), *Problem) {
+	n := c.Request.ContentLength
+	if n > s.cfg.MaxBodyBytes {
+		return nil, nil, newProblem(kindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
+			n, s.cfg.MaxBodyBytes))
+	}
+	want := n
+	if want < 0 {
+		want = s.cfg.MaxBodyBytes
+	}
+	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
+	defer cancel()
+	if !s.intake.acquire(ctx, want) {
+		s.metrics.slotRejected.Inc()
+		p := newProblem(kindBusy, fmt.Sprintf("the server is reading as many request bodies as its memory budget (%d bytes) allows; retry later", s.cfg.MaxInFlightBytes))
+		p.RetryAfter = 1
+		return nil, nil, p
+	}
+	s.metrics.intakeBytes.Add(float64(want))
+	release := func() {
+		s.intake.release(want)
+		s.metrics.intakeBytes.Sub(float64(want))
 	}
 	r := http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes)
-	if n := c.Request.ContentLength; n > 0 {
-		return SizedReader{Reader: r, N: n}, nil
+	if n > 0 {
+		return SizedReader{Reader: r, N: n}, release, nil
 	}
-	return r, nil
+	return r, release, nil
 }
 
 // mediaType returns the request's media type: "json", "csv", or "" after
@@ -378,11 +409,12 @@ func (s *Server) handleFit(c *gin.Context) {
 	if kind == "" {
 		return
 	}
-	body, p := s.body(c)
+	body, release, p := s.body(c)
 	if p != nil {
 		s.problem(c, p)
 		return
 	}
+	defer release()
 	body, sum := hashingBody(body)
 	var req *FitRequest
 	var err error

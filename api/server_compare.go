@@ -28,11 +28,12 @@ func (s *Server) handleCompare(c *gin.Context) {
 	if kind == "" {
 		return
 	}
-	body, p := s.body(c)
+	body, release, p := s.body(c)
 	if p != nil {
 		s.problem(c, p)
 		return
 	}
+	defer release()
 	body, sum := hashingBody(body)
 	var req *CompareRequest
 	var err error
