@@ -167,6 +167,9 @@ func Deming(x, y []float64, opt *DemingOptions) (*Fit, error) {
 		f.Warnings = append(f.Warnings, &Warning{Code: WarnPerfectFit,
 			Message: "the points lie exactly on a line: standard errors are zero"})
 	}
+	if err := f.finite(); err != nil {
+		return nil, err
+	}
 	return f, nil
 }
 
@@ -293,6 +296,9 @@ func WeightedDeming(x, y []float64, opt *DemingOptions) (*Fit, error) {
 	f.CovSlopeIntercept = jk.Cov
 	if assumed {
 		f.Warnings = append(f.Warnings, lambdaAssumed(MethodWeightedDeming))
+	}
+	if err := f.finite(); err != nil {
+		return nil, err
 	}
 	return f, nil
 }

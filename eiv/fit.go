@@ -1,6 +1,7 @@
 package eiv
 
 import (
+	"fmt"
 	"math"
 	"sync"
 	"sync/atomic"
@@ -153,4 +154,20 @@ func allFinite(v ...float64) bool {
 		}
 	}
 	return true
+}
+
+// finite is the last check of every estimator: a result with a NaN or an
+// infinity anywhere (slopes near the double limits, a degenerate
+// jackknife) is an error, never an answer.
+func (f *Fit) finite() error {
+	vals := []float64{f.Slope.Value, f.Slope.SE, f.Slope.SEScaled, f.Slope.CI.Lower, f.Slope.CI.Upper,
+		f.Intercept.Value, f.Intercept.SE, f.Intercept.SEScaled, f.Intercept.CI.Lower, f.Intercept.CI.Upper,
+		f.CovSlopeIntercept, f.ResidualSD, f.RSquared, f.Lambda, f.Chi2, f.MSWD, f.PValue}
+	if j := f.Jackknife; j != nil {
+		vals = append(vals, j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE, j.Intercept.CI.Lower, j.Intercept.CI.Upper, j.Cov)
+	}
+	if !allFinite(vals...) {
+		return fmt.Errorf("%w: %s's result leaves the double-precision range", ErrDegenerate, f.Method)
+	}
+	return nil
 }

@@ -68,6 +68,9 @@ func OLS(x, y []float64, opt *Options) (*Fit, error) {
 		f.Warnings = append(f.Warnings, &Warning{Code: WarnPerfectFit,
 			Message: "the points lie exactly on a line: standard errors are zero"})
 	}
+	if err := f.finite(); err != nil {
+		return nil, err
+	}
 	return f, nil
 }
 

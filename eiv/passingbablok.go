@@ -142,6 +142,9 @@ func PassingBablok(x, y []float64, opt *Options) (*PassingBablokResult, error) {
 		f.Slope.CI = Interval{Lower: b, Upper: b, Level: conf, Method: "unavailable"}
 		f.Intercept.CI = Interval{Lower: a, Upper: a, Level: conf, Method: "unavailable"}
 	}
+	if err := f.finite(); err != nil {
+		return nil, err
+	}
 	res.Fit = f
 	res.Cusum = cusumTest(x, y, a, b)
 	if !res.Cusum.Linear {

@@ -125,6 +125,9 @@ func York(x, y, sx, sy, r []float64, opt *YorkOptions) (*Fit, error) {
 			f.Jackknife = jk
 		}
 	}
+	if err := f.finite(); err != nil {
+		return nil, err
+	}
 	return f, nil
 }
 
