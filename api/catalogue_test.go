@@ -80,7 +80,7 @@ func TestBadInputCatalogue(t *testing.T) {
 		{"resamples over limit", "POST", "/v1/fit", "application/json", pts(`,"bootstrap":{"resamples":5001}`), 400, "/bootstrap/resamples"},
 		{"negative resamples", "POST", "/v1/fit", "application/json", pts(`,"bootstrap":{"resamples":-5}`), 400, "/bootstrap/resamples"},
 		{"bad scheme", "POST", "/v1/fit", "application/json", pts(`,"bootstrap":{"resamples":200,"scheme":"wild"}`), 400, "/bootstrap/scheme"},
-		{"too many at", "POST", "/v1/fit", "application/json", pts(`,"at":[`+strings.TrimSuffix(strings.Repeat("1,", 51), ",")+`]`), 400, "/at"},
+		{"too many at", "POST", "/v1/fit", "application/json", pts(`,"at":[` + strings.TrimSuffix(strings.Repeat("1,", 51), ",") + `]`), 400, "/at"},
 		{"at NaN", "POST", "/v1/fit", "application/json", pts(`,"at":[NaN]`), 400, "/at/0"},
 		// CSV.
 		{"csv ragged", "POST", "/v1/fit", "text/csv", "x,y\n1,2\n2,3,4\n3,5\n", 400, "row 3, column 1"},

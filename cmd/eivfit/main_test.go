@@ -6,13 +6,16 @@ import (
 	"context"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"io"
 	"math"
 	"net/http"
 	"net/http/httptest"
 	"os"
+	"os/exec"
 	"strconv"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
 
@@ -253,5 +256,86 @@ func TestCompareCLI(t *testing.T) {
 	text, _, err := runCmd(t, "", "compare", "--format", "text", "../../testdata/demo-glucose-duplicates.csv")
 	if err != nil || !strings.Contains(text, "Recommendation:") || !strings.Contains(text, "ISO 15189") {
 		t.Errorf("text output: %v\n%s", err, text)
+	}
+}
+
+// TestMain lets the test binary stand in for the eivfit binary, so that a
+// test can start the service as a real process and signal it.
+func TestMain(m *testing.M) {
+	if os.Getenv("EIVFIT_TEST_AS_BINARY") == "1" {
+		main()
+		return
+	}
+	os.Exit(m.Run())
+}
+
+// SIGTERM during in-flight bootstraps: every request in flight completes
+// with 200, new connections are refused, and the process exits 0 within
+// the shutdown timeout.
+func TestSIGTERMDrains(t *testing.T) {
+	if testing.Short() {
+		t.Skip("starts a process")
+	}
+	cmd := exec.Command(os.Args[0], "serve", "--addr", "127.0.0.1:0", "--shutdown-timeout", "30s", "--log-level", "error")
+	cmd.Env = append(os.Environ(), "EIVFIT_TEST_AS_BINARY=1")
+	out, err := cmd.StdoutPipe()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	sc := bufio.NewScanner(out)
+	base := ""
+	for sc.Scan() {
+		if u, ok := strings.CutPrefix(sc.Text(), "eivfit dev listening on "); ok {
+			base = u
+			break
+		}
+	}
+	go io.Copy(io.Discard, out)
+	if base == "" {
+		cmd.Process.Kill()
+		t.Fatal("the server did not start")
+	}
+	var pts []string
+	for i := range 300 {
+		pts = append(pts, fmt.Sprintf(`{"x":%d,"y":%g,"sx":1,"sy":1}`, i, 2*float64(i)+float64(i%7)))
+	}
+	body := `{"points":[` + strings.Join(pts, ",") + `],"methods":["york"],"bootstrap":{"resamples":100000,"seed":1}}`
+	const inflight = 3
+	codes := make(chan int, inflight)
+	for range inflight {
+		go func() {
+			resp, err := http.Post(base+"/v1/fit", "application/json", strings.NewReader(body))
+			if err != nil {
+				codes <- -1
+				return
+			}
+			io.Copy(io.Discard, resp.Body)
+			resp.Body.Close()
+			codes <- resp.StatusCode
+		}()
+	}
+	time.Sleep(300 * time.Millisecond) // the bootstraps are running
+	start := time.Now()
+	if err := cmd.Process.Signal(syscall.SIGTERM); err != nil {
+		t.Fatal(err)
+	}
+	time.Sleep(100 * time.Millisecond)
+	if resp, err := http.Get(base + "/healthz"); err == nil {
+		resp.Body.Close()
+		t.Error("a new request was accepted after SIGTERM")
+	}
+	for range inflight {
+		if c := <-codes; c != 200 {
+			t.Errorf("an in-flight request ended with %d", c)
+		}
+	}
+	if err := cmd.Wait(); err != nil {
+		t.Errorf("exit: %v", err)
+	}
+	if d := time.Since(start); d > 30*time.Second {
+		t.Errorf("the drain took %v", d)
 	}
 }
