@@ -233,8 +233,11 @@ func finishFits(ctx context.Context, s eiv.Sample, fits []*fitted, at []float64,
 			// The fits' own leave-one-out lines pair up without refitting.
 			if jf, jo := f.fit.Jackknife, olsFit.Jackknife; jf != nil && jo != nil && len(jf.SlopeLOO) == n && len(jo.SlopeLOO) == n {
 				jack = make([][]eiv.Line, n)
+				flat := make([]eiv.Line, 2*n) // one allocation for all the pairs
 				for i := range n {
-					jack[i] = []eiv.Line{{Intercept: jf.InterceptLOO[i], Slope: jf.SlopeLOO[i]}, {Intercept: jo.InterceptLOO[i], Slope: jo.SlopeLOO[i]}}
+					flat[2*i] = eiv.Line{Intercept: jf.InterceptLOO[i], Slope: jf.SlopeLOO[i]}
+					flat[2*i+1] = eiv.Line{Intercept: jo.InterceptLOO[i], Slope: jo.SlopeLOO[i]}
+					jack[i] = flat[2*i : 2*i+2 : 2*i+2]
 				}
 			} else {
 				jack, _ = eiv.JackknifeLines(s, ests) // nil on a degenerate sample: no interval

@@ -42,6 +42,7 @@ Usage:
   eivfit compare [flags] FILE run a method-comparison study on a CSV file
   eivfit serve [flags]        run the HTTP service
   eivfit bench [flags]        time the engine against scipy.odr and numpy
+  eivfit load [flags]         load-test a server on loopback
   eivfit version              print the version
 
 Run "eivfit COMMAND -h" for a command's flags.
@@ -61,6 +62,8 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 		return runServe(ctx, args[1:], stdout, stderr)
 	case "bench":
 		return runBench(ctx, args[1:], stdout, stderr)
+	case "load":
+		return runLoad(ctx, args[1:], stdout, stderr)
 	case "version", "--version", "-version":
 		fmt.Fprintln(stdout, "eivfit", version)
 		return nil

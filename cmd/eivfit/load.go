@@ -1,0 +1,185 @@
+package main
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"math/rand/v2"
+	"net/http"
+	"os"
+	"os/exec"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+)
+
+const loadUsage = `Usage: eivfit load [flags]
+
+Load-tests a server on 127.0.0.1 (by default one it starts as a child
+process): sustained small fits (n = 40; ols, deming, york) sent open-loop at
+--rate for --duration, then prints throughput, latency quantiles and errors,
+and exits 1 on any error. With --saturate N it instead sends N concurrent
+maximum-size requests (about 60 MB of JSON each) and reports their statuses
+and the server's peak resident memory. Bounded in count and time; never
+sends anywhere but loopback.
+
+Flags:
+`
+
+func runLoad(ctx context.Context, args []string, stdout, stderr io.Writer) error {
+	fs := flag.NewFlagSet("load", flag.ContinueOnError)
+	fs.SetOutput(stderr)
+	fs.Usage = func() { fmt.Fprint(stderr, loadUsage); fs.PrintDefaults() }
+	dur := fs.Duration("duration", 60*time.Second, "how long to send")
+	rate := fs.Float64("rate", 4000, "requests per second")
+	port := fs.Int("port", 0, "load a server already listening on 127.0.0.1:PORT instead of starting one")
+	saturate := fs.Int("saturate", 0, "send this many concurrent maximum-size requests instead")
+	if err := fs.Parse(args); err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			return nil
+		}
+		return exitError{2}
+	}
+	if *dur > 10*time.Minute || *rate > 50000 || *saturate > 256 {
+		fmt.Fprintln(stderr, "eivfit load: stay within 10 minutes, 50,000 requests/s and 256 concurrent requests")
+		return exitError{2}
+	}
+	base := fmt.Sprintf("http://127.0.0.1:%d", *port)
+	var child *exec.Cmd
+	if *port == 0 {
+		exe, err := os.Executable()
+		if err != nil {
+			return err
+		}
+		child = exec.CommandContext(ctx, exe, "serve", "--addr", "127.0.0.1:0", "--log-level", "error")
+		out, err := child.StdoutPipe()
+		if err != nil {
+			return err
+		}
+		if err := child.Start(); err != nil {
+			return err
+		}
+		defer func() { _ = child.Process.Signal(os.Interrupt); _ = child.Wait() }()
+		sc := bufio.NewScanner(out)
+		base = ""
+		for sc.Scan() {
+			if u, ok := strings.CutPrefix(sc.Text(), "eivfit "+version+" listening on "); ok {
+				base = u
+				break
+			}
+		}
+		go io.Copy(io.Discard, out)
+		if base == "" {
+			return errors.New("the server did not start")
+		}
+	}
+	tr := &http.Transport{MaxIdleConnsPerHost: 256, DisableCompression: true}
+	client := &http.Client{Transport: tr, Timeout: 120 * time.Second}
+	if *saturate > 0 {
+		return saturateRun(stdout, client, base, *saturate, child)
+	}
+	r := rand.New(rand.NewPCG(5, 5))
+	var pts []string
+	for range 40 {
+		t := 5 + 20*r.Float64()
+		pts = append(pts, fmt.Sprintf(`{"x":%.4f,"y":%.4f,"sx":0.2,"sy":0.25}`, t+0.2*r.NormFloat64(), 0.1+1.03*t+0.25*r.NormFloat64()))
+	}
+	body := []byte(`{"points":[` + strings.Join(pts, ",") + `],"methods":["ols","deming","york"]}`)
+	var mu sync.Mutex
+	codes := map[int]int{}
+	one := func() (time.Duration, bool) {
+		t0 := time.Now()
+		resp, err := client.Post(base+"/v1/fit", "application/json", bytes.NewReader(body))
+		code := -1
+		if err == nil {
+			_, _ = io.Copy(io.Discard, resp.Body)
+			resp.Body.Close()
+			code = resp.StatusCode
+		}
+		mu.Lock()
+		codes[code]++
+		mu.Unlock()
+		return time.Since(t0), code == 200
+	}
+	start := time.Now()
+	if err := benchLatency(stdout, one, *rate, *dur); err != nil {
+		return err
+	}
+	total, bad := 0, 0
+	for c, k := range codes {
+		total += k
+		if c != 200 {
+			bad += k
+		}
+	}
+	fmt.Fprintf(stdout, "  %d requests in %v: %.0f requests/s; %d errors %v\n", total, time.Since(start).Round(time.Millisecond),
+		float64(total)/time.Since(start).Seconds(), bad, codes)
+	if bad > 0 {
+		return exitError{1}
+	}
+	return nil
+}
+
+// saturateRun sends n concurrent maximum-size requests.
+func saturateRun(stdout io.Writer, client *http.Client, base string, n int, child *exec.Cmd) error {
+	const points = 880_000 // about 60 MB of JSON, under the default 64 MiB limit
+	var b bytes.Buffer
+	b.Grow(70 << 20)
+	b.WriteString(`{"points":[`)
+	r := rand.New(rand.NewPCG(9, 9))
+	for i := range points {
+		if i > 0 {
+			b.WriteByte(',')
+		}
+		t := 10 + 90*r.Float64()
+		fmt.Fprintf(&b, `{"x":%.6f,"y":%.6f,"sx":0.5,"sy":0.7}`, t+0.5*r.NormFloat64(), 2+1.1*t+0.7*r.NormFloat64())
+	}
+	b.WriteString(`],"methods":["ols","deming"]}`)
+	body := b.Bytes()
+	var wg sync.WaitGroup
+	codes := make([]int, n)
+	retry := make([]string, n)
+	took := make([]time.Duration, n)
+	for i := range n {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			t0 := time.Now()
+			resp, err := client.Post(base+"/v1/fit", "application/json", bytes.NewReader(body))
+			if err != nil {
+				codes[i] = -1
+				return
+			}
+			_, _ = io.Copy(io.Discard, resp.Body)
+			resp.Body.Close()
+			codes[i], retry[i], took[i] = resp.StatusCode, resp.Header.Get("Retry-After"), time.Since(t0)
+		}()
+	}
+	wg.Wait()
+	count := map[string]int{}
+	var slowest time.Duration
+	for i, c := range codes {
+		k := strconv.Itoa(c)
+		if c == 503 && retry[i] != "" {
+			k += " with Retry-After"
+		}
+		count[k]++
+		slowest = max(slowest, took[i])
+	}
+	fmt.Fprintf(stdout, "%d concurrent requests of %.1f MB (%d points): %v; slowest %v\n", n, float64(len(body))/1e6, points, count, slowest.Round(time.Millisecond))
+	if child != nil {
+		if st, err := os.ReadFile(fmt.Sprintf("/proc/%d/status", child.Process.Pid)); err == nil {
+			for _, l := range strings.Split(string(st), "\n") {
+				if strings.HasPrefix(l, "VmHWM:") || strings.HasPrefix(l, "VmRSS:") {
+					fmt.Fprintf(stdout, "  server %s\n", strings.Join(strings.Fields(l), " "))
+				}
+			}
+		}
+	}
+	return nil
+}
