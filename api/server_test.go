@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"log/slog"
 	"net/http"
 	"net/http/httptest"
 	"strings"
@@ -336,7 +337,17 @@ func TestDeadline(t *testing.T) {
 }
 
 func TestAPIKeys(t *testing.T) {
-	h := newHarness(t, Config{APIKeys: []string{"s3cret", "sha256:" + fmt.Sprintf("%x", sha256Sum("other"))}})
+	var logs bytes.Buffer
+	h := newHarness(t, Config{APIKeys: []string{"s3cret", "sha256:" + fmt.Sprintf("%x", sha256Sum("other"))},
+		Logger: slog.New(slog.NewJSONHandler(&logs, nil))})
+	defer func() {
+		if strings.Contains(logs.String(), "s3cret") || strings.Contains(logs.String(), "wrong") || strings.Contains(logs.String(), "Bearer") {
+			t.Errorf("a key reached the log:\n%s", logs.String())
+		}
+		if !strings.Contains(logs.String(), `"status":401`) {
+			t.Error("the 401s were not logged")
+		}
+	}()
 	for _, c := range []struct {
 		auth   string
 		status int

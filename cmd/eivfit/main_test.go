@@ -339,3 +339,57 @@ func TestSIGTERMDrains(t *testing.T) {
 		t.Errorf("the drain took %v", d)
 	}
 }
+
+// --api-keys-file (EIVFIT_API_KEYS_FILE) protects /v1/* with the keys in
+// the file; an empty file is refused at start.
+func TestServeAPIKeysFile(t *testing.T) {
+	dir := t.TempDir()
+	keys := dir + "/keys"
+	if err := os.WriteFile(keys, []byte("# comment\nk-123\n"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	empty := dir + "/empty"
+	_ = os.WriteFile(empty, []byte("# nothing\n"), 0o600)
+	if _, stderr, err := runCmd(t, "", "serve", "--addr", "127.0.0.1:0", "--api-keys-file", empty); err == nil || !strings.Contains(stderr, "no API key") {
+		t.Errorf("an empty keys file was accepted: %v %s", err, stderr)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	pr, pw := io.Pipe()
+	done := make(chan error, 1)
+	go func() {
+		done <- run(ctx, []string{"serve", "--addr", "127.0.0.1:0", "--api-keys-file", keys, "--log-level", "error"}, nil, pw, io.Discard)
+		pw.Close()
+	}()
+	sc := bufio.NewScanner(pr)
+	base := ""
+	for sc.Scan() {
+		if u, ok := strings.CutPrefix(sc.Text(), "eivfit dev listening on "); ok {
+			base = u
+			break
+		}
+	}
+	go io.Copy(io.Discard, pr)
+	body := `{"points":[{"x":1,"y":2},{"x":2,"y":3},{"x":3,"y":5}]}`
+	for _, c := range []struct {
+		key  string
+		want int
+	}{{"", 401}, {"k-124", 401}, {"k-123", 200}} {
+		req, _ := http.NewRequest("POST", base+"/v1/fit", strings.NewReader(body))
+		req.Header.Set("Content-Type", "application/json")
+		if c.key != "" {
+			req.Header.Set("Authorization", "Bearer "+c.key)
+		}
+		resp, err := http.DefaultClient.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		resp.Body.Close()
+		if resp.StatusCode != c.want {
+			t.Errorf("key %q: %d, want %d", c.key, resp.StatusCode, c.want)
+		}
+	}
+	cancel()
+	if err := <-done; err != nil {
+		t.Error(err)
+	}
+}
