@@ -276,7 +276,8 @@ func TestSIGTERMDrains(t *testing.T) {
 	if testing.Short() {
 		t.Skip("starts a process")
 	}
-	cmd := exec.Command(os.Args[0], "serve", "--addr", "127.0.0.1:0", "--shutdown-timeout", "30s", "--log-level", "error")
+	cmd := exec.Command(os.Args[0], "serve", "--addr", "127.0.0.1:0", "--shutdown-timeout", "30s", "--log-level", "error",
+		"--slots", "3", "--slot-wait", "30s") // every request computes at once: none waits for a slot
 	cmd.Env = append(os.Environ(), "EIVFIT_TEST_AS_BINARY=1")
 	out, err := cmd.StdoutPipe()
 	if err != nil {
