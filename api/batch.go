@@ -140,15 +140,9 @@ func (s *Server) handleBatch(c *gin.Context) {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	freeSlot, p := s.acquire(c.Request.Context())
-	if p != nil {
-		s.problem(c, p)
-		return
-	}
-	defer freeSlot()
-	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
-	defer cancel()
-	resp, err := RunBatch(ctx, &req, s.settings(1), s.cfg.MaxBatch)
+	resp, err := inSlot(s, c, func(ctx context.Context) (*BatchResponse, error) {
+		return RunBatch(ctx, &req, s.settings(1), s.cfg.MaxBatch)
+	})
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return

@@ -554,11 +554,7 @@ func (m *MethodFit) eachNumber(f func(string, float64)) {
 // FitCSV decodes a CSV dataset, takes the options from query parameters,
 // and fits: the path of `eivfit fit` and of POST /v1/fit with a text/csv body.
 func FitCSV(ctx context.Context, body io.Reader, q url.Values, set Settings) (*FitResponse, error) {
-	d, err := DecodeCSV(body)
-	if err != nil {
-		return nil, err
-	}
-	req, err := FitRequestFromQuery(q, d)
+	req, err := fitFromCSV(body, q)
 	if err != nil {
 		return nil, err
 	}

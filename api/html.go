@@ -559,16 +559,22 @@ func (s *Server) handlePlot(c *gin.Context) {
 	}
 }
 
-// computeFit runs Fit in a compute slot under the deadline.
-func (s *Server) computeFit(c *gin.Context, req *FitRequest) (*FitResponse, error) {
+// inSlot runs compute in a compute slot under the request deadline.
+func inSlot[T any](s *Server, c *gin.Context, compute func(context.Context) (T, error)) (T, error) {
 	release, p := s.acquire(c.Request.Context())
 	if p != nil {
-		return nil, p
+		var zero T
+		return zero, p
 	}
 	defer release()
 	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
 	defer cancel()
-	resp, err := Fit(ctx, req, s.settings(0))
+	return compute(ctx)
+}
+
+// computeFit runs Fit in a compute slot under the deadline.
+func (s *Server) computeFit(c *gin.Context, req *FitRequest) (*FitResponse, error) {
+	resp, err := inSlot(s, c, func(ctx context.Context) (*FitResponse, error) { return Fit(ctx, req, s.settings(0)) })
 	if err == nil {
 		s.metrics.points.Add(float64(resp.N))
 	}
@@ -577,14 +583,7 @@ func (s *Server) computeFit(c *gin.Context, req *FitRequest) (*FitResponse, erro
 
 // computeCompare runs Compare in a compute slot under the deadline.
 func (s *Server) computeCompare(c *gin.Context, req *CompareRequest) (*CompareResponse, error) {
-	release, p := s.acquire(c.Request.Context())
-	if p != nil {
-		return nil, p
-	}
-	defer release()
-	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
-	defer cancel()
-	resp, err := Compare(ctx, req, s.settings(0))
+	resp, err := inSlot(s, c, func(ctx context.Context) (*CompareResponse, error) { return Compare(ctx, req, s.settings(0)) })
 	if err == nil {
 		s.metrics.points.Add(float64(resp.N))
 	}

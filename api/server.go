@@ -11,6 +11,7 @@ import (
 	"mime"
 	"net"
 	"net/http"
+	"net/url"
 	"runtime"
 	"strconv"
 	"strings"
@@ -416,23 +417,7 @@ func (s *Server) handleFit(c *gin.Context) {
 	}
 	defer release()
 	body, sum := hashingBody(body)
-	var req *FitRequest
-	var err error
-	if kind == "csv" {
-		var d *Dataset
-		if d, err = DecodeCSV(body); err == nil {
-			req, err = FitRequestFromQuery(c.Request.URL.Query(), d)
-		}
-	} else {
-		if len(c.Request.URL.RawQuery) > 0 {
-			s.problem(c, invalid("query", "a JSON request carries its options in the body, not the query string"))
-			return
-		}
-		req, err = DecodeFitJSON(body)
-	}
-	if err == nil {
-		err = req.Validate(s.cfg.Limits)
-	}
+	req, err := decodeRequest(s, c, kind, body, fitFromCSV, DecodeFitJSON)
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return
@@ -452,6 +437,46 @@ func (s *Server) handleFit(c *gin.Context) {
 		return
 	}
 	s.writeJSON(c, http.StatusOK, resp)
+}
+
+// validator is a decoded request that checks itself against the limits.
+type validator interface{ Validate(Limits) error }
+
+// decodeRequest decodes a JSON body, or a CSV body with the options in the
+// query string, and validates it: the decode and validate steps of every
+// handler that takes both media types.
+func decodeRequest[T validator](s *Server, c *gin.Context, kind string, body io.Reader,
+	fromCSV func(io.Reader, url.Values) (T, error), fromJSON func(io.Reader) (T, error)) (T, error) {
+	var req T
+	var err error
+	if kind == "csv" {
+		req, err = fromCSV(body, c.Request.URL.Query())
+	} else {
+		if len(c.Request.URL.RawQuery) > 0 {
+			return req, invalid("query", "a JSON request carries its options in the body, not the query string")
+		}
+		req, err = fromJSON(body)
+	}
+	if err == nil {
+		err = req.Validate(s.cfg.Limits)
+	}
+	return req, err
+}
+
+func fitFromCSV(r io.Reader, q url.Values) (*FitRequest, error) {
+	d, err := DecodeCSV(r)
+	if err != nil {
+		return nil, err
+	}
+	return FitRequestFromQuery(q, d)
+}
+
+func compareFromCSV(r io.Reader, q url.Values) (*CompareRequest, error) {
+	req, err := DecodeCompareCSV(r)
+	if err != nil {
+		return nil, err
+	}
+	return req, CompareRequestFromQuery(q, req)
 }
 
 func (s *Server) writeJSON(c *gin.Context, status int, v any) {

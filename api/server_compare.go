@@ -12,11 +12,8 @@ import (
 // CompareCSV decodes a CSV study, takes the options from the query, and
 // runs it: the path of `eivfit compare` and of a text/csv POST.
 func CompareCSV(ctx context.Context, body io.Reader, q url.Values, set Settings) (*CompareResponse, error) {
-	req, err := DecodeCompareCSV(body)
+	req, err := compareFromCSV(body, q)
 	if err != nil {
-		return nil, err
-	}
-	if err := CompareRequestFromQuery(q, req); err != nil {
 		return nil, err
 	}
 	return Compare(ctx, req, set)
@@ -35,22 +32,7 @@ func (s *Server) handleCompare(c *gin.Context) {
 	}
 	defer release()
 	body, sum := hashingBody(body)
-	var req *CompareRequest
-	var err error
-	if kind == "csv" {
-		if req, err = DecodeCompareCSV(body); err == nil {
-			err = CompareRequestFromQuery(c.Request.URL.Query(), req)
-		}
-	} else {
-		if len(c.Request.URL.RawQuery) > 0 {
-			s.problem(c, invalid("query", "a JSON request carries its options in the body, not the query string"))
-			return
-		}
-		req, err = DecodeCompareJSON(body)
-	}
-	if err == nil {
-		err = req.Validate(s.cfg.Limits)
-	}
+	req, err := decodeRequest(s, c, kind, body, compareFromCSV, DecodeCompareJSON)
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return

@@ -2,12 +2,10 @@ package main
 
 import (
 	"context"
-	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"net/url"
-	"os"
 	"strconv"
 
 	"eivfit/api"
@@ -52,28 +50,9 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = none)")
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
-	var files []string
-	for {
-		if err := fs.Parse(args); err != nil {
-			if errors.Is(err, flag.ErrHelp) {
-				return nil
-			}
-			return exitError{2}
-		}
-		if fs.NArg() == 0 {
-			break
-		}
-		files = append(files, fs.Arg(0))
-		args = fs.Args()[1:]
-	}
-	if len(files) != 1 {
-		fmt.Fprintln(stderr, "eivfit compare: name exactly one CSV file (or - for standard input)")
-		fs.Usage()
-		return exitError{2}
-	}
-	if *format != "json" && *format != "text" {
-		fmt.Fprintf(stderr, "eivfit compare: --format must be json or text, not %q\n", *format)
-		return exitError{2}
+	file, done, err := parseFileArgs(fs, args, "compare", format, stderr)
+	if done {
+		return err
 	}
 	q := url.Values{}
 	for k, v := range strs {
@@ -85,25 +64,14 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if *resamples != 0 {
 		q.Set("resamples", strconv.Itoa(*resamples))
 	}
-	in, name := stdin, "standard input"
-	if files[0] != "-" {
-		f, err := os.Open(files[0])
-		if err != nil {
-			fmt.Fprintln(stderr, "eivfit compare:", err)
-			return exitError{2}
-		}
-		defer f.Close()
-		in, name = f, files[0]
+	in, name, err := openInput(file, stdin, "compare", stderr)
+	if err != nil {
+		return err
 	}
+	defer in.Close()
 	resp, err := api.CompareCSV(ctx, in, q, api.DefaultSettings)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	switch {
-	case *format == "text":
-		return api.WriteCompareText(stdout, resp)
-	case *pretty:
-		return api.WritePrettyJSON(stdout, resp)
-	}
-	return api.WriteJSON(stdout, resp)
+	return writeOutput(stdout, *format, *pretty, resp, func(w io.Writer) error { return api.WriteCompareText(w, resp) })
 }

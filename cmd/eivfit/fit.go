@@ -42,28 +42,9 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	scheme := fs.String("scheme", "", "bootstrap scheme: pairs (default) or parametric")
 	at := fs.String("at", "", "comma list of x values (decision levels) for predictions and bias")
 
-	var files []string
-	for {
-		if err := fs.Parse(args); err != nil {
-			if errors.Is(err, flag.ErrHelp) {
-				return nil
-			}
-			return exitError{2}
-		}
-		if fs.NArg() == 0 {
-			break
-		}
-		files = append(files, fs.Arg(0))
-		args = fs.Args()[1:]
-	}
-	if len(files) != 1 {
-		fmt.Fprintln(stderr, "eivfit fit: name exactly one CSV file (or - for standard input)")
-		fs.Usage()
-		return exitError{2}
-	}
-	if *format != "json" && *format != "text" {
-		fmt.Fprintf(stderr, "eivfit fit: --format must be json or text, not %q\n", *format)
-		return exitError{2}
+	file, done, err := parseFileArgs(fs, args, "fit", format, stderr)
+	if done {
+		return err
 	}
 	q := url.Values{}
 	set := func(k, v string) {
@@ -81,28 +62,70 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	set("scheme", *scheme)
 	set("at", *at)
 
-	in := stdin
-	name := "standard input"
-	if files[0] != "-" {
-		f, err := os.Open(files[0])
-		if err != nil {
-			fmt.Fprintln(stderr, "eivfit fit:", err)
-			return exitError{2}
-		}
-		defer f.Close()
-		in, name = f, files[0]
+	in, name, err := openInput(file, stdin, "fit", stderr)
+	if err != nil {
+		return err
 	}
+	defer in.Close()
 	resp, err := api.FitCSV(ctx, in, q, api.DefaultSettings)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	switch {
-	case *format == "text":
-		return api.WriteText(stdout, resp)
-	case *pretty:
-		return api.WritePrettyJSON(stdout, resp)
+	return writeOutput(stdout, *format, *pretty, resp, func(w io.Writer) error { return api.WriteText(w, resp) })
+}
+
+// parseFileArgs parses flags that may stand before or after the one FILE
+// argument, and checks --format. done is true when the command should stop
+// (help shown, or an error already reported) with err.
+func parseFileArgs(fs *flag.FlagSet, args []string, cmd string, format *string, stderr io.Writer) (file string, done bool, err error) {
+	var files []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			if errors.Is(err, flag.ErrHelp) {
+				return "", true, nil
+			}
+			return "", true, exitError{2}
+		}
+		if fs.NArg() == 0 {
+			break
+		}
+		files = append(files, fs.Arg(0))
+		args = fs.Args()[1:]
 	}
-	return api.WriteJSON(stdout, resp)
+	if len(files) != 1 {
+		fmt.Fprintf(stderr, "eivfit %s: name exactly one CSV file (or - for standard input)\n", cmd)
+		fs.Usage()
+		return "", true, exitError{2}
+	}
+	if *format != "json" && *format != "text" {
+		fmt.Fprintf(stderr, "eivfit %s: --format must be json or text, not %q\n", cmd, *format)
+		return "", true, exitError{2}
+	}
+	return files[0], false, nil
+}
+
+// openInput opens FILE, "-" meaning stdin; the caller closes it.
+func openInput(name string, stdin io.Reader, cmd string, stderr io.Writer) (io.ReadCloser, string, error) {
+	if name == "-" {
+		return io.NopCloser(stdin), "standard input", nil
+	}
+	f, err := os.Open(name)
+	if err != nil {
+		fmt.Fprintf(stderr, "eivfit %s: %v\n", cmd, err)
+		return nil, "", exitError{2}
+	}
+	return f, name, nil
+}
+
+// writeOutput prints the answer as text, indented JSON or JSON.
+func writeOutput(stdout io.Writer, format string, pretty bool, v any, text func(io.Writer) error) error {
+	switch {
+	case format == "text":
+		return text(stdout)
+	case pretty:
+		return api.WritePrettyJSON(stdout, v)
+	}
+	return api.WriteJSON(stdout, v)
 }
 
 // reportProblem prints a problem with every offending place, and returns
