@@ -308,3 +308,21 @@ func TestWeightedDemingFixedPoint(t *testing.T) {
 	g := must(t)(eiv.WeightedDeming(scale(x, 1000), scale(y, 1000), &eiv.DemingOptions{Lambda: lam}))
 	near(t, "weighted deming scale-invariant", g.Slope.Value, b, 1e-11)
 }
+
+// York's jackknife (warm-started passes that skip one point) must equal
+// fitting York afresh to each leave-one-out sample; the jackknife stops at
+// a relative change of 1e-12, so 1e-10 is asserted.
+func TestYorkJackknifeMatchesRefits(t *testing.T) {
+	for _, corr := range []bool{false, true} {
+		d := randomData(17, 30, corr)
+		f := must(t)(eiv.York(d.x, d.y, d.sx, d.sy, d.r, &eiv.YorkOptions{Jackknife: true}))
+		drop := func(v []float64, i int) []float64 {
+			return append(append([]float64{}, v[:i]...), v[i+1:]...)
+		}
+		for i := range d.x {
+			g := must(t)(eiv.York(drop(d.x, i), drop(d.y, i), drop(d.sx, i), drop(d.sy, i), drop(d.r, i), nil))
+			near(t, "loo slope", f.Jackknife.SlopeLOO[i], g.Slope.Value, 1e-10)
+			near(t, "loo intercept", f.Jackknife.InterceptLOO[i], g.Intercept.Value, 1e-10)
+		}
+	}
+}

@@ -184,6 +184,10 @@ type york struct {
 	// warm, when set, starts iterate at (cx, cy) and the given slope.
 	warm   bool
 	cx, cy float64
+	// skip, when skipping, is a point the passes leave out (the
+	// jackknife's, without copying the data).
+	skipping bool
+	skip     int
 }
 
 type yorkResult struct {
@@ -321,7 +325,9 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, b0 float64) (a, b, cx, cy flo
 	change, prevChange := math.Inf(1), math.Inf(1)
 	for iter = 1; iter <= yk.maxIter; iter++ {
 		var s yorkSums
-		if r == nil {
+		if yk.skipping {
+			s, err = yk.passSkipping(x, y, sx, sy, r, cx, cy, b)
+		} else if r == nil {
 			s, err = yorkPass(x, y, sx, sy, cx, cy, b)
 		} else {
 			s, err = yorkPassR(x, y, sx, sy, r, cx, cy, b)
@@ -368,6 +374,30 @@ type yorkSums struct {
 	num, den  float64 // ΣW²(αX′Y′ + γY′²), ΣW²(αX′² + γX′Y′)
 	a, aX, aY float64 // ΣW²α, ΣW²αX′, ΣW²αY′
 	g, gX, gY float64 // ΣW²γ, ΣW²γX′, ΣW²γY′
+}
+
+// plus adds the sums of two parts of the data.
+func (s yorkSums) plus(o yorkSums) yorkSums {
+	return yorkSums{s.w + o.w, s.wx + o.wx, s.wy + o.wy, s.num + o.num, s.den + o.den,
+		s.a + o.a, s.aX + o.aX, s.aY + o.aY, s.g + o.g, s.gX + o.gX, s.gY + o.gY}
+}
+
+// passSkipping is one pass over the data without point yk.skip: the sums
+// of the points before it and of those after it.
+func (yk *york) passSkipping(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkSums, error) {
+	k := yk.skip
+	part := func(lo, hi int) (yorkSums, error) {
+		if r == nil {
+			return yorkPass(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], cx, cy, b)
+		}
+		return yorkPassR(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], r[lo:hi], cx, cy, b)
+	}
+	s1, err := part(0, k)
+	if err != nil {
+		return s1, err
+	}
+	s2, err := part(k+1, len(x))
+	return s1.plus(s2), err
 }
 
 // yorkPass gathers the sums for uncorrelated errors (ρ = 0: α = σy², γ = b·σx²).
@@ -492,28 +522,13 @@ func rAt(r []float64, i int) float64 {
 // stop at a relative slope change of 1e-12: the jackknife's spread is of
 // the order of the SE, many orders above that.
 func (yk *york) jackknife(x, y, sx, sy, r []float64, a, b, t, conf float64) (*Jackknife, error) {
-	jk := &york{tol: max(yk.tol, 1e-12), maxIter: yk.maxIter, warm: true, cx: yk.cx, cy: yk.cy}
+	jk := &york{tol: max(yk.tol, 1e-12), maxIter: yk.maxIter, warm: true, cx: yk.cx, cy: yk.cy, skipping: true}
 	n := len(x)
-	buf := make([]float64, 5*(n-1))
-	bx, by, bsx, bsy, br := buf[:n-1], buf[n-1:2*(n-1)], buf[2*(n-1):3*(n-1)], buf[3*(n-1):4*(n-1)], buf[4*(n-1):]
-	if r == nil {
-		br = nil
-	}
 	as := make([]float64, n)
 	bs := make([]float64, n)
-	drop := func(dst, src []float64, i int) {
-		copy(dst, src[:i])
-		copy(dst[i:], src[i+1:])
-	}
 	for i := range n {
-		drop(bx, x, i)
-		drop(by, y, i)
-		drop(bsx, sx, i)
-		drop(bsy, sy, i)
-		if r != nil {
-			drop(br, r, i)
-		}
-		ai, bi, _, err := jk.slopeLine(bx, by, bsx, bsy, br, b)
+		jk.skip = i
+		ai, bi, _, err := jk.slopeLine(x, y, sx, sy, r, b)
 		if err != nil {
 			return nil, fmt.Errorf("eiv: york jackknife without point %d: %w", i+1, err)
 		}
