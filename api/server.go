@@ -18,6 +18,8 @@ import (
 	"sync/atomic"
 	"time"
 
+	"eivfit/api/report"
+
 	"github.com/gin-gonic/gin"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 )
@@ -404,8 +406,21 @@ func (s *Server) settings(workers int) Settings {
 }
 
 // handleFit serves POST /v1/fit: decode (JSON or CSV), validate, compute
-// in a compute slot under the request deadline, encode.
+// in a compute slot under the request deadline, encode (JSON, or the HTML
+// report for Accept: text/html).
 func (s *Server) handleFit(c *gin.Context) {
+	serveAnalysis(s, c, fitFromCSV, DecodeFitJSON, s.computeFit,
+		func(resp *FitResponse, req *FitRequest, sha string) (*report.Page, error) {
+			return FitReport(resp, &req.Points, sha, s.cfg.Version)
+		})
+}
+
+// serveAnalysis is the flow of the analysis endpoints: the media type, the
+// body within its limits and the memory budget, decode and validate,
+// compute, then JSON or the HTML report.
+func serveAnalysis[T validator, R any](s *Server, c *gin.Context,
+	fromCSV func(io.Reader, url.Values) (T, error), fromJSON func(io.Reader) (T, error),
+	compute func(*gin.Context, T) (R, error), page func(R, T, string) (*report.Page, error)) {
 	kind := s.mediaType(c, true)
 	if kind == "" {
 		return
@@ -417,23 +432,23 @@ func (s *Server) handleFit(c *gin.Context) {
 	}
 	defer release()
 	body, sum := hashingBody(body)
-	req, err := decodeRequest(s, c, kind, body, fitFromCSV, DecodeFitJSON)
+	req, err := decodeRequest(s, c, kind, body, fromCSV, fromJSON)
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	resp, err := s.computeFit(c, req)
+	resp, err := compute(c, req)
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
 	if wantsHTML(c) {
-		page, err := FitReport(resp, &req.Points, hexSum(sum), s.cfg.Version)
+		pg, err := page(resp, req, hexSum(sum))
 		if err != nil {
 			s.problem(c, s.toProblem(c, err))
 			return
 		}
-		s.writeHTML(c, http.StatusOK, page.Write)
+		s.writeHTML(c, http.StatusOK, pg.Write)
 		return
 	}
 	s.writeJSON(c, http.StatusOK, resp)

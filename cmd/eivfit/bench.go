@@ -291,34 +291,13 @@ func slope(x, y []float64) float64 {
 // one over loopback: first closed-loop at full speed for the throughput,
 // then open-loop at half that rate for the latency.
 func benchHTTP(ctx context.Context, stdout, stderr io.Writer, dur time.Duration) error {
-	exe, err := os.Executable()
-	if err != nil {
-		return err
-	}
 	cctx, cancel := context.WithCancel(ctx)
 	defer cancel()
-	cmd := exec.CommandContext(cctx, exe, "serve", "--addr", "127.0.0.1:0", "--log-level", "error")
-	out, err := cmd.StdoutPipe()
+	base, child, err := startServer(cctx)
 	if err != nil {
 		return err
 	}
-	cmd.Stderr = io.Discard
-	if err := cmd.Start(); err != nil {
-		return err
-	}
-	defer func() { _ = cmd.Process.Signal(os.Interrupt); _ = cmd.Wait() }()
-	sc := bufio.NewScanner(out)
-	base := ""
-	for sc.Scan() {
-		if u, ok := strings.CutPrefix(sc.Text(), "eivfit "+version+" listening on "); ok {
-			base = u
-			break
-		}
-	}
-	go io.Copy(io.Discard, out)
-	if base == "" {
-		return errors.New("the server did not start")
-	}
+	defer stopServer(child)
 	r := rand.New(rand.NewPCG(5, 5))
 	var pts []string
 	for range 40 {
@@ -438,4 +417,37 @@ func wrkThroughput(ctx context.Context, wrk, base string, body []byte, dur time.
 		}
 	}
 	return 0, errors.New("no Requests/sec line in wrk's output")
+}
+
+// startServer starts `eivfit serve` on a free loopback port as a child
+// process and returns its base URL once it listens.
+func startServer(ctx context.Context) (string, *exec.Cmd, error) {
+	exe, err := os.Executable()
+	if err != nil {
+		return "", nil, err
+	}
+	cmd := exec.CommandContext(ctx, exe, "serve", "--addr", "127.0.0.1:0", "--log-level", "error")
+	out, err := cmd.StdoutPipe()
+	if err != nil {
+		return "", nil, err
+	}
+	cmd.Stderr = io.Discard
+	if err := cmd.Start(); err != nil {
+		return "", nil, err
+	}
+	sc := bufio.NewScanner(out)
+	for sc.Scan() {
+		if u, ok := strings.CutPrefix(sc.Text(), "eivfit "+version+" listening on "); ok {
+			go io.Copy(io.Discard, out)
+			return u, cmd, nil
+		}
+	}
+	stopServer(cmd)
+	return "", nil, errors.New("the server did not start")
+}
+
+// stopServer drains the child (SIGINT) and waits for it.
+func stopServer(cmd *exec.Cmd) {
+	_ = cmd.Process.Signal(os.Interrupt)
+	_ = cmd.Wait()
 }

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bufio"
 	"bytes"
 	"context"
 	"errors"
@@ -52,31 +51,11 @@ func runLoad(ctx context.Context, args []string, stdout, stderr io.Writer) error
 	base := fmt.Sprintf("http://127.0.0.1:%d", *port)
 	var child *exec.Cmd
 	if *port == 0 {
-		exe, err := os.Executable()
-		if err != nil {
+		var err error
+		if base, child, err = startServer(ctx); err != nil {
 			return err
 		}
-		child = exec.CommandContext(ctx, exe, "serve", "--addr", "127.0.0.1:0", "--log-level", "error")
-		out, err := child.StdoutPipe()
-		if err != nil {
-			return err
-		}
-		if err := child.Start(); err != nil {
-			return err
-		}
-		defer func() { _ = child.Process.Signal(os.Interrupt); _ = child.Wait() }()
-		sc := bufio.NewScanner(out)
-		base = ""
-		for sc.Scan() {
-			if u, ok := strings.CutPrefix(sc.Text(), "eivfit "+version+" listening on "); ok {
-				base = u
-				break
-			}
-		}
-		go io.Copy(io.Discard, out)
-		if base == "" {
-			return errors.New("the server did not start")
-		}
+		defer stopServer(child)
 	}
 	tr := &http.Transport{MaxIdleConnsPerHost: 256, DisableCompression: true}
 	client := &http.Client{Transport: tr, Timeout: 120 * time.Second}
