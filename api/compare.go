@@ -324,16 +324,7 @@ func (req *CompareRequest) Validate(lim Limits) error {
 }
 
 func (req *CompareRequest) locate(i int, field string) string {
-	if req.csv {
-		if i < 0 || i >= len(req.rows) {
-			return "body"
-		}
-		if field == "" {
-			return fmt.Sprintf("row %d", req.rows[i])
-		}
-		return fmt.Sprintf("row %d, column %s", req.rows[i], field)
-	}
-	return jsonLocator("/samples")(i, field)
+	return locateRow(req.csv, req.rows, "/samples", i, field)
 }
 
 // study is a comparison's data reduced to one value per method and sample.

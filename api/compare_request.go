@@ -2,13 +2,10 @@ package api
 
 import (
 	"bytes"
-	"encoding/csv"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
-	"math"
-	"net/http"
 	"net/url"
 	"regexp"
 	"slices"
@@ -244,18 +241,11 @@ var replicateColumn = regexp.MustCompile(`^([xy])_?([0-9]{1,2})$`)
 // replicate cells are allowed as long as each sample keeps one value per
 // method.
 func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
-	body, err := io.ReadAll(r)
+	body, err := csvBody(r)
 	if err != nil {
-		var mbe *http.MaxBytesError
-		if errors.As(err, &mbe) {
-			return nil, mbe
-		}
-		return nil, invalid("body", "the body could not be read")
+		return nil, err
 	}
-	body = bytes.TrimPrefix(body, []byte("\xef\xbb\xbf"))
-	cr := csv.NewReader(bytes.NewReader(body))
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
+	cr := newCSVReader(body)
 	header, err := cr.Read()
 	if err == io.EOF {
 		return nil, invalid("row 1", "the CSV body is empty: a header (id,x1,x2,y1,y2) and one row per sample are needed")
@@ -374,17 +364,7 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 			return invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
 		}
 	}
-	num := func(name string) (*float64, error) {
-		s := q.Get(name)
-		if s == "" {
-			return nil, nil
-		}
-		v, err := strconv.ParseFloat(s, 64)
-		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, invalid("query parameter "+name, fmt.Sprintf("%q is not a finite number", truncate(s)))
-		}
-		return &v, nil
-	}
+	num := func(name string) (*float64, error) { return queryFloat(q, name) }
 	req.XName, req.YName, req.Unit, req.ErrorModel = q.Get("x_name"), q.Get("y_name"), q.Get("unit"), q.Get("error_model")
 	var err error
 	if req.Lambda, err = num("lambda"); err != nil {
@@ -404,11 +384,11 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 	if abs != nil || pct != nil {
 		req.AllowableBias = &Allowable{Absolute: abs, Percent: pct}
 	}
-	for _, f := range splitList(q.Get("decision_levels")) {
-		v, err := strconv.ParseFloat(f, 64)
-		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-			return invalid("query parameter decision_levels", fmt.Sprintf("%q is not a finite number", truncate(f)))
-		}
+	levels, err := queryFloats(q, "decision_levels")
+	if err != nil {
+		return err
+	}
+	for _, v := range levels {
 		req.DecisionLevels = append(req.DecisionLevels, DecisionLevel{Level: v})
 	}
 	req.Exclude = splitList(q.Get("exclude"))

@@ -1,7 +1,6 @@
 package api
 
 import (
-	"bufio"
 	"bytes"
 	"encoding/csv"
 	"errors"
@@ -25,27 +24,38 @@ var csvColumns = []string{"x", "y", "sx", "sy", "r", "id", "order"}
 // DecodeCSV reads a dataset from CSV. Errors are *Problem values whose
 // pointers read "row N, column C".
 func DecodeCSV(r io.Reader) (*Dataset, error) {
+	body, err := csvBody(r)
+	if err != nil {
+		return nil, err
+	}
+	if bytes.IndexByte(body, '"') < 0 {
+		return decodeCSVPlain(body)
+	}
+	return decodeCSVReader(body)
+}
+
+// csvBody reads a CSV body and drops a UTF-8 byte-order mark.
+func csvBody(r io.Reader) ([]byte, error) {
 	body, err := readBody(r)
 	if err != nil {
 		return nil, err
 	}
-	body = bytes.TrimPrefix(body, []byte("\xef\xbb\xbf"))
-	if bytes.IndexByte(body, '"') < 0 {
-		return decodeCSVPlain(body)
-	}
-	return decodeCSVReader(bytes.NewReader(body))
+	return bytes.TrimPrefix(body, []byte("\xef\xbb\xbf")), nil
+}
+
+// newCSVReader reads eivfit's CSV: '#' comment lines, leading spaces
+// trimmed from fields.
+func newCSVReader(body []byte) *csv.Reader {
+	cr := csv.NewReader(bytes.NewReader(body))
+	cr.Comment = '#'
+	cr.TrimLeadingSpace = true
+	return cr
 }
 
 // decodeCSVReader is the general path, through encoding/csv (quoted fields).
-func decodeCSVReader(r io.Reader) (*Dataset, error) {
-	br := bufio.NewReaderSize(r, 64<<10)
-	if b, err := br.Peek(3); err == nil && bytes.Equal(b, []byte("\xef\xbb\xbf")) {
-		_, _ = br.Discard(3)
-	}
-	cr := csv.NewReader(br)
-	cr.Comment = '#'
+func decodeCSVReader(body []byte) (*Dataset, error) {
+	cr := newCSVReader(body)
 	cr.ReuseRecord = true
-	cr.TrimLeadingSpace = true
 
 	header, err := cr.Read()
 	if err == io.EOF {

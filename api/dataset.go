@@ -32,16 +32,22 @@ func (d *Dataset) Len() int { return len(d.X) }
 // locate returns the pointer for point i's field: a JSON pointer under
 // /points, or a CSV row and column.
 func (d *Dataset) locate(i int, field string) string {
-	if d.csv {
-		if i < 0 || i >= len(d.rows) {
-			return "body"
-		}
-		if field == "" {
-			return fmt.Sprintf("row %d", d.rows[i])
-		}
-		return fmt.Sprintf("row %d, column %s", d.rows[i], field)
+	return locateRow(d.csv, d.rows, "/points", i, field)
+}
+
+// locateRow names point i's field: for CSV input by its line ("row N,
+// column C"; "body" for the whole input), else by JSON pointer under base.
+func locateRow(csv bool, rows []int, base string, i int, field string) string {
+	if !csv {
+		return jsonLocator(base)(i, field)
 	}
-	return jsonLocator("/points")(i, field)
+	if i < 0 || i >= len(rows) {
+		return "body"
+	}
+	if field == "" {
+		return fmt.Sprintf("row %d", rows[i])
+	}
+	return fmt.Sprintf("row %d, column %s", rows[i], field)
 }
 
 // UnmarshalJSON decodes the "points" array: [{"x": 1, "y": 2, "sx": 0.1, ...}].

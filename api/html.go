@@ -519,10 +519,7 @@ func (s *Server) handlePlot(c *gin.Context) {
 	var req *FitRequest
 	var err error
 	if mt == "csv" {
-		var d *Dataset
-		if d, err = DecodeCSV(body); err == nil {
-			req, err = FitRequestFromQuery(q, d)
-		}
+		req, err = fitFromCSV(body, q)
 	} else {
 		if len(q) > 0 {
 			s.problem(c, invalid("query", "with a JSON body only the query parameter method is taken"))

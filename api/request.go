@@ -185,17 +185,7 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 			return nil, invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
 		}
 	}
-	num := func(name string) (*float64, error) {
-		s := q.Get(name)
-		if s == "" {
-			return nil, nil
-		}
-		v, err := strconv.ParseFloat(s, 64)
-		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, invalid("query parameter "+name, fmt.Sprintf("%q is not a finite number", truncate(s)))
-		}
-		return &v, nil
-	}
+	num := func(name string) (*float64, error) { return queryFloat(q, name) }
 	var err error
 	if s := q.Get("methods"); s != "" {
 		req.Methods = splitList(s)
@@ -223,16 +213,44 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 			req.Bootstrap.Seed = &v
 		}
 	}
-	if s := q.Get("at"); s != "" {
-		for _, f := range splitList(s) {
-			v, err := strconv.ParseFloat(f, 64)
-			if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-				return nil, invalid("query parameter at", fmt.Sprintf("%q is not a finite number", truncate(f)))
-			}
-			req.At = append(req.At, v)
-		}
+	if req.At, err = queryFloats(q, "at"); err != nil {
+		return nil, err
 	}
 	return req, nil
+}
+
+// queryFloat reads an optional finite number from the query.
+func queryFloat(q url.Values, name string) (*float64, error) {
+	s := q.Get(name)
+	if s == "" {
+		return nil, nil
+	}
+	v, err := finiteQuery(name, s)
+	if err != nil {
+		return nil, err
+	}
+	return &v, nil
+}
+
+// queryFloats reads an optional comma list of finite numbers from the query.
+func queryFloats(q url.Values, name string) ([]float64, error) {
+	var out []float64
+	for _, f := range splitList(q.Get(name)) {
+		v, err := finiteQuery(name, f)
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, v)
+	}
+	return out, nil
+}
+
+func finiteQuery(name, s string) (float64, error) {
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, invalid("query parameter "+name, fmt.Sprintf("%q is not a finite number", truncate(s)))
+	}
+	return v, nil
 }
 
 func splitList(s string) []string {

@@ -31,26 +31,17 @@ type Agreement struct {
 // the limits; zero means 1.96. The differences in percent use
 // AgreementPercent.
 func BlandAltman(x, y []float64, multiplier float64, opt *Options) (*Agreement, error) {
-	conf, err := opt.confidence()
-	if err != nil {
-		return nil, err
-	}
-	if len(x) != len(y) {
-		return nil, ErrLengthMismatch
-	}
-	d := make([]float64, len(x))
-	m := make([]float64, len(x))
-	for i := range x {
-		d[i] = y[i] - x[i]
-		m[i] = (x[i] + y[i]) / 2
-	}
-	return agreementOf(d, m, multiplier, conf)
+	return blandAltman(x, y, multiplier, opt, false)
 }
 
 // BlandAltmanPercent is BlandAltman on the differences in percent of the
 // mean level, 100·(y − x)/((x + y)/2): the scale on which a proportional
 // error is constant. Every mean level must be positive.
 func BlandAltmanPercent(x, y []float64, multiplier float64, opt *Options) (*Agreement, error) {
+	return blandAltman(x, y, multiplier, opt, true)
+}
+
+func blandAltman(x, y []float64, multiplier float64, opt *Options, percent bool) (*Agreement, error) {
 	conf, err := opt.confidence()
 	if err != nil {
 		return nil, err
@@ -62,10 +53,13 @@ func BlandAltmanPercent(x, y []float64, multiplier float64, opt *Options) (*Agre
 	m := make([]float64, len(x))
 	for i := range x {
 		m[i] = (x[i] + y[i]) / 2
-		if !(m[i] > 0) {
-			return nil, &PointError{Index: i, Field: "x", Err: ErrNonPositiveLevel}
+		d[i] = y[i] - x[i]
+		if percent {
+			if !(m[i] > 0) {
+				return nil, &PointError{Index: i, Field: "x", Err: ErrNonPositiveLevel}
+			}
+			d[i] = 100 * d[i] / m[i]
 		}
-		d[i] = 100 * (y[i] - x[i]) / m[i]
 	}
 	return agreementOf(d, m, multiplier, conf)
 }

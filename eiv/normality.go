@@ -149,21 +149,8 @@ func NormalQQ(v []float64) []QQPoint {
 		ss += (x - mean) * (x - mean)
 	}
 	sd := math.Sqrt(ss / float64(n-1))
-	idx := make([]int, n)
-	for i := range idx {
-		idx[i] = i
-	}
-	slices.SortStableFunc(idx, func(a, b int) int {
-		switch {
-		case v[a] < v[b]:
-			return -1
-		case v[a] > v[b]:
-			return 1
-		}
-		return 0
-	})
 	out := make([]QQPoint, n)
-	for r, i := range idx {
+	for r, i := range order(v) {
 		z := 0.0
 		if sd > 0 {
 			z = (v[i] - mean) / sd

@@ -113,22 +113,21 @@ func kendallExactCDF(n, c int) float64 {
 	return s
 }
 
-// ranks returns average ranks (1-based), ties sharing the mean rank.
-func ranks(v []float64) []float64 {
-	n := len(v)
-	idx := make([]int, n)
+// order returns the indices of v in ascending order of value, ties in
+// input order.
+func order(v []float64) []int {
+	idx := make([]int, len(v))
 	for i := range idx {
 		idx[i] = i
 	}
-	slices.SortFunc(idx, func(a, b int) int {
-		switch {
-		case v[a] < v[b]:
-			return -1
-		case v[a] > v[b]:
-			return 1
-		}
-		return 0
-	})
+	slices.SortStableFunc(idx, func(a, b int) int { return cmpFloat(v[a], v[b]) })
+	return idx
+}
+
+// ranks returns average ranks (1-based), ties sharing the mean rank.
+func ranks(v []float64) []float64 {
+	n := len(v)
+	idx := order(v)
 	r := make([]float64, n)
 	for i := 0; i < n; {
 		j := i
