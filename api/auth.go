@@ -1,6 +1,8 @@
 package api
 
 import (
+	"eivfit/api/wire"
+
 	"bufio"
 	"crypto/sha256"
 	"crypto/subtle"
@@ -70,7 +72,7 @@ func (s *Server) authorize(c *gin.Context) {
 	}
 	token, ok := strings.CutPrefix(c.GetHeader("Authorization"), "Bearer ")
 	if !ok || !s.keys.valid(strings.TrimSpace(token)) {
-		s.problem(c, newProblem(kindUnauthorized, "send a valid API key as \"Authorization: Bearer KEY\""))
+		s.problem(c, wire.NewProblem(wire.KindUnauthorized, "send a valid API key as \"Authorization: Bearer KEY\""))
 	}
 }
 

@@ -9,58 +9,22 @@ import (
 	"runtime"
 	"sync"
 
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
+
 	"github.com/gin-gonic/gin"
 )
 
-// BatchRequest is the body of POST /v1/batch: many named datasets (for
-// example every analyte of one study), each a complete fit request.
-type BatchRequest struct {
-	Datasets []json.RawMessage `json:"datasets"`
-}
-
-// BatchEntry is one dataset of a batch: a fit request with a name.
-type BatchEntry struct {
-	Name string `json:"name,omitempty"`
-	FitRequest
-}
-
-// BatchResponse holds one result per dataset, in request order. A dataset
-// that cannot be fitted has its own problem and does not fail the others.
-type BatchResponse struct {
-	Results []BatchResult `json:"results"`
-	OK      int           `json:"ok"`
-	Failed  int           `json:"failed"`
-}
-
-// BatchResult is the outcome of one dataset: Fit when Status is 200,
-// otherwise Problem.
-type BatchResult struct {
-	Name    string       `json:"name"`
-	Status  int          `json:"status"`
-	Fit     *FitResponse `json:"fit,omitempty"`
-	Problem *Problem     `json:"problem,omitempty"`
-}
-
-// prefixed returns a copy of p with every pointer moved under prefix.
-func prefixed(p *Problem, prefix string) *Problem {
-	q := *p
-	q.Errors = make([]FieldError, len(p.Errors))
-	for i, e := range p.Errors {
-		q.Errors[i] = FieldError{Pointer: prefix + e.Pointer, Detail: e.Detail}
-	}
-	return &q
-}
-
 // RunBatch decodes and fits every dataset in parallel (up to GOMAXPROCS at
 // once, each bootstrap on one core), stopping early only when ctx ends.
-func RunBatch(ctx context.Context, req *BatchRequest, set Settings, maxBatch int) (*BatchResponse, error) {
+func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, maxBatch int) (*wire.BatchResponse, error) {
 	if len(req.Datasets) == 0 {
-		return nil, invalid("/datasets", "datasets is required: an array of fit requests, each with a name")
+		return nil, wire.Invalid("/datasets", "datasets is required: an array of fit requests, each with a name")
 	}
 	if maxBatch > 0 && len(req.Datasets) > maxBatch {
-		return nil, invalid("/datasets", fmt.Sprintf("at most %d datasets per batch", maxBatch))
+		return nil, wire.Invalid("/datasets", fmt.Sprintf("at most %d datasets per batch", maxBatch))
 	}
-	out := &BatchResponse{Results: make([]BatchResult, len(req.Datasets))}
+	out := &wire.BatchResponse{Results: make([]wire.BatchResult, len(req.Datasets))}
 	set.Workers = 1
 	work := make(chan int)
 	var wg sync.WaitGroup
@@ -94,31 +58,36 @@ func RunBatch(ctx context.Context, req *BatchRequest, set Settings, maxBatch int
 	return out, nil
 }
 
-func runEntry(ctx context.Context, i int, raw json.RawMessage, set Settings) BatchResult {
+func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Settings) wire.BatchResult {
 	prefix := fmt.Sprintf("/datasets/%d", i)
-	res := BatchResult{Name: fmt.Sprintf("dataset %d", i+1)}
-	fail := func(err error) BatchResult {
-		p, ok := err.(*Problem)
+	res := wire.BatchResult{Name: fmt.Sprintf("dataset %d", i+1)}
+	fail := func(err error) wire.BatchResult {
+		p, ok := err.(*wire.Problem)
 		if !ok {
-			p = newProblem(kindUnfittable, err.Error())
+			p = wire.NewProblem(wire.KindUnfittable, err.Error())
 		}
-		res.Problem = prefixed(p, prefix)
+		res.Problem = wire.Prefixed(p, prefix)
 		res.Status = p.Status
 		return res
 	}
-	var e BatchEntry
-	if err := decodeStrict(bytes.NewReader(raw), &e); err != nil {
+	var e wire.BatchEntry
+	if err := wire.DecodeStrict(bytes.NewReader(raw), &e); err != nil {
 		return fail(err)
 	}
 	if e.Name != "" {
 		res.Name = e.Name
 	}
-	fit, err := Fit(ctx, &e.FitRequest, set)
+	src := e.FitRequest.Source()
+	r, err := study.Fit(ctx, e.Points.Data, e.Options(set))
 	if err != nil {
 		if ctx.Err() != nil {
-			return fail(newProblem(kindDeadline, "the batch ran past its deadline before this dataset was fitted"))
+			return fail(wire.NewProblem(wire.KindDeadline, "the batch ran past its deadline before this dataset was fitted"))
 		}
-		return fail(err)
+		return fail(src.Problem(err))
+	}
+	fit := wire.NewFitResponse(r)
+	if _, err := wire.Marshal(fit); err != nil { // the finite check of every answer
+		return fail(src.Problem(err))
 	}
 	res.Status, res.Fit = http.StatusOK, fit
 	return res
@@ -135,16 +104,16 @@ func (s *Server) handleBatch(c *gin.Context) {
 		return
 	}
 	defer release()
-	var req BatchRequest
-	if err := decodeStrict(body, &req); err != nil {
-		s.problem(c, s.toProblem(c, err))
+	var req wire.BatchRequest
+	if err := wire.DecodeStrict(body, &req); err != nil {
+		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	resp, err := inSlot(s, c, func(ctx context.Context) (*BatchResponse, error) {
+	resp, err := inSlot(s, c, func(ctx context.Context) (*wire.BatchResponse, error) {
 		return RunBatch(ctx, &req, s.settings(1), s.cfg.MaxBatch)
 	})
 	if err != nil {
-		s.problem(c, s.toProblem(c, err))
+		s.problem(c, s.problemFor(c, err))
 		return
 	}
 	for _, r := range resp.Results {

@@ -3,6 +3,8 @@ package api
 import (
 	"bufio"
 	"context"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -18,7 +20,7 @@ import (
 // each must end in its 4xx status with the problem naming the offending
 // place. Nothing may panic, answer 5xx, hang or return a NaN.
 func TestBadInputCatalogue(t *testing.T) {
-	h := newHarness(t, Config{MaxBodyBytes: 256 << 10, Limits: Limits{MaxPoints: 2000, MaxResamples: 5000, MaxAt: 50}})
+	h := newHarness(t, Config{MaxBodyBytes: 256 << 10, Limits: study.Limits{MaxPoints: 2000, MaxResamples: 5000, MaxAt: 50}})
 	p3 := `[{"x":1,"y":2},{"x":2,"y":3},{"x":3,"y":5}]`
 	pts := func(extra string) string { return `{"points":` + p3 + extra + `}` }
 	many := func(n int) string {
@@ -124,7 +126,7 @@ func TestBadInputCatalogue(t *testing.T) {
 			if status != c.status {
 				t.Fatalf("status %d, want %d: %s", status, c.status, truncate(body))
 			}
-			var p Problem
+			var p wire.Problem
 			if err := json.Unmarshal([]byte(body), &p); err != nil || p.Status != c.status || p.Type == "" || p.Title == "" {
 				t.Fatalf("not a problem document: %v %s", err, truncate(body))
 			}

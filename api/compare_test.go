@@ -2,6 +2,7 @@ package api
 
 import (
 	"context"
+	"eivfit/api/wire"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -11,13 +12,13 @@ import (
 	"testing"
 )
 
-func decodeCompare(t *testing.T, body string) *CompareResponse {
+func decodeCompare(t *testing.T, body string) *wire.CompareResponse {
 	t.Helper()
-	req, err := DecodeCompareJSON(strings.NewReader(body))
+	req, err := wire.DecodeCompareJSON(strings.NewReader(body))
 	if err != nil {
 		t.Fatal(err)
 	}
-	resp, err := Compare(context.Background(), req, DefaultSettings)
+	resp, err := runCompare(context.Background(), req, defaultSettings)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -99,7 +100,7 @@ func TestCompareRecoversKnownBias(t *testing.T) {
 		}
 		d := resp.Fits.Deming
 		for _, c := range []struct {
-			ci   CI
+			ci   wire.CI
 			true float64
 		}{{d.Slope.CI, 1.06}, {d.Intercept.CI, 0.4}, {resp.DecisionLevels[0].Fits["deming"].Bias.CI, 0.4 + 0.06*5}} {
 			trials++
@@ -201,9 +202,9 @@ func TestCompareErrors(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			req, err := DecodeCompareJSON(strings.NewReader(c.body))
+			req, err := wire.DecodeCompareJSON(strings.NewReader(c.body))
 			if err == nil {
-				_, err = Compare(context.Background(), req, DefaultSettings)
+				_, err = runCompare(context.Background(), req, defaultSettings)
 			}
 			if err == nil {
 				t.Fatal("no error")
@@ -221,7 +222,11 @@ func TestCompareErrors(t *testing.T) {
 func TestCompareCSVMatchesJSON(t *testing.T) {
 	csv := "id,order,x1,x2,y1,y2\n# a comment\nA,1,1.0,1.1,1.2,1.1\nB,2,2.0,2.1,2.3,2.2\nC,3,3.1,2.9,3.2,3.3\nD,4,4.0,4.2,4.1,4.4\nE,5,5.1,4.9,5.4,5.2\n"
 	js := `{"samples":[{"id":"A","order":1,"x":[1.0,1.1],"y":[1.2,1.1]},{"id":"B","order":2,"x":[2.0,2.1],"y":[2.3,2.2]},{"id":"C","order":3,"x":[3.1,2.9],"y":[3.2,3.3]},{"id":"D","order":4,"x":[4.0,4.2],"y":[4.1,4.4]},{"id":"E","order":5,"x":[5.1,4.9],"y":[5.4,5.2]}],"decision_levels":[2.5],"allowable_bias":{"absolute":0.3}}`
-	a, err := CompareCSV(context.Background(), strings.NewReader(csv), map[string][]string{"decision_levels": {"2.5"}, "allowable_absolute": {"0.3"}}, DefaultSettings)
+	req, err := wire.CompareFromCSV(strings.NewReader(csv), map[string][]string{"decision_levels": {"2.5"}, "allowable_absolute": {"0.3"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	a, err := runCompare(context.Background(), req, defaultSettings)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -236,7 +241,7 @@ func TestCompareCSVMatchesJSON(t *testing.T) {
 		{"id,x1,x2,y1\nA,1,,\n", "row 2, column y"},
 		{"id,x1,y1\nA,1,abc\n", "row 2, column y1"},
 	} {
-		_, err := DecodeCompareCSV(strings.NewReader(c.body))
+		_, err := wire.DecodeCompareCSV(strings.NewReader(c.body))
 		if p := problemOf(t, err); p.Errors[0].Pointer != c.pointer {
 			t.Errorf("%q: pointer %q, want %q", c.body, p.Errors[0].Pointer, c.pointer)
 		}

@@ -2,30 +2,33 @@ package api
 
 import (
 	"context"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 	"errors"
 	"net/url"
 	"strings"
 	"testing"
 )
 
-func problemOf(t *testing.T, err error) *Problem {
+func problemOf(t *testing.T, err error) *wire.Problem {
 	t.Helper()
-	var p *Problem
+	var p *wire.Problem
 	if !errors.As(err, &p) {
-		t.Fatalf("want a *Problem, got %T %v", err, err)
+		t.Fatalf("want a *wire.Problem, got %T %v", err, err)
 	}
 	return p
 }
 
 func TestDecodeCSV(t *testing.T) {
-	d, err := DecodeCSV(strings.NewReader("\xef\xbb\xbf# a comment\nID,X,Y,Sx,SY\nA,1,2,0.1,0.2\nB,2,4.1,0.1,0.2\n# between\nC,3,5.9,0.1,0.2\n"))
+	d, err := wire.DecodeCSV(strings.NewReader("\xef\xbb\xbf# a comment\nID,X,Y,Sx,SY\nA,1,2,0.1,0.2\nB,2,4.1,0.1,0.2\n# between\nC,3,5.9,0.1,0.2\n"))
 	if err != nil {
 		t.Fatal(err)
 	}
 	if d.Len() != 3 || d.X[2] != 3 || d.SY[1] != 0.2 || d.ID[0] != "A" || d.R != nil {
 		t.Fatalf("decoded %+v", d)
 	}
-	if got := d.locate(2, "sx"); got != "row 6, column sx" {
+	src := (&wire.FitRequest{Points: *d}).Source()
+	if got := src.Locate(&study.Error{Field: "sx", Index: 2}); got != "row 6, column sx" {
 		t.Errorf("locate = %q", got)
 	}
 }
@@ -53,7 +56,7 @@ func TestDecodeCSVErrors(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			_, err := DecodeCSV(strings.NewReader(c.body))
+			_, err := wire.DecodeCSV(strings.NewReader(c.body))
 			if err == nil {
 				t.Fatal("no error")
 			}
@@ -99,7 +102,7 @@ func TestDecodeFitJSONErrors(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			_, err := DecodeFitJSON(strings.NewReader(c.body))
+			_, err := wire.DecodeFitJSON(strings.NewReader(c.body))
 			if err == nil {
 				t.Fatal("no error")
 			}
@@ -145,11 +148,11 @@ func TestValidateAndFitErrors(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			req, err := DecodeFitJSON(strings.NewReader(c.body))
+			req, err := wire.DecodeFitJSON(strings.NewReader(c.body))
 			if err != nil {
 				t.Fatal(err)
 			}
-			_, err = Fit(context.Background(), req, DefaultSettings)
+			_, err = runFit(context.Background(), req, defaultSettings)
 			if err == nil {
 				t.Fatal("no error")
 			}
@@ -172,13 +175,13 @@ func TestOddButValid(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			req, err := DecodeFitJSON(strings.NewReader(c.body))
+			req, err := wire.DecodeFitJSON(strings.NewReader(c.body))
 			if err != nil {
 				t.Fatal(err)
 			}
-			resp, err := Fit(context.Background(), req, DefaultSettings)
+			resp, err := runFit(context.Background(), req, defaultSettings)
 			if err != nil {
-				var p *Problem
+				var p *wire.Problem
 				// Values near the double limits may be refused, but only
 				// as unfittable data with a pointer, never a NaN.
 				if errors.As(err, &p) && p.Status == 422 && p.Errors[0].Pointer == "/points" &&
@@ -187,7 +190,7 @@ func TestOddButValid(t *testing.T) {
 				}
 				t.Fatal(err)
 			}
-			if err := checkFinite(resp); err != nil {
+			if _, err := wire.Marshal(resp); err != nil {
 				t.Fatal(err)
 			}
 		})
@@ -195,7 +198,7 @@ func TestOddButValid(t *testing.T) {
 }
 
 func TestQueryParameters(t *testing.T) {
-	d, err := DecodeCSV(strings.NewReader("x,y\n1,2\n2,3\n3,5\n"))
+	d, err := wire.DecodeCSV(strings.NewReader("x,y\n1,2\n2,3\n3,5\n"))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -208,7 +211,7 @@ func TestQueryParameters(t *testing.T) {
 		{"method=york", "query parameter method"},
 	} {
 		q, _ := url.ParseQuery(c.q)
-		_, err := FitRequestFromQuery(q, d)
+		_, err := wire.FitRequestFromQuery(q, d)
 		p := problemOf(t, err)
 		if p.Errors[0].Pointer != c.pointer {
 			t.Errorf("%s: pointer %q", c.q, p.Errors[0].Pointer)

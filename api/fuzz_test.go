@@ -3,6 +3,8 @@ package api
 import (
 	"bytes"
 	"context"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 	"encoding/json"
 	"errors"
 	"net/url"
@@ -11,14 +13,14 @@ import (
 )
 
 // fuzzSettings keep each fuzzed fit small and quick.
-var fuzzSettings = Settings{Limits: Limits{MaxPoints: 500, MaxResamples: 200, MaxAt: 20}, Workers: 1, JackknifeMaxN: 100}
+var fuzzSettings = study.Settings{Limits: study.Limits{MaxPoints: 500, MaxResamples: 200, MaxAt: 20}, Workers: 1, JackknifeMaxN: 100}
 
-// mustBeClean fails on anything but a finite answer or a *Problem with a
+// mustBeClean fails on anything but a finite answer or a *wire.Problem with a
 // 4xx status.
 func mustBeClean(t *testing.T, resp any, err error) {
 	t.Helper()
 	if err != nil {
-		var p *Problem
+		var p *wire.Problem
 		if !errors.As(err, &p) || p.Status < 400 || p.Status >= 500 {
 			t.Fatalf("not a 4xx problem: %T %v", err, err)
 		}
@@ -49,14 +51,14 @@ func FuzzFitJSON(f *testing.F) {
 		f.Add([]byte(s))
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
-		req, err := DecodeFitJSON(bytes.NewReader(data))
+		req, err := wire.DecodeFitJSON(bytes.NewReader(data))
 		if err != nil {
 			mustBeClean(t, nil, err)
 			return
 		}
 		ctx, cancel := fuzzCtx()
 		defer cancel()
-		resp, err := Fit(ctx, req, fuzzSettings)
+		resp, err := runFit(ctx, req, fuzzSettings)
 		mustBeClean(t, resp, err)
 	})
 }
@@ -78,7 +80,11 @@ func FuzzFitCSV(f *testing.F) {
 		}
 		ctx, cancel := fuzzCtx()
 		defer cancel()
-		resp, err := FitCSV(ctx, bytes.NewReader(data), q, fuzzSettings)
+		var resp *wire.FitResponse
+		req, err := wire.FitFromCSV(bytes.NewReader(data), q)
+		if err == nil {
+			resp, err = runFit(ctx, req, fuzzSettings)
+		}
 		mustBeClean(t, resp, err)
 	})
 }
@@ -93,7 +99,7 @@ func FuzzCompareJSON(f *testing.F) {
 		f.Add([]byte(s))
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
-		req, err := DecodeCompareJSON(bytes.NewReader(data))
+		req, err := wire.DecodeCompareJSON(bytes.NewReader(data))
 		if err != nil {
 			mustBeClean(t, nil, err)
 			return
@@ -103,7 +109,7 @@ func FuzzCompareJSON(f *testing.F) {
 		}
 		ctx, cancel := fuzzCtx()
 		defer cancel()
-		resp, err := Compare(ctx, req, fuzzSettings)
+		resp, err := runCompare(ctx, req, fuzzSettings)
 		mustBeClean(t, resp, err)
 	})
 }

@@ -3,6 +3,7 @@ package api
 import (
 	"bytes"
 	"crypto/sha256"
+	"eivfit/eiv/study"
 	"encoding/hex"
 	"encoding/xml"
 	"io"
@@ -123,7 +124,7 @@ func TestHTMLReports(t *testing.T) {
 			}
 			html := rec.Body.String()
 			sum := sha256.Sum256(body)
-			for _, w := range append(c.want, Caution[:60], "eivfit 9.9.9", hex.EncodeToString(sum[:]), "77", "@media print") {
+			for _, w := range append(c.want, study.Caution[:60], "eivfit 9.9.9", hex.EncodeToString(sum[:]), "77", "@media print") {
 				if !strings.Contains(html, w) {
 					t.Errorf("report lacks %q", w)
 				}

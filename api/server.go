@@ -8,17 +8,16 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
-	"mime"
 	"net"
 	"net/http"
-	"net/url"
 	"runtime"
 	"strconv"
 	"strings"
 	"sync/atomic"
 	"time"
 
-	"eivfit/api/report"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 
 	"github.com/gin-gonic/gin"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
@@ -33,7 +32,7 @@ type Config struct {
 	MetricsAddr string
 	// MaxBodyBytes bounds a request body; default 64 MiB.
 	MaxBodyBytes int64
-	Limits       Limits
+	Limits       study.Limits
 	// RequestTimeout is the deadline of one computation; default 60 s.
 	RequestTimeout time.Duration
 	// Slots is the number of computations run at once; default GOMAXPROCS.
@@ -69,7 +68,7 @@ type Config struct {
 var DefaultConfig = Config{
 	Addr:              "127.0.0.1:8080",
 	MaxBodyBytes:      64 << 20,
-	Limits:            DefaultLimits,
+	Limits:            study.DefaultLimits,
 	RequestTimeout:    60 * time.Second,
 	SlotWait:          2 * time.Second,
 	MaxBatch:          1000,
@@ -153,9 +152,11 @@ func NewServer(cfg Config) (*Server, error) {
 	e.HandleMethodNotAllowed = true
 	e.ContextWithFallback = true
 	e.Use(s.observe, gin.CustomRecovery(s.recovered))
-	e.NoRoute(func(c *gin.Context) { s.problem(c, newProblem(kindNotFound, "no such resource: see /openapi.yaml")) })
+	e.NoRoute(func(c *gin.Context) {
+		s.problem(c, wire.NewProblem(wire.KindNotFound, "no such resource: see /openapi.yaml"))
+	})
 	e.NoMethod(func(c *gin.Context) {
-		s.problem(c, newProblem(kindMethod, fmt.Sprintf("%s is not allowed here", c.Request.Method)))
+		s.problem(c, wire.NewProblem(wire.KindMethod, fmt.Sprintf("%s is not allowed here", c.Request.Method)))
 	})
 	v1 := e.Group("/v1", s.authorize)
 	v1.POST("/fit", s.handleFit)
@@ -283,12 +284,12 @@ func newRequestID() string {
 
 func (s *Server) recovered(c *gin.Context, v any) {
 	s.cfg.Logger.Error("panic", "route", c.FullPath(), "panic", fmt.Sprint(v))
-	s.problem(c, newProblem(kindInternal, "the server met an internal error; it has been logged"))
+	s.problem(c, wire.NewProblem(wire.KindInternal, "the server met an internal error; it has been logged"))
 }
 
 // problem writes an RFC 9457 answer and counts it.
-func (s *Server) problem(c *gin.Context, p *Problem) {
-	s.metrics.problems.WithLabelValues(strings.TrimPrefix(p.Type, ProblemTypeBase)).Inc()
+func (s *Server) problem(c *gin.Context, p *wire.Problem) {
+	s.metrics.problems.WithLabelValues(strings.TrimPrefix(p.Type, wire.ProblemTypeBase)).Inc()
 	if p.RetryAfter > 0 {
 		c.Header("Retry-After", strconv.Itoa(p.RetryAfter))
 	}
@@ -297,33 +298,12 @@ func (s *Server) problem(c *gin.Context, p *Problem) {
 	}
 	c.Header("Content-Type", "application/problem+json")
 	c.Status(p.Status)
-	_ = WriteJSON(c.Writer, p)
+	_ = wire.WriteJSON(c.Writer, p)
 	c.Abort()
 }
 
-// toProblem maps any error of the compute path to a problem; unknown
-// errors are internal and their text is not shown.
-func (s *Server) toProblem(c *gin.Context, err error) *Problem {
-	var p *Problem
-	var mbe *http.MaxBytesError
-	switch {
-	case errors.As(err, &p):
-		return p
-	case errors.As(err, &mbe):
-		return newProblem(kindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", s.cfg.MaxBodyBytes))
-	case errors.Is(err, context.DeadlineExceeded):
-		p := newProblem(kindDeadline, fmt.Sprintf("the computation did not finish within %v; ask for fewer resamples or points", s.cfg.RequestTimeout))
-		p.RetryAfter = 1
-		return p
-	case errors.Is(err, context.Canceled):
-		return newProblem(kindDeadline, "the request was cancelled")
-	}
-	s.cfg.Logger.Error("internal error", "route", c.FullPath(), "error", err.Error())
-	return newProblem(kindInternal, "the server met an internal error; it has been logged")
-}
-
 // acquire takes a compute slot, waiting up to SlotWait.
-func (s *Server) acquire(ctx context.Context) (release func(), p *Problem) {
+func (s *Server) acquire(ctx context.Context) (release func(), p *wire.Problem) {
 	start := time.Now()
 	t := time.NewTimer(s.cfg.SlotWait)
 	defer t.Stop()
@@ -331,185 +311,20 @@ func (s *Server) acquire(ctx context.Context) (release func(), p *Problem) {
 	case s.slots <- struct{}{}:
 	case <-t.C:
 		s.metrics.slotRejected.Inc()
-		p := newProblem(kindBusy, fmt.Sprintf("every compute slot (%d) stayed busy for %v; retry later", cap(s.slots), s.cfg.SlotWait))
+		p := wire.NewProblem(wire.KindBusy, fmt.Sprintf("every compute slot (%d) stayed busy for %v; retry later", cap(s.slots), s.cfg.SlotWait))
 		p.RetryAfter = 1
 		return nil, p
 	case <-ctx.Done():
-		return nil, newProblem(kindDeadline, "the request was cancelled while waiting for a compute slot")
+		return nil, wire.NewProblem(wire.KindDeadline, "the request was cancelled while waiting for a compute slot")
 	}
 	s.metrics.slotWait.Observe(time.Since(start).Seconds())
 	s.metrics.slotsInUse.Inc()
 	return func() { <-s.slots; s.metrics.slotsInUse.Dec() }, nil
 }
 
-// body wraps the request body with the size limit and reserves its bytes
-// in the intake budget; the caller must call release when done with the
-// request. A declared length above the limit is refused before anything is
-// read.
-func (s *Server) body(c *gin.Context) (io.Reader, func(), *Problem) {
-	n := c.Request.ContentLength
-	if n > s.cfg.MaxBodyBytes {
-		return nil, nil, newProblem(kindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
-			n, s.cfg.MaxBodyBytes))
-	}
-	want := n
-	if want < 0 {
-		want = s.cfg.MaxBodyBytes
-	}
-	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
-	defer cancel()
-	if !s.intake.acquire(ctx, want) {
-		s.metrics.slotRejected.Inc()
-		p := newProblem(kindBusy, fmt.Sprintf("the server is reading as many request bodies as its memory budget (%d bytes) allows; retry later", s.cfg.MaxInFlightBytes))
-		p.RetryAfter = 1
-		return nil, nil, p
-	}
-	s.metrics.intakeBytes.Add(float64(want))
-	release := func() {
-		s.intake.release(want)
-		s.metrics.intakeBytes.Sub(float64(want))
-	}
-	r := http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes)
-	if n > 0 {
-		return SizedReader{Reader: r, N: n}, release, nil
-	}
-	return r, release, nil
-}
-
-// mediaType returns the request's media type: "json", "csv", or "" after
-// writing a 415.
-func (s *Server) mediaType(c *gin.Context, allowCSV bool) string {
-	ct := c.GetHeader("Content-Type")
-	mt, _, err := mime.ParseMediaType(ct)
-	if ct == "" {
-		err = errors.New("missing")
-	}
-	switch {
-	case err == nil && (mt == "application/json" || strings.HasSuffix(mt, "+json")):
-		return "json"
-	case err == nil && allowCSV && (mt == "text/csv" || mt == "application/csv"):
-		return "csv"
-	}
-	want := "application/json"
-	if allowCSV {
-		want += " or text/csv"
-	}
-	s.problem(c, newProblem(kindMediaType, fmt.Sprintf("Content-Type %q is not accepted here; send %s", ct, want)))
-	return ""
-}
-
-func (s *Server) settings(workers int) Settings {
-	return Settings{Limits: s.cfg.Limits, Workers: workers, Observe: func(method string, d time.Duration, resamples int) {
+func (s *Server) settings(workers int) study.Settings {
+	return study.Settings{Limits: s.cfg.Limits, Workers: workers, Observe: func(method string, d time.Duration, resamples int) {
 		s.metrics.fitDuration.WithLabelValues(method).Observe(d.Seconds())
 		s.metrics.resamples.Add(float64(resamples))
 	}}
-}
-
-// handleFit serves POST /v1/fit: decode (JSON or CSV), validate, compute
-// in a compute slot under the request deadline, encode (JSON, or the HTML
-// report for Accept: text/html).
-func (s *Server) handleFit(c *gin.Context) {
-	serveAnalysis(s, c, fitFromCSV, DecodeFitJSON, s.computeFit,
-		func(resp *FitResponse, req *FitRequest, sha string) (*report.Page, error) {
-			return FitReport(resp, &req.Points, sha, s.cfg.Version)
-		})
-}
-
-// serveAnalysis is the flow of the analysis endpoints: the media type, the
-// body within its limits and the memory budget, decode and validate,
-// compute, then JSON or the HTML report.
-func serveAnalysis[T validator, R any](s *Server, c *gin.Context,
-	fromCSV func(io.Reader, url.Values) (T, error), fromJSON func(io.Reader) (T, error),
-	compute func(*gin.Context, T) (R, error), page func(R, T, string) (*report.Page, error)) {
-	kind := s.mediaType(c, true)
-	if kind == "" {
-		return
-	}
-	body, release, p := s.body(c)
-	if p != nil {
-		s.problem(c, p)
-		return
-	}
-	defer release()
-	body, sum := hashingBody(body)
-	req, err := decodeRequest(s, c, kind, body, fromCSV, fromJSON)
-	if err != nil {
-		s.problem(c, s.toProblem(c, err))
-		return
-	}
-	resp, err := compute(c, req)
-	if err != nil {
-		s.problem(c, s.toProblem(c, err))
-		return
-	}
-	if wantsHTML(c) {
-		pg, err := page(resp, req, hexSum(sum))
-		if err != nil {
-			s.problem(c, s.toProblem(c, err))
-			return
-		}
-		s.writeHTML(c, http.StatusOK, pg.Write)
-		return
-	}
-	s.writeJSON(c, http.StatusOK, resp)
-}
-
-// validator is a decoded request that checks itself against the limits.
-type validator interface{ Validate(Limits) error }
-
-// decodeRequest decodes a JSON body, or a CSV body with the options in the
-// query string, and validates it: the decode and validate steps of every
-// handler that takes both media types.
-func decodeRequest[T validator](s *Server, c *gin.Context, kind string, body io.Reader,
-	fromCSV func(io.Reader, url.Values) (T, error), fromJSON func(io.Reader) (T, error)) (T, error) {
-	var req T
-	var err error
-	if kind == "csv" {
-		req, err = fromCSV(body, c.Request.URL.Query())
-	} else {
-		if len(c.Request.URL.RawQuery) > 0 {
-			return req, invalid("query", "a JSON request carries its options in the body, not the query string")
-		}
-		req, err = fromJSON(body)
-	}
-	if err == nil {
-		err = req.Validate(s.cfg.Limits)
-	}
-	return req, err
-}
-
-func fitFromCSV(r io.Reader, q url.Values) (*FitRequest, error) {
-	d, err := DecodeCSV(r)
-	if err != nil {
-		return nil, err
-	}
-	return FitRequestFromQuery(q, d)
-}
-
-func compareFromCSV(r io.Reader, q url.Values) (*CompareRequest, error) {
-	req, err := DecodeCompareCSV(r)
-	if err != nil {
-		return nil, err
-	}
-	return req, CompareRequestFromQuery(q, req)
-}
-
-func (s *Server) writeJSON(c *gin.Context, status int, v any) {
-	c.Header("Content-Type", "application/json")
-	c.Status(status)
-	if err := WriteJSON(c.Writer, v); err != nil {
-		s.cfg.Logger.Warn("write failed", "route", c.FullPath(), "error", err.Error())
-	}
-}
-
-func (s *Server) handleHealthz(c *gin.Context) {
-	s.writeJSON(c, http.StatusOK, map[string]string{"status": "ok", "version": s.cfg.Version})
-}
-
-func (s *Server) handleReadyz(c *gin.Context) {
-	if s.draining.Load() {
-		s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "draining"})
-		return
-	}
-	s.writeJSON(c, http.StatusOK, map[string]any{"status": "ready", "slots": cap(s.slots), "slots_in_use": len(s.slots)})
 }

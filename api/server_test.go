@@ -3,6 +3,8 @@ package api
 import (
 	"bytes"
 	"context"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -120,12 +122,12 @@ func (h *harness) validate(req *http.Request, body string, rec *httptest.Respons
 	}
 }
 
-func decodeProblem(t *testing.T, rec *httptest.ResponseRecorder) Problem {
+func decodeProblem(t *testing.T, rec *httptest.ResponseRecorder) wire.Problem {
 	t.Helper()
 	if ct := rec.Header().Get("Content-Type"); ct != "application/problem+json" {
 		t.Errorf("Content-Type %q, want application/problem+json", ct)
 	}
-	var p Problem
+	var p wire.Problem
 	if err := json.Unmarshal(rec.Body.Bytes(), &p); err != nil {
 		t.Fatalf("problem body: %v\n%s", err, rec.Body.String())
 	}
@@ -135,7 +137,7 @@ func decodeProblem(t *testing.T, rec *httptest.ResponseRecorder) Problem {
 const smallJSON = `{"points":[{"x":1.2,"sx":0.2,"y":3.4,"sy":0.2},{"x":1.9,"sx":0.2,"y":4.4,"sy":0.2},{"x":2.9,"sx":0.2,"y":7.2,"sy":0.2},{"x":4.0,"sx":0.2,"y":8.5,"sy":0.4},{"x":4.7,"sx":0.2,"y":10.8,"sy":0.4},{"x":5.9,"sx":0.2,"y":13.5,"sy":0.4}]`
 
 func TestEndpoints(t *testing.T) {
-	h := newHarness(t, Config{MaxBodyBytes: 1 << 20, Limits: Limits{MaxPoints: 500}})
+	h := newHarness(t, Config{MaxBodyBytes: 1 << 20, Limits: study.Limits{MaxPoints: 500}})
 	bigBody := `{"points":[` + strings.Repeat(`{"x":1,"y":2},`, 100000) + `{"x":1,"y":2}]}`
 	manyPoints := func() string {
 		var b strings.Builder
@@ -200,7 +202,7 @@ func TestEndpoints(t *testing.T) {
 				return
 			}
 			p := decodeProblem(t, rec)
-			if p.Type != ProblemTypeBase+c.problemType || p.Status != c.status || p.Title == "" {
+			if p.Type != wire.ProblemTypeBase+c.problemType || p.Status != c.status || p.Title == "" {
 				t.Errorf("problem %+v", p)
 			}
 			if c.pointer != "" && (len(p.Errors) == 0 || p.Errors[0].Pointer != c.pointer) {
@@ -254,7 +256,7 @@ func TestBatch(t *testing.T) {
 	if rec.Code != 200 {
 		t.Fatalf("status %d\n%s", rec.Code, rec.Body.String())
 	}
-	var resp BatchResponse
+	var resp wire.BatchResponse
 	if err := json.Unmarshal(rec.Body.Bytes(), &resp); err != nil {
 		t.Fatal(err)
 	}
@@ -276,7 +278,7 @@ func TestBatch(t *testing.T) {
 	}
 	// The same dataset alone gives the same fit as inside the batch.
 	one := h.do("POST", "/v1/fit", "application/json", `{"points":[{"x":60,"y":63},{"x":95,"y":97},{"x":150,"y":158},{"x":310,"y":322}],"bootstrap":{"resamples":200,"seed":1}}`)
-	var alone FitResponse
+	var alone wire.FitResponse
 	_ = json.Unmarshal(one.Body.Bytes(), &alone)
 	a, _ := json.Marshal(alone)
 	b, _ := json.Marshal(r[3].Fit)
@@ -295,7 +297,7 @@ func TestBusySlots(t *testing.T) {
 	if rec.Code != http.StatusServiceUnavailable || rec.Header().Get("Retry-After") == "" {
 		t.Fatalf("status %d, Retry-After %q", rec.Code, rec.Header().Get("Retry-After"))
 	}
-	if p := decodeProblem(t, rec); p.Type != ProblemTypeBase+"busy" {
+	if p := decodeProblem(t, rec); p.Type != wire.ProblemTypeBase+"busy" {
 		t.Errorf("type %s", p.Type)
 	}
 	if d := time.Since(start); d < 30*time.Millisecond || d > 5*time.Second {
@@ -325,7 +327,7 @@ func TestDeadline(t *testing.T) {
 	if rec.Code != http.StatusServiceUnavailable {
 		t.Fatalf("status %d", rec.Code)
 	}
-	if p := decodeProblem(t, rec); p.Type != ProblemTypeBase+"deadline-exceeded" {
+	if p := decodeProblem(t, rec); p.Type != wire.ProblemTypeBase+"deadline-exceeded" {
 		t.Errorf("type %s", p.Type)
 	}
 	if d := time.Since(start); d > 5*time.Second {

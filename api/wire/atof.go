@@ -1,4 +1,4 @@
-package api
+package wire
 
 import (
 	"math"
@@ -93,7 +93,7 @@ func parseFloat(b []byte) (v float64, ok bool) {
 }
 
 func slowFloat(b []byte) (float64, bool) {
-	v, err := strconv.ParseFloat(unsafeString(b), 64)
+	v, err := strconv.ParseFloat(string(b), 64)
 	if err != nil || math.IsInf(v, 0) || math.IsNaN(v) {
 		return v, false
 	}

@@ -1,4 +1,4 @@
-package api
+package wire
 
 import (
 	"bytes"
@@ -12,6 +12,8 @@ import (
 	"strconv"
 	"strings"
 	"unicode/utf8"
+
+	"eivfit/eiv/study"
 )
 
 // CompareRequest is the body of POST /v1/method-comparison: a study of a
@@ -40,13 +42,33 @@ type CompareRequest struct {
 	rows []int
 }
 
-// Sample is one patient sample: one value or replicates per method.
-type Sample struct {
-	ID    string
-	X, Y  []float64
-	SX    *float64 // standard uncertainty of the sample's x value (its mean)
-	SY    *float64
-	Order *float64
+// Sample is one patient sample: one value or replicates per method. In
+// JSON: {"id": "S1", "x": [5.1, 5.2], "y": 5.4, "sx": …, "sy": …, "order": …}.
+type Sample = study.Sample
+
+// Options are the study's options with the server's settings.
+func (req *CompareRequest) Options(set study.Settings) *study.CompareOptions {
+	o := &study.CompareOptions{Allowable: req.AllowableBias.allowable(), ErrorModel: req.ErrorModel,
+		Lambda: req.Lambda, Confidence: req.Confidence, Bootstrap: req.Bootstrap.options(), Exclude: req.Exclude, Settings: set}
+	for _, l := range req.DecisionLevels {
+		o.DecisionLevels = append(o.DecisionLevels, study.DecisionLevel{Level: l.Level, Allowable: l.AllowableBias.allowable()})
+	}
+	return o
+}
+
+// Source says how the request came, to locate its errors.
+func (req *CompareRequest) Source() *Source {
+	if req.csv {
+		return &Source{Form: FormCSV, Root: "/samples", Rows: req.rows}
+	}
+	return &Source{Form: FormJSON, Root: "/samples"}
+}
+
+// AsFlags makes the request's errors name command-line flags.
+func (s *Source) AsFlags() *Source {
+	c := *s
+	c.Form = FormFlags
+	return &c
 }
 
 // DecisionLevel is an x value with an optional allowable bias of its own.
@@ -62,6 +84,13 @@ type DecisionLevel struct {
 type Allowable struct {
 	Absolute *float64 `json:"absolute,omitempty"`
 	Percent  *float64 `json:"percent,omitempty"`
+}
+
+func (a *Allowable) allowable() *study.Allowable {
+	if a == nil {
+		return nil
+	}
+	return &study.Allowable{Absolute: a.Absolute, Percent: a.Percent}
 }
 
 // UnmarshalJSON decodes an allowable bias strictly.
@@ -80,7 +109,7 @@ func (l *DecisionLevel) UnmarshalJSON(b []byte) error {
 	b = bytes.TrimSpace(b)
 	if len(b) > 0 && b[0] != '{' {
 		if err := json.Unmarshal(b, &l.Level); err != nil {
-			return invalid("", "a decision level is a number or {\"level\": ..., \"allowable_bias\": {...}}")
+			return Invalid("", "a decision level is a number or {\"level\": ..., \"allowable_bias\": {...}}")
 		}
 		return nil
 	}
@@ -92,7 +121,7 @@ func (l *DecisionLevel) UnmarshalJSON(b []byte) error {
 		return err
 	}
 	if o.Level == nil {
-		return invalid("/level", "level is required")
+		return Invalid("/level", "level is required")
 	}
 	l.Level, l.AllowableBias = *o.Level, o.AllowableBias
 	return nil
@@ -140,7 +169,7 @@ func DecodeCompareJSON(r io.Reader) (*CompareRequest, error) {
 		s := Sample{SX: sj.SX, SY: sj.SY, Order: sj.Order}
 		var err error
 		if s.ID, err = parseID(sj.ID); err != nil {
-			return nil, invalid(ptr+"/id", err.Error())
+			return nil, Invalid(ptr+"/id", err.Error())
 		}
 		if s.X, err = parseValues(sj.X, ptr+"/x"); err != nil {
 			return nil, err
@@ -170,7 +199,7 @@ func DecodeCompareJSON(r io.Reader) (*CompareRequest, error) {
 func prefixedErr(err error, prefix string) error {
 	var p *Problem
 	if errors.As(err, &p) {
-		return prefixed(p, prefix)
+		return Prefixed(p, prefix)
 	}
 	return err
 }
@@ -194,21 +223,21 @@ func parseID(raw json.RawMessage) (string, error) {
 func parseValues(raw json.RawMessage, ptr string) ([]float64, error) {
 	raw = bytes.TrimSpace(raw)
 	if len(raw) == 0 || string(raw) == "null" {
-		return nil, invalid(ptr, "required: a number, or an array of replicate numbers")
+		return nil, Invalid(ptr, "required: a number, or an array of replicate numbers")
 	}
 	if raw[0] == '[' {
 		var items []json.RawMessage
 		if err := json.Unmarshal(raw, &items); err != nil {
-			return nil, invalid(ptr, "must be a number or an array of numbers")
+			return nil, Invalid(ptr, "must be a number or an array of numbers")
 		}
 		if len(items) == 0 || len(items) > 20 {
-			return nil, invalid(ptr, "give 1 to 20 replicate values")
+			return nil, Invalid(ptr, "give 1 to 20 replicate values")
 		}
 		out := make([]float64, len(items))
 		for k, it := range items {
 			v, err := parseNumber(it)
 			if err != nil {
-				return nil, invalid(fmt.Sprintf("%s/%d", ptr, k), err.Error())
+				return nil, Invalid(fmt.Sprintf("%s/%d", ptr, k), err.Error())
 			}
 			out[k] = v
 		}
@@ -216,7 +245,7 @@ func parseValues(raw json.RawMessage, ptr string) ([]float64, error) {
 	}
 	v, err := parseNumber(raw)
 	if err != nil {
-		return nil, invalid(ptr, err.Error())
+		return nil, Invalid(ptr, err.Error())
 	}
 	return []float64{v}, nil
 }
@@ -248,7 +277,7 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 	cr := newCSVReader(body)
 	header, err := cr.Read()
 	if err == io.EOF {
-		return nil, invalid("row 1", "the CSV body is empty: a header (id,x1,x2,y1,y2) and one row per sample are needed")
+		return nil, Invalid("row 1", "the CSV body is empty: a header (id,x1,x2,y1,y2) and one row per sample are needed")
 	}
 	if err != nil {
 		return nil, csvReadError(err)
@@ -262,10 +291,10 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 	for j, h := range header {
 		name := strings.ToLower(strings.TrimSpace(h))
 		if !utf8.ValidString(name) {
-			return nil, invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
+			return nil, Invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
 		}
 		if seen[name] {
-			return nil, invalid(fmt.Sprintf("row %d, column %s", line, truncate(name)), fmt.Sprintf("column %q appears twice", name))
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(name)), fmt.Sprintf("column %q appears twice", name))
 		}
 		seen[name] = true
 		switch {
@@ -275,9 +304,9 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 			cols[j] = col{replicateColumn.FindStringSubmatch(name)[1]}
 		default:
 			if len(header) == 1 && strings.Contains(h, ";") {
-				return nil, invalid(fmt.Sprintf("row %d", line), "the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
+				return nil, Invalid(fmt.Sprintf("row %d", line), "the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
 			}
-			return nil, invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
 				"unknown column %q (known: id, order, x or x1, x2, …, y or y1, y2, …, sx, sy)", truncate(h)))
 		}
 	}
@@ -287,7 +316,7 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 		hasY = hasY || c.kind == "y"
 	}
 	if !hasX || !hasY {
-		return nil, invalid(fmt.Sprintf("row %d", line), "the header must name x (or x1, x2, …) and y (or y1, y2, …) columns")
+		return nil, Invalid(fmt.Sprintf("row %d", line), "the header must name x (or x1, x2, …) and y (or y1, y2, …) columns")
 	}
 	req := &CompareRequest{csv: true}
 	for {
@@ -306,7 +335,7 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 			switch k := cols[j].kind; k {
 			case "id":
 				if !utf8.ValidString(f) {
-					return nil, invalid(where, "the id is not valid UTF-8 text")
+					return nil, Invalid(where, "the id is not valid UTF-8 text")
 				}
 				s.ID = f
 			case "x", "y":
@@ -315,7 +344,7 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 				}
 				v, err := parseCell(f)
 				if err != nil {
-					return nil, invalid(where, err.Error())
+					return nil, Invalid(where, err.Error())
 				}
 				if k == "x" {
 					s.X = append(s.X, v)
@@ -328,7 +357,7 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 				}
 				v, err := parseCell(f)
 				if err != nil {
-					return nil, invalid(where, err.Error())
+					return nil, Invalid(where, err.Error())
 				}
 				switch k {
 				case "order":
@@ -341,10 +370,10 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 			}
 		}
 		if len(s.X) == 0 {
-			return nil, invalid(fmt.Sprintf("row %d, column x", row), "every sample needs at least one x value")
+			return nil, Invalid(fmt.Sprintf("row %d, column x", row), "every sample needs at least one x value")
 		}
 		if len(s.Y) == 0 {
-			return nil, invalid(fmt.Sprintf("row %d, column y", row), "every sample needs at least one y value")
+			return nil, Invalid(fmt.Sprintf("row %d, column y", row), "every sample needs at least one y value")
 		}
 		req.Samples = append(req.Samples, s)
 		req.rows = append(req.rows, row)
@@ -361,7 +390,7 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 		"error_model", "lambda", "confidence", "resamples", "seed", "scheme", "exclude"}
 	for k := range q {
 		if !slices.Contains(known, k) {
-			return invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
+			return Invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
 		}
 	}
 	num := func(name string) (*float64, error) { return queryFloat(q, name) }
@@ -404,4 +433,21 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 	}
 	req.Bootstrap = fr.Bootstrap
 	return nil
+}
+
+// CompareFromCSV decodes a CSV study and takes its options from the query
+// parameters: POST /v1/method-comparison with a text/csv body.
+func CompareFromCSV(r io.Reader, q url.Values) (*CompareRequest, error) {
+	req, err := DecodeCompareCSV(r)
+	if err != nil {
+		return nil, err
+	}
+	return req, CompareRequestFromQuery(q, req)
+}
+
+// SetOptions copies every option of o (all but the samples) into req.
+func (req *CompareRequest) SetOptions(o *CompareRequest) {
+	samples, csv, rows := req.Samples, req.csv, req.rows
+	*req = *o
+	req.Samples, req.csv, req.rows = samples, csv, rows
 }

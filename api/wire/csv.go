@@ -1,4 +1,4 @@
-package api
+package wire
 
 import (
 	"bytes"
@@ -59,7 +59,7 @@ func decodeCSVReader(body []byte) (*Dataset, error) {
 
 	header, err := cr.Read()
 	if err == io.EOF {
-		return nil, invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
+		return nil, Invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
 	}
 	if err != nil {
 		return nil, csvReadError(err)
@@ -92,37 +92,38 @@ func csvHeader(header []string, line int) ([]int, [7]bool, error) {
 	var seen [7]bool
 	for j, h := range header {
 		if !utf8.ValidString(h) {
-			return nil, seen, invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
+			return nil, seen, Invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
 		}
 		name := strings.ToLower(strings.TrimSpace(h))
 		k := indexOf(csvColumns, name)
 		if k < 0 {
 			if len(header) == 1 && strings.Contains(h, ";") {
-				return nil, seen, invalid(fmt.Sprintf("row %d", line),
+				return nil, seen, Invalid(fmt.Sprintf("row %d", line),
 					"the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
 			}
 			if _, perr := strconv.ParseFloat(name, 64); perr == nil {
-				return nil, seen, invalid(fmt.Sprintf("row %d", line),
+				return nil, seen, Invalid(fmt.Sprintf("row %d", line),
 					"the first row must be a header naming the columns, e.g. x,y,sx,sy")
 			}
-			return nil, seen, invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
+			return nil, seen, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
 				"unknown column %q (known: x, y, sx, sy, r, id, order)", truncate(h)))
 		}
 		if seen[k] {
-			return nil, seen, invalid(fmt.Sprintf("row %d, column %s", line, name), fmt.Sprintf("column %q appears twice", name))
+			return nil, seen, Invalid(fmt.Sprintf("row %d, column %s", line, name), fmt.Sprintf("column %q appears twice", name))
 		}
 		seen[k] = true
 		cols[j] = k
 	}
 	if !seen[0] || !seen[1] {
-		return nil, seen, invalid(fmt.Sprintf("row %d", line), "the header must name columns x and y")
+		return nil, seen, Invalid(fmt.Sprintf("row %d", line), "the header must name columns x and y")
 	}
 	return cols, seen, nil
 }
 
 // newCSVDataset makes the columns the header names, with room for n rows.
 func newCSVDataset(seen [7]bool, n int) *Dataset {
-	d := &Dataset{csv: true, X: make([]float64, 0, n), Y: make([]float64, 0, n), rows: make([]int, 0, n)}
+	d := &Dataset{csv: true, rows: make([]int, 0, n)}
+	d.X, d.Y = make([]float64, 0, n), make([]float64, 0, n)
 	if seen[2] {
 		d.SX = make([]float64, 0, n)
 	}
@@ -150,14 +151,14 @@ func (d *Dataset) addRecord(rec []string, cols []int, row int) error {
 		k := cols[j]
 		if k == 5 {
 			if !utf8.ValidString(f) {
-				return invalid(fmt.Sprintf("row %d, column id", row), "the id is not valid UTF-8 text")
+				return Invalid(fmt.Sprintf("row %d, column id", row), "the id is not valid UTF-8 text")
 			}
 			d.ID = append(d.ID, strings.Clone(f))
 			continue
 		}
 		v, err := parseCell(f)
 		if err != nil {
-			return invalid(fmt.Sprintf("row %d, column %s", row, csvColumns[k]), err.Error())
+			return Invalid(fmt.Sprintf("row %d, column %s", row, csvColumns[k]), err.Error())
 		}
 		d.put(k, v)
 	}
@@ -184,7 +185,7 @@ func (d *Dataset) put(k int, v float64) {
 
 func (d *Dataset) finishCSV() (*Dataset, error) {
 	if d.R != nil && (d.SX == nil || d.SY == nil) {
-		return nil, invalid("row 1, column r", "r (error correlation) needs columns sx and sy")
+		return nil, Invalid("row 1, column r", "r (error correlation) needs columns sx and sy")
 	}
 	return d, nil
 }
@@ -233,14 +234,14 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 			continue
 		}
 		if len(fields) != len(cols) {
-			return nil, invalid(fmt.Sprintf("row %d, column 1", line), "this row has a different number of fields from the header")
+			return nil, Invalid(fmt.Sprintf("row %d, column 1", line), "this row has a different number of fields from the header")
 		}
 		for j, f := range fields {
 			k := cols[j]
 			if k == 5 {
 				f = bytes.TrimLeft(f, " \t")
 				if !utf8.Valid(f) {
-					return nil, invalid(fmt.Sprintf("row %d, column id", line), "the id is not valid UTF-8 text")
+					return nil, Invalid(fmt.Sprintf("row %d, column id", line), "the id is not valid UTF-8 text")
 				}
 				d.ID = append(d.ID, string(f))
 				continue
@@ -250,7 +251,7 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 				var err error
 				v, err = parseCell(string(f)) // the slow path names the fault
 				if err != nil {
-					return nil, invalid(fmt.Sprintf("row %d, column %s", line, csvColumns[k]), err.Error())
+					return nil, Invalid(fmt.Sprintf("row %d, column %s", line, csvColumns[k]), err.Error())
 				}
 			}
 			d.put(k, v)
@@ -258,7 +259,7 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 		d.rows = append(d.rows, line)
 	}
 	if d == nil {
-		return nil, invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
+		return nil, Invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
 	}
 	return d.finishCSV()
 }
@@ -296,9 +297,9 @@ func csvReadError(err error) error {
 		if errors.Is(pe.Err, csv.ErrFieldCount) {
 			detail = "this row has a different number of fields from the header"
 		}
-		return invalid(fmt.Sprintf("row %d, column %d", pe.Line, pe.Column), detail)
+		return Invalid(fmt.Sprintf("row %d, column %d", pe.Line, pe.Column), detail)
 	}
-	return invalid("body", "the CSV body could not be read: "+err.Error())
+	return Invalid("body", "the CSV body could not be read: "+err.Error())
 }
 
 func indexOf(s []string, v string) int {

@@ -1,4 +1,4 @@
-package api
+package wire
 
 import (
 	"bytes"
@@ -6,17 +6,15 @@ import (
 	"fmt"
 	"strconv"
 	"unicode/utf8"
+
+	"eivfit/eiv/study"
 )
 
 // Dataset holds paired measurements column-wise, as the estimators take them.
 // SX, SY, R and Order are nil when the input states none; ID holds "" for a
 // point without an id.
 type Dataset struct {
-	X, Y   []float64
-	SX, SY []float64 // standard uncertainties (1 SD)
-	R      []float64 // correlation of the x and y errors
-	Order  []float64 // run order
-	ID     []string
+	study.Data
 
 	// has records which optional columns appeared at each point, so that a
 	// column given at some points but not others can be reported.
@@ -26,28 +24,17 @@ type Dataset struct {
 	csv  bool
 }
 
-// Len is the number of points.
-func (d *Dataset) Len() int { return len(d.X) }
-
 // locate returns the pointer for point i's field: a JSON pointer under
 // /points, or a CSV row and column.
 func (d *Dataset) locate(i int, field string) string {
-	return locateRow(d.csv, d.rows, "/points", i, field)
+	return d.source(nil).point(i, field)
 }
 
-// locateRow names point i's field: for CSV input by its line ("row N,
-// column C"; "body" for the whole input), else by JSON pointer under base.
-func locateRow(csv bool, rows []int, base string, i int, field string) string {
-	if !csv {
-		return jsonLocator(base)(i, field)
+func (d *Dataset) source(methods []string) *Source {
+	if d.csv {
+		return &Source{Form: FormCSV, Root: "/points", Rows: d.rows, Methods: methods}
 	}
-	if i < 0 || i >= len(rows) {
-		return "body"
-	}
-	if field == "" {
-		return fmt.Sprintf("row %d", rows[i])
-	}
-	return fmt.Sprintf("row %d, column %s", rows[i], field)
+	return &Source{Form: FormJSON, Root: "/points", Methods: methods}
 }
 
 // UnmarshalJSON decodes the "points" array: [{"x": 1, "y": 2, "sx": 0.1, ...}].
@@ -76,7 +63,7 @@ func (p *pointParser) ws() {
 }
 
 func (p *pointParser) fail(ptr, format string, a ...any) error {
-	return invalid(ptr, fmt.Sprintf(format, a...))
+	return Invalid(ptr, fmt.Sprintf(format, a...))
 }
 
 func (p *pointParser) parse() error {
@@ -287,13 +274,13 @@ func (d *Dataset) finish() error {
 	}{{"sx", d.hasSX}, {"sy", d.hasSY}, {"r", d.hasR}, {"order", d.hasOrder}} {
 		for i, h := range c.has {
 			if !h {
-				return invalid(d.locate(i, c.name), fmt.Sprintf(
+				return Invalid(d.locate(i, c.name), fmt.Sprintf(
 					"%s is given at some points but missing here: give it at every point or at none", c.name))
 			}
 		}
 	}
 	if d.R != nil && (d.SX == nil || d.SY == nil) {
-		return invalid(d.locate(0, "r"), "r (error correlation) needs sx and sy")
+		return Invalid(d.locate(0, "r"), "r (error correlation) needs sx and sy")
 	}
 	d.hasSX, d.hasSY, d.hasR, d.hasOrder = nil, nil, nil, nil
 	return nil

@@ -1,4 +1,4 @@
-package api
+package wire
 
 import (
 	"bytes"
@@ -53,7 +53,7 @@ func decodeFitFast(body []byte) (req *FitRequest, ok bool, err error) {
 			p.ws()
 			if string(kb) == "points" {
 				if seenPoints {
-					return nil, true, invalid("/points", "points appears twice")
+					return nil, true, Invalid("/points", "points appears twice")
 				}
 				seenPoints = true
 				p.d = &req.Points
@@ -91,7 +91,7 @@ func decodeFitFast(body []byte) (req *FitRequest, ok bool, err error) {
 	}
 	p.ws()
 	if p.pos != len(body) {
-		return nil, true, invalid("", "the body holds more than one JSON value")
+		return nil, true, Invalid("", "the body holds more than one JSON value")
 	}
 	rest.WriteByte('}')
 	var o fitOptions
@@ -206,5 +206,5 @@ func readErr(err error) error {
 	if errors.As(err, &mbe) {
 		return mbe
 	}
-	return invalid("", fmt.Sprintf("the body could not be read: %v", err))
+	return Invalid("", fmt.Sprintf("the body could not be read: %v", err))
 }

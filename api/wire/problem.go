@@ -1,12 +1,9 @@
-package api
+package wire
 
 import (
-	"errors"
 	"fmt"
 	"net/http"
 	"strings"
-
-	"eivfit/eiv"
 )
 
 // Problem is an RFC 9457 problem detail, the body of every error answer
@@ -42,78 +39,49 @@ func (p *Problem) Error() string {
 	return b.String()
 }
 
-// Problem kinds. Each has one type URI, title and status; the one function
-// problemFor maps errors to them.
-type kind struct {
+// Kind is a problem's kind: one type URI, title and status each.
+type Kind struct {
 	slug   string
 	title  string
 	status int
 }
 
+// Status is the HTTP status of the kind.
+func (k Kind) Status() int { return k.status }
+
 var (
-	kindInvalid       = kind{"invalid-request", "The request is not valid", http.StatusBadRequest}
-	kindUnfittable    = kind{"unfittable-data", "The data cannot be fitted", http.StatusUnprocessableEntity}
-	kindMediaType     = kind{"unsupported-media-type", "Unsupported media type", http.StatusUnsupportedMediaType}
-	kindNotAcceptable = kind{"not-acceptable", "No acceptable representation", http.StatusNotAcceptable}
-	kindTooLarge      = kind{"body-too-large", "The request body is too large", http.StatusRequestEntityTooLarge}
-	kindMethod        = kind{"method-not-allowed", "Method not allowed", http.StatusMethodNotAllowed}
-	kindNotFound      = kind{"not-found", "Not found", http.StatusNotFound}
-	kindBusy          = kind{"busy", "All compute slots are busy", http.StatusServiceUnavailable}
-	kindDeadline      = kind{"deadline-exceeded", "The computation ran past the request deadline", http.StatusServiceUnavailable}
-	kindUnauthorized  = kind{"unauthorized", "Missing or invalid API key", http.StatusUnauthorized}
-	kindInternal      = kind{"internal", "Internal error", http.StatusInternalServerError}
+	KindInvalid       = Kind{"invalid-request", "The request is not valid", http.StatusBadRequest}
+	KindUnfittable    = Kind{"unfittable-data", "The data cannot be fitted", http.StatusUnprocessableEntity}
+	KindMediaType     = Kind{"unsupported-media-type", "Unsupported media type", http.StatusUnsupportedMediaType}
+	KindNotAcceptable = Kind{"not-acceptable", "No acceptable representation", http.StatusNotAcceptable}
+	KindTooLarge      = Kind{"body-too-large", "The request body is too large", http.StatusRequestEntityTooLarge}
+	KindMethod        = Kind{"method-not-allowed", "Method not allowed", http.StatusMethodNotAllowed}
+	KindNotFound      = Kind{"not-found", "Not found", http.StatusNotFound}
+	KindBusy          = Kind{"busy", "All compute slots are busy", http.StatusServiceUnavailable}
+	KindDeadline      = Kind{"deadline-exceeded", "The computation ran past the request deadline", http.StatusServiceUnavailable}
+	KindUnauthorized  = Kind{"unauthorized", "Missing or invalid API key", http.StatusUnauthorized}
+	KindInternal      = Kind{"internal", "Internal error", http.StatusInternalServerError}
 )
 
 // ProblemTypeBase prefixes every problem type URI.
 const ProblemTypeBase = "urn:eivfit:problem:"
 
-func newProblem(k kind, detail string, errs ...FieldError) *Problem {
+// NewProblem makes a problem of kind k.
+func NewProblem(k Kind, detail string, errs ...FieldError) *Problem {
 	return &Problem{Type: ProblemTypeBase + k.slug, Title: k.title, Status: k.status, Detail: detail, Errors: errs}
 }
 
-func invalid(pointer, detail string) *Problem {
-	return newProblem(kindInvalid, detail, FieldError{Pointer: pointer, Detail: detail})
+// Invalid is a 400 problem at one place.
+func Invalid(pointer, detail string) *Problem {
+	return NewProblem(KindInvalid, detail, FieldError{Pointer: pointer, Detail: detail})
 }
 
-// locator turns a point index and a column name into the place the client
-// sees: a JSON pointer, or a CSV row and column.
-type locator func(index int, field string) string
-
-func jsonLocator(base string) locator {
-	return func(i int, field string) string {
-		if i < 0 {
-			return base
-		}
-		if field == "" {
-			return fmt.Sprintf("%s/%d", base, i)
-		}
-		return fmt.Sprintf("%s/%d/%s", base, i, field)
+// Prefixed returns a copy of p with every pointer moved under prefix.
+func Prefixed(p *Problem, prefix string) *Problem {
+	q := *p
+	q.Errors = make([]FieldError, len(p.Errors))
+	for i, e := range p.Errors {
+		q.Errors[i] = FieldError{Pointer: prefix + e.Pointer, Detail: e.Detail}
 	}
-}
-
-// fitProblem maps an error from the eiv package to a problem. Data that
-// cannot be fitted is 422; an option out of range is 400.
-func fitProblem(err error, method eiv.Method, loc locator, methodPointer string) *Problem {
-	var pe *eiv.PointError
-	var oe *eiv.OptionError
-	var ce *eiv.ConvergenceError
-	detail := fmt.Sprintf("%s: %s", method, strings.TrimPrefix(err.Error(), "eiv: "))
-	switch {
-	case errors.As(err, &pe):
-		return newProblem(kindUnfittable, detail, FieldError{Pointer: loc(pe.Index, pe.Field), Detail: detail})
-	case errors.As(err, &ce):
-		return newProblem(kindUnfittable, detail, FieldError{Pointer: methodPointer, Detail: detail})
-	case errors.As(err, &oe):
-		p := "/" + oe.Option
-		if oe.Option == "sx, sy" {
-			p = methodPointer
-			return newProblem(kindUnfittable, detail, FieldError{Pointer: p, Detail: detail})
-		}
-		return newProblem(kindInvalid, detail, FieldError{Pointer: p, Detail: detail})
-	case errors.Is(err, eiv.ErrTooFewPoints), errors.Is(err, eiv.ErrConstantX),
-		errors.Is(err, eiv.ErrDegenerate), errors.Is(err, eiv.ErrLengthMismatch),
-		errors.Is(err, eiv.ErrMagnitude):
-		return newProblem(kindUnfittable, detail, FieldError{Pointer: loc(-1, ""), Detail: detail})
-	}
-	return newProblem(kindUnfittable, detail, FieldError{Pointer: methodPointer, Detail: detail})
+	return &q
 }

@@ -1,4 +1,4 @@
-package api
+package wire
 
 import (
 	"bytes"
@@ -12,6 +12,8 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+
+	"eivfit/eiv/study"
 )
 
 // FitRequest is the body of POST /v1/fit; `eivfit fit` builds the same
@@ -55,19 +57,6 @@ func (b *BootstrapOptions) UnmarshalJSON(data []byte) error {
 	return nil
 }
 
-// Limits bound what one request may ask for.
-type Limits struct {
-	MaxPoints    int // points per dataset
-	MaxResamples int // bootstrap resamples per fit
-	MaxAt        int // entries in "at"
-}
-
-// DefaultLimits serve real studies.
-var DefaultLimits = Limits{MaxPoints: 1_000_000, MaxResamples: 100_000, MaxAt: 1000}
-
-// Method names, in the order fits are reported.
-var methodNames = []string{"ols", "deming", "weighted_deming", "passing_bablok", "york"}
-
 // DecodeFitJSON reads a FitRequest from JSON, strictly: unknown fields,
 // trailing data, non-numbers and numbers outside the double range are
 // errors naming the field.
@@ -97,7 +86,7 @@ func decodeStrict(r io.Reader, v any) error {
 		if errors.As(err, &mbe) {
 			return mbe
 		}
-		return invalid("", "the body could not be read")
+		return Invalid("", "the body could not be read")
 	}
 	dec := json.NewDecoder(bytes.NewReader(body))
 	dec.DisallowUnknownFields()
@@ -105,12 +94,12 @@ func decodeStrict(r io.Reader, v any) error {
 		var se *json.SyntaxError
 		if errors.As(err, &se) {
 			ptr := pointerAt(body, se.Offset-1)
-			return invalid(ptr, fmt.Sprintf("the body is not valid JSON at byte %d (%s); numbers must be finite JSON numbers, not NaN or Infinity", se.Offset, se.Error()))
+			return Invalid(ptr, fmt.Sprintf("the body is not valid JSON at byte %d (%s); numbers must be finite JSON numbers, not NaN or Infinity", se.Offset, se.Error()))
 		}
 		return jsonProblem(err, "")
 	}
 	if _, err := dec.Token(); err != io.EOF {
-		return invalid("", "the body holds more than one JSON value")
+		return Invalid("", "the body holds more than one JSON value")
 	}
 	return nil
 }
@@ -126,32 +115,32 @@ func jsonProblem(err error, base string) error {
 		return err
 	case errors.Is(err, io.EOF):
 		if base == "" {
-			return invalid("", "the body is empty; send a JSON object such as {\"points\": [...]}")
+			return Invalid("", "the body is empty; send a JSON object such as {\"points\": [...]}")
 		}
-		return invalid(base, "unexpected end of the JSON value")
+		return Invalid(base, "unexpected end of the JSON value")
 	case errors.Is(err, io.ErrUnexpectedEOF):
-		return invalid(base, "the JSON body ends too early")
+		return Invalid(base, "the JSON body ends too early")
 	case errors.As(err, &se):
-		return invalid(base, fmt.Sprintf("the body is not valid JSON (at byte %d: %s)", se.Offset, se.Error()))
+		return Invalid(base, fmt.Sprintf("the body is not valid JSON (at byte %d: %s)", se.Offset, se.Error()))
 	case errors.As(err, &te):
 		ptr := base
 		if te.Field != "" {
 			ptr = base + "/" + strings.ReplaceAll(te.Field, ".", "/")
 		}
 		if ptr == "" {
-			return invalid("", "the body must be a JSON object")
+			return Invalid("", "the body must be a JSON object")
 		}
 		if strings.HasPrefix(te.Value, "number") && te.Type.Kind().String() == "float64" {
-			return invalid(ptr, "the number is outside the double-precision range")
+			return Invalid(ptr, "the number is outside the double-precision range")
 		}
-		return invalid(ptr, fmt.Sprintf("must be %s, not %s", jsonTypeName(te.Type.String()), te.Value))
+		return Invalid(ptr, fmt.Sprintf("must be %s, not %s", jsonTypeName(te.Type.String()), te.Value))
 	}
 	msg := err.Error()
 	if name, ok := strings.CutPrefix(msg, "json: unknown field "); ok {
 		name = strings.Trim(name, `"`)
-		return invalid(base+"/"+escapePointer(name), fmt.Sprintf("unknown field %q", name))
+		return Invalid(base+"/"+escapePointer(name), fmt.Sprintf("unknown field %q", name))
 	}
-	return invalid(base, "the body could not be decoded: "+msg)
+	return Invalid(base, "the body could not be decoded: "+msg)
 }
 
 func jsonTypeName(t string) string {
@@ -182,7 +171,7 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 	req := &FitRequest{Points: *d}
 	for k := range q {
 		if !slices.Contains([]string{"methods", "lambda", "confidence", "resamples", "seed", "scheme", "at"}, k) {
-			return nil, invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
+			return nil, Invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
 		}
 	}
 	num := func(name string) (*float64, error) { return queryFloat(q, name) }
@@ -201,14 +190,14 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 		if s != "" {
 			n, err := strconv.Atoi(s)
 			if err != nil {
-				return nil, invalid("query parameter resamples", fmt.Sprintf("%q is not an integer", truncate(s)))
+				return nil, Invalid("query parameter resamples", fmt.Sprintf("%q is not an integer", truncate(s)))
 			}
 			req.Bootstrap.Resamples = n
 		}
 		if s := q.Get("seed"); s != "" {
 			v, err := strconv.ParseUint(s, 10, 64)
 			if err != nil {
-				return nil, invalid("query parameter seed", fmt.Sprintf("%q is not a non-negative integer", truncate(s)))
+				return nil, Invalid("query parameter seed", fmt.Sprintf("%q is not a non-negative integer", truncate(s)))
 			}
 			req.Bootstrap.Seed = &v
 		}
@@ -248,7 +237,7 @@ func queryFloats(q url.Values, name string) ([]float64, error) {
 func finiteQuery(name, s string) (float64, error) {
 	v, err := strconv.ParseFloat(s, 64)
 	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, invalid("query parameter "+name, fmt.Sprintf("%q is not a finite number", truncate(s)))
+		return 0, Invalid("query parameter "+name, fmt.Sprintf("%q is not a finite number", truncate(s)))
 	}
 	return v, nil
 }
@@ -263,112 +252,33 @@ func splitList(s string) []string {
 	return out
 }
 
-// Validate checks the request against its documented ranges and the limits.
-// It reports up to 20 offending fields at once.
-func (req *FitRequest) Validate(lim Limits) error {
-	var errs []FieldError
-	add := func(ptr, format string, a ...any) {
-		if len(errs) < 20 {
-			errs = append(errs, FieldError{Pointer: ptr, Detail: fmt.Sprintf(format, a...)})
-		}
-	}
-	d := &req.Points
-	n := d.Len()
-	param := func(name string) string {
-		if d.csv {
-			return "query parameter " + name
-		}
-		return "/" + name
-	}
-	if n == 0 {
-		add(d.locate(-1, ""), "points are required: at least 3 pairs of x and y")
-	}
-	if lim.MaxPoints > 0 && n > lim.MaxPoints {
-		p := newProblem(kindTooLarge, fmt.Sprintf("%d points exceed this server's limit of %d per dataset", n, lim.MaxPoints),
-			FieldError{Pointer: d.locate(-1, ""), Detail: fmt.Sprintf("at most %d points", lim.MaxPoints)})
-		return p
-	}
-	checkSigma := func(col []float64, name string) {
-		for i, v := range col {
-			if !(v >= 0) {
-				add(d.locate(i, name), "%s must be a standard uncertainty ≥ 0, not %g", name, v)
-			}
-		}
-	}
-	checkSigma(d.SX, "sx")
-	checkSigma(d.SY, "sy")
-	for i, v := range d.R {
-		if !(v > -1 && v < 1) {
-			add(d.locate(i, "r"), "r must lie strictly between -1 and 1, not %g", v)
-		}
-	}
-	seen := map[string]bool{}
-	for k, m := range req.Methods {
-		ptr := fmt.Sprintf("%s/%d", param("methods"), k)
-		if d.csv {
-			ptr = param("methods")
-		}
-		switch {
-		case !slices.Contains(methodNames, m):
-			add(ptr, "unknown method %q (known: %s)", truncate(m), strings.Join(methodNames, ", "))
-		case seen[m]:
-			add(ptr, "method %q is listed twice", m)
-		}
-		seen[m] = true
-	}
-	if req.Lambda != nil && !(*req.Lambda > 0 && !math.IsInf(*req.Lambda, 0)) {
-		add(param("lambda"), "lambda (the error-variance ratio) must be a finite number greater than 0")
-	}
-	if req.Confidence != nil && !(*req.Confidence > 0 && *req.Confidence < 1) {
-		add(param("confidence"), "confidence must lie strictly between 0 and 1, e.g. 0.95")
-	}
-	if b := req.Bootstrap; b != nil {
-		for _, e := range validateBootstrap(b, d.SX != nil && d.SY != nil, d.csv, lim) {
-			add(e.Pointer, "%s", e.Detail)
-		}
-	}
-	if lim.MaxAt > 0 && len(req.At) > lim.MaxAt {
-		add(param("at"), "at most %d values in at", lim.MaxAt)
-	}
-	if len(errs) > 0 {
-		detail := errs[0].Detail
-		if len(errs) > 1 {
-			detail = fmt.Sprintf("%d fields are invalid; the first: %s", len(errs), detail)
-		}
-		return newProblem(kindInvalid, detail, errs...)
-	}
-	return nil
+// Options are the request's fit options with the server's settings.
+func (req *FitRequest) Options(set study.Settings) *study.FitOptions {
+	return &study.FitOptions{Methods: req.Methods, Lambda: req.Lambda, Confidence: req.Confidence,
+		Bootstrap: req.Bootstrap.options(), At: req.At, Settings: set}
 }
 
-const minResamples = 100
+// Source says how the request came, to locate its errors.
+func (req *FitRequest) Source() *Source { return req.Points.source(req.Methods) }
 
-// validateBootstrap checks bootstrap options; hasSigma says whether every
-// point states sx and sy (the parametric scheme needs them).
-func validateBootstrap(b *BootstrapOptions, hasSigma, csv bool, lim Limits) []FieldError {
-	var errs []FieldError
-	add := func(ptr, format string, a ...any) {
-		errs = append(errs, FieldError{Pointer: ptr, Detail: fmt.Sprintf(format, a...)})
+func (b *BootstrapOptions) options() *study.BootstrapOptions {
+	if b == nil {
+		return nil
 	}
-	rp, sp := "/bootstrap/resamples", "/bootstrap/scheme"
-	if csv {
-		rp, sp = "query parameter resamples", "query parameter scheme"
-	}
-	switch {
-	case b.Resamples < 0:
-		add(rp, "resamples must be 0 (no bootstrap) or at least %d", minResamples)
-	case b.Resamples > 0 && b.Resamples < minResamples:
-		add(rp, "resamples must be 0 (no bootstrap) or at least %d for stable intervals", minResamples)
-	case lim.MaxResamples > 0 && b.Resamples > lim.MaxResamples:
-		add(rp, "resamples must not exceed this server's limit of %d", lim.MaxResamples)
-	}
-	switch b.Scheme {
-	case "", "pairs":
-	case "parametric":
-		if !hasSigma {
-			add(sp, "the parametric bootstrap draws around the fitted points with the stated uncertainties, so every point needs sx and sy")
-		}
-	default:
-		add(sp, "scheme must be \"pairs\" or \"parametric\", not %q", truncate(b.Scheme))
-	}
-	return errs
+	return &study.BootstrapOptions{Resamples: b.Resamples, Seed: b.Seed, Scheme: b.Scheme}
 }
+
+// FitFromCSV decodes a CSV dataset and takes the fit's options from the
+// query parameters: POST /v1/fit with a text/csv body.
+func FitFromCSV(r io.Reader, q url.Values) (*FitRequest, error) {
+	d, err := DecodeCSV(r)
+	if err != nil {
+		return nil, err
+	}
+	return FitRequestFromQuery(q, d)
+}
+
+// DecodeStrict reads one JSON value into v: unknown fields and trailing
+// data are errors, and a syntax error is reported at the pointer of the
+// value where it occurred.
+func DecodeStrict(r io.Reader, v any) error { return decodeStrict(r, v) }

@@ -1,4 +1,4 @@
-package api
+package wire
 
 // FitResponse is the answer of POST /v1/fit and the output of `eivfit fit
 // --format json`: the same bytes for the same input.
@@ -22,17 +22,36 @@ type Fits struct {
 	York           *MethodFit `json:"york,omitempty"`
 }
 
-// each calls f for every fit present, in order.
-func (fs *Fits) each(f func(name string, m *MethodFit)) {
-	for _, e := range []struct {
-		n string
-		m *MethodFit
-	}{{"ols", fs.OLS}, {"deming", fs.Deming}, {"weighted_deming", fs.WeightedDeming},
-		{"passing_bablok", fs.PassingBablok}, {"york", fs.York}} {
-		if e.m != nil {
-			f(e.n, e.m)
+// Each calls f for every fit present, in order.
+func (fs *Fits) Each(f func(name string, m *MethodFit)) {
+	for _, e := range fs.list() {
+		if *e.m != nil {
+			f(e.name, *e.m)
 		}
 	}
+}
+
+// Get returns the named fit, or nil.
+func (fs *Fits) Get(name string) *MethodFit {
+	for _, e := range fs.list() {
+		if e.name == name {
+			return *e.m
+		}
+	}
+	return nil
+}
+
+// list pairs each field with its method's name: the one place a new
+// method's field is named.
+func (fs *Fits) list() []struct {
+	name string
+	m    **MethodFit
+} {
+	return []struct {
+		name string
+		m    **MethodFit
+	}{{"ols", &fs.OLS}, {"deming", &fs.Deming}, {"weighted_deming", &fs.WeightedDeming},
+		{"passing_bablok", &fs.PassingBablok}, {"york", &fs.York}}
 }
 
 // MethodFit is one estimator's line. Method-specific fields are omitted
@@ -67,10 +86,6 @@ type MethodFit struct {
 	Jackknife *JackknifeOut `json:"jackknife,omitempty"`
 	Bootstrap *BootstrapOut `json:"bootstrap,omitempty"`
 	At        []AtOut       `json:"at,omitempty"`
-
-	// For the plots and the report, not sent.
-	bootSlopes []float64                                  // bootstrap replicate slopes
-	band       func(x0 float64) (lo, hi float64, ok bool) // pointwise confidence band
 }
 
 // CusumOut is Passing & Bablok's cusum linearity test.
@@ -187,4 +202,194 @@ type Warning struct {
 	Method  string `json:"method,omitempty"`
 	Code    string `json:"code"`
 	Message string `json:"message"`
+}
+
+// CompareResponse is the answer of POST /v1/method-comparison and of
+// `eivfit compare --format json`.
+type CompareResponse struct {
+	XName          string `json:"x_name"`
+	YName          string `json:"y_name"`
+	Unit           string `json:"unit,omitempty"`
+	SignConvention string `json:"sign_convention"`
+	Comparison
+	// WithoutExcluded is the same analysis without the samples named in
+	// "exclude" (present only when some were excluded).
+	WithoutExcluded *Comparison `json:"without_excluded,omitempty"`
+	Caution         string      `json:"caution"`
+}
+
+// Comparison is one analysis of a study.
+type Comparison struct {
+	N          int      `json:"n"`
+	Excluded   []string `json:"excluded,omitempty"`
+	Confidence float64  `json:"confidence"`
+	// Replicates says whether any sample has replicates.
+	Replicates     bool            `json:"replicates"`
+	ErrorModel     ErrorModelOut   `json:"error_model"`
+	Fits           Fits            `json:"fits"`
+	OLSBias        []OLSBias       `json:"ols_bias,omitempty"`
+	Agreement      AgreementOut    `json:"agreement"`
+	DecisionLevels []LevelOut      `json:"decision_levels,omitempty"`
+	Diagnostics    DiagnosticsOut  `json:"diagnostics"`
+	Recommendation RecommendationO `json:"recommendation"`
+	Warnings       []Warning       `json:"warnings"`
+}
+
+// ErrorModelOut describes the error model used for the Deming fits.
+type ErrorModelOut struct {
+	Model        string            `json:"model"`  // "constant" or "proportional"
+	Source       string            `json:"source"` // "given", "replicates" or "assumed"
+	Lambda       float64           `json:"lambda"`
+	LambdaSource string            `json:"lambda_source"` // "given", "replicates", "uncertainties" or "assumed"
+	X            *RepeatabilityOut `json:"x_repeatability,omitempty"`
+	Y            *RepeatabilityOut `json:"y_repeatability,omitempty"`
+	Reading      string            `json:"reading"`
+}
+
+// RepeatabilityOut is one method's replicate precision.
+type RepeatabilityOut struct {
+	SD    float64 `json:"sd"`
+	CV    float64 `json:"cv"`
+	DF    int     `json:"df"`
+	Trend TestOut `json:"sd_trend"` // Spearman's ρ of per-sample SD with level
+	Model string  `json:"model"`
+}
+
+// AgreementOut is the Bland–Altman analysis.
+type AgreementOut struct {
+	MeanDifference    Interval        `json:"mean_difference"`
+	SDDifference      float64         `json:"sd_difference"`
+	Multiplier        float64         `json:"multiplier"`
+	LimitsOfAgreement LimitsOut       `json:"limits_of_agreement"`
+	Percent           *PercentOut     `json:"percent,omitempty"`
+	ProportionalBias  ProportionalOut `json:"proportional_bias"`
+}
+
+// LimitsOut holds the limits of agreement with their intervals.
+type LimitsOut struct {
+	Lower Interval `json:"lower"`
+	Upper Interval `json:"upper"`
+}
+
+// PercentOut is the agreement of the differences in percent of the level.
+type PercentOut struct {
+	MeanDifference    Interval  `json:"mean_difference"`
+	SDDifference      float64   `json:"sd_difference"`
+	LimitsOfAgreement LimitsOut `json:"limits_of_agreement"`
+}
+
+// ProportionalOut is the regression of differences on means.
+type ProportionalOut struct {
+	Slope     Param   `json:"slope"`
+	Intercept Param   `json:"intercept"`
+	PValue    float64 `json:"p_value"`
+	Reading   string  `json:"reading"`
+}
+
+// LevelOut is the bias at one decision level under each fit.
+type LevelOut struct {
+	Level float64 `json:"level"`
+	// Allowable is the limit applied here, when one was given.
+	Allowable *AllowableOut       `json:"allowable_bias,omitempty"`
+	Fits      map[string]LevelFit `json:"fits"`
+}
+
+// AllowableOut is the allowable bias at a level.
+type AllowableOut struct {
+	Absolute *float64 `json:"absolute,omitempty"`
+	Percent  *float64 `json:"percent,omitempty"`
+	Limit    float64  `json:"limit"` // max(absolute, percent·level/100), units of x
+}
+
+// LevelFit is one fit's bias at a level with its verdict.
+type LevelFit struct {
+	Bias        Interval `json:"bias"`
+	BiasPercent Interval `json:"bias_percent"`
+	// Verdict is "within" (the whole interval inside ±limit), "exceeds"
+	// (the whole interval outside), or "inconclusive" (it straddles the
+	// limit); empty when no allowable bias applies.
+	Verdict string `json:"verdict,omitempty"`
+}
+
+// DiagnosticsOut checks the assumptions on the residuals of one fit.
+type DiagnosticsOut struct {
+	ResidualsOf  string          `json:"residuals_of"`
+	Scale        string          `json:"scale"` // "absolute", "relative" or "normalized" (York: in units of the stated SD)
+	Normality    NormalityOut    `json:"normality"`
+	Independence IndependenceOut `json:"independence"`
+	Variance     VarianceOut     `json:"variance"`
+	Linearity    LinearityOut    `json:"linearity"`
+	Outliers     OutliersOut     `json:"outliers"`
+	// Residuals are the residuals in input order, with the level and run order used.
+	Residuals []ResidualOut `json:"residuals"`
+}
+
+// ResidualOut is one sample's residual.
+type ResidualOut struct {
+	ID       string  `json:"id,omitempty"`
+	Level    float64 `json:"level"`
+	Order    float64 `json:"order"`
+	Residual float64 `json:"residual"`
+	// Standardized is the residual over the residuals' SD.
+	Standardized float64 `json:"standardized"`
+}
+
+// NormalityOut is the Shapiro–Wilk test with the Q-Q points.
+type NormalityOut struct {
+	ShapiroWilk *TestOut `json:"shapiro_wilk,omitempty"`
+	QQ          []QQOut  `json:"qq"`
+	Reading     string   `json:"reading"`
+}
+
+// QQOut is one point of the normal Q-Q plot.
+type QQOut struct {
+	Theoretical float64 `json:"theoretical"`
+	Sample      float64 `json:"sample"`
+	ID          string  `json:"id,omitempty"`
+}
+
+// IndependenceOut holds the run-order checks.
+type IndependenceOut struct {
+	OrderSource  string   `json:"order_source"` // "order" or "input"
+	DurbinWatson *TestOut `json:"durbin_watson,omitempty"`
+	Runs         *TestOut `json:"runs,omitempty"`
+	Reading      string   `json:"reading"`
+}
+
+// VarianceOut holds the checks of constant variance.
+type VarianceOut struct {
+	BreuschPagan *TestOut `json:"breusch_pagan,omitempty"`
+	Spearman     *TestOut `json:"spearman_abs_residual,omitempty"`
+	Reading      string   `json:"reading"`
+}
+
+// LinearityOut holds the checks of a straight line.
+type LinearityOut struct {
+	Cusum     *CusumOut `json:"cusum,omitempty"`
+	LackOfFit *TestOut  `json:"lack_of_fit,omitempty"`
+	Reading   string    `json:"reading"`
+}
+
+// OutliersOut lists the flagged samples; none is dropped.
+type OutliersOut struct {
+	Method    string       `json:"method"`
+	MaxTested int          `json:"max_tested"`
+	Flagged   []OutlierOut `json:"flagged"`
+	Reading   string       `json:"reading"`
+}
+
+// OutlierOut is one flagged sample.
+type OutlierOut struct {
+	ID       string  `json:"id,omitempty"`
+	Index    int     `json:"index"`
+	Residual float64 `json:"residual"`
+	R        float64 `json:"r"`
+	Lambda   float64 `json:"lambda"`
+}
+
+// RecommendationO says which fit to report and why.
+type RecommendationO struct {
+	Method  string   `json:"method"`
+	Reasons []string `json:"reasons"`
+	Text    string   `json:"text"`
 }

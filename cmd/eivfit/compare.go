@@ -5,10 +5,10 @@ import (
 	"flag"
 	"fmt"
 	"io"
-	"net/url"
-	"strconv"
 
-	"eivfit/api"
+	"eivfit/api/report"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 )
 
 const compareUsage = `Usage: eivfit compare [flags] FILE
@@ -30,23 +30,20 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 		fmt.Fprint(stderr, compareUsage)
 		fs.PrintDefaults()
 	}
-	strs := map[string]*string{}
-	for _, f := range []struct{ name, param, usage string }{
-		{"decision-levels", "decision_levels", "comma list of x values at which bias is judged"},
-		{"allowable-absolute", "allowable_absolute", "allowable bias in units of x"},
-		{"allowable-percent", "allowable_percent", "allowable bias in percent of the level (with both, the larger applies)"},
-		{"error-model", "error_model", "constant, proportional or auto (default auto: from the replicates)"},
-		{"lambda", "lambda", "error-variance ratio var(y error)/var(x error) (default: from the replicates)"},
-		{"seed", "seed", "bootstrap seed"},
-		{"scheme", "scheme", "bootstrap scheme: pairs or parametric"},
-		{"exclude", "exclude", "comma list of sample ids to leave out (the analysis is shown with and without them)"},
-		{"x-name", "x_name", "name of the comparative method"},
-		{"y-name", "y_name", "name of the candidate method"},
-		{"unit", "unit", "unit of measurement"},
-	} {
-		strs[f.param] = fs.String(f.name, "", f.usage)
-	}
-	confidence := fs.Float64("confidence", 0.95, "confidence level of the intervals")
+	str := func(name, usage string) *string { return fs.String(name, "", usage) }
+	levels := str("decision-levels", "comma list of x values at which bias is judged")
+	absolute := str("allowable-absolute", "allowable bias in units of x")
+	percent := str("allowable-percent", "allowable bias in percent of the level (with both, the larger applies)")
+	errorModel := str("error-model", "constant, proportional or auto (default auto: from the replicates)")
+	lambda := str("lambda", "error-variance ratio var(y error)/var(x error) (default: from the replicates)")
+	seed := str("seed", "bootstrap seed")
+	scheme := str("scheme", "bootstrap scheme: pairs or parametric")
+	exclude := str("exclude", "comma list of sample ids to leave out (the analysis is shown with and without them)")
+	xName := str("x-name", "name of the comparative method")
+	yName := str("y-name", "name of the candidate method")
+	unit := str("unit", "unit of measurement")
+	confidence := new(float64)
+	fs.Float64Var(confidence, "confidence", 0.95, "confidence level of the intervals")
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = none)")
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
@@ -54,24 +51,47 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if done {
 		return err
 	}
-	q := url.Values{}
-	for k, v := range strs {
-		if *v != "" {
-			q.Set(k, *v)
-		}
+	opts := &wire.CompareRequest{XName: *xName, YName: *yName, Unit: *unit, ErrorModel: *errorModel,
+		Confidence: confidence, Exclude: splitList(*exclude)}
+	if opts.Lambda, err = flagFloat("lambda", *lambda); err != nil {
+		return usageError(stderr, "compare", err)
 	}
-	q.Set("confidence", strconv.FormatFloat(*confidence, 'g', -1, 64))
-	if *resamples != 0 {
-		q.Set("resamples", strconv.Itoa(*resamples))
+	abs, err := flagFloat("allowable-absolute", *absolute)
+	if err != nil {
+		return usageError(stderr, "compare", err)
+	}
+	pct, err := flagFloat("allowable-percent", *percent)
+	if err != nil {
+		return usageError(stderr, "compare", err)
+	}
+	if abs != nil || pct != nil {
+		opts.AllowableBias = &wire.Allowable{Absolute: abs, Percent: pct}
+	}
+	for _, f := range splitList(*levels) {
+		v, err := flagFloat("decision-levels", f)
+		if err != nil {
+			return usageError(stderr, "compare", err)
+		}
+		opts.DecisionLevels = append(opts.DecisionLevels, wire.DecisionLevel{Level: *v})
+	}
+	if opts.Bootstrap, err = bootstrapFlags(*resamples, *seed, *scheme); err != nil {
+		return usageError(stderr, "compare", err)
 	}
 	in, name, err := openInput(file, stdin, "compare", stderr)
 	if err != nil {
 		return err
 	}
 	defer in.Close()
-	resp, err := api.CompareCSV(ctx, in, q, api.DefaultSettings)
+	req, err := wire.DecodeCompareCSV(in)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	return writeOutput(stdout, *format, *pretty, resp, func(w io.Writer) error { return api.WriteCompareText(w, resp) })
+	req.SetOptions(opts)
+	src := req.Source().AsFlags()
+	res, err := study.Compare(ctx, req.Samples, req.Options(study.Settings{Limits: study.DefaultLimits}))
+	if err != nil {
+		return reportProblem(stderr, name, src.Problem(err))
+	}
+	resp := wire.NewCompareResponse(req, res)
+	return writeOutput(stdout, stderr, name, src, *format, *pretty, resp, func(w io.Writer) error { return report.WriteCompareText(w, resp) })
 }

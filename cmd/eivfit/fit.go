@@ -1,16 +1,20 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"flag"
 	"fmt"
 	"io"
-	"net/url"
+	"math"
 	"os"
 	"strconv"
+	"strings"
 
-	"eivfit/api"
+	"eivfit/api/report"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 )
 
 const fitUsage = `Usage: eivfit fit [flags] FILE
@@ -34,7 +38,8 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	}
 	methods := fs.String("methods", "", "comma list of ols, deming, weighted_deming, york (default: every method the data support)")
 	lambda := fs.String("lambda", "", "error-variance ratio var(y error)/var(x error) for Deming (default: from sx and sy, else 1)")
-	confidence := fs.Float64("confidence", 0.95, "confidence level of the intervals")
+	confidence := new(float64)
+	fs.Float64Var(confidence, "confidence", 0.95, "confidence level of the intervals")
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = no bootstrap)")
@@ -46,32 +51,82 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	if done {
 		return err
 	}
-	q := url.Values{}
-	set := func(k, v string) {
-		if v != "" {
-			q.Set(k, v)
+	req := &wire.FitRequest{Methods: splitList(*methods), Confidence: confidence, At: nil}
+	if req.Lambda, err = flagFloat("lambda", *lambda); err != nil {
+		return usageError(stderr, "fit", err)
+	}
+	for _, f := range splitList(*at) {
+		v, err := flagFloat("at", f)
+		if err != nil {
+			return usageError(stderr, "fit", err)
 		}
+		req.At = append(req.At, *v)
 	}
-	set("methods", *methods)
-	set("lambda", *lambda)
-	set("confidence", strconv.FormatFloat(*confidence, 'g', -1, 64))
-	if *resamples != 0 {
-		set("resamples", strconv.Itoa(*resamples))
+	if req.Bootstrap, err = bootstrapFlags(*resamples, *seed, *scheme); err != nil {
+		return usageError(stderr, "fit", err)
 	}
-	set("seed", *seed)
-	set("scheme", *scheme)
-	set("at", *at)
-
 	in, name, err := openInput(file, stdin, "fit", stderr)
 	if err != nil {
 		return err
 	}
 	defer in.Close()
-	resp, err := api.FitCSV(ctx, in, q, api.DefaultSettings)
+	d, err := wire.DecodeCSV(in)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	return writeOutput(stdout, *format, *pretty, resp, func(w io.Writer) error { return api.WriteText(w, resp) })
+	req.Points = *d
+	src := req.Source().AsFlags()
+	res, err := study.Fit(ctx, d.Data, req.Options(study.Settings{Limits: study.DefaultLimits}))
+	if err != nil {
+		return reportProblem(stderr, name, src.Problem(err))
+	}
+	resp := wire.NewFitResponse(res)
+	return writeOutput(stdout, stderr, name, src, *format, *pretty, resp, func(w io.Writer) error { return report.WriteText(w, resp) })
+}
+
+// flagFloat reads an optional finite number given to flag name.
+func flagFloat(name, s string) (*float64, error) {
+	if s == "" {
+		return nil, nil
+	}
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return nil, fmt.Errorf("--%s: %q is not a finite number", name, s)
+	}
+	return &v, nil
+}
+
+// bootstrapFlags builds the bootstrap options from their flags; nil when
+// none is given.
+func bootstrapFlags(resamples int, seed, scheme string) (*wire.BootstrapOptions, error) {
+	if resamples == 0 && seed == "" && scheme == "" {
+		return nil, nil
+	}
+	b := &wire.BootstrapOptions{Resamples: resamples, Scheme: scheme}
+	if seed != "" {
+		v, err := strconv.ParseUint(seed, 10, 64)
+		if err != nil {
+			return nil, fmt.Errorf("--seed: %q is not a non-negative integer", seed)
+		}
+		b.Seed = &v
+	}
+	return b, nil
+}
+
+func splitList(s string) []string {
+	var out []string
+	for _, f := range strings.Split(s, ",") {
+		if f = strings.TrimSpace(f); f != "" {
+			out = append(out, f)
+		}
+	}
+	return out
+}
+
+// usageError reports a flag's bad value, exit status 2.
+func usageError(stderr io.Writer, cmd string, err error) error {
+	fmt.Fprintf(stderr, "eivfit %s: %v\n", cmd, err)
+	return exitError{2}
 }
 
 // parseFileArgs parses flags that may stand before or after the one FILE
@@ -117,21 +172,32 @@ func openInput(name string, stdin io.Reader, cmd string, stderr io.Writer) (io.R
 	return f, name, nil
 }
 
-// writeOutput prints the answer as text, indented JSON or JSON.
-func writeOutput(stdout io.Writer, format string, pretty bool, v any, text func(io.Writer) error) error {
+// writeOutput prints the answer as text, indented JSON or JSON; a number
+// that is not finite is reported as unfittable data.
+func writeOutput(stdout, stderr io.Writer, name string, src *wire.Source, format string, pretty bool, v any, text func(io.Writer) error) error {
+	var b bytes.Buffer
+	var err error
 	switch {
 	case format == "text":
-		return text(stdout)
+		if _, err = wire.Marshal(v); err == nil {
+			err = text(&b)
+		}
 	case pretty:
-		return api.WritePrettyJSON(stdout, v)
+		err = wire.WritePrettyJSON(&b, v)
+	default:
+		err = wire.WriteJSON(&b, v)
 	}
-	return api.WriteJSON(stdout, v)
+	if err != nil {
+		return reportProblem(stderr, name, src.Problem(err))
+	}
+	_, err = stdout.Write(b.Bytes())
+	return err
 }
 
 // reportProblem prints a problem with every offending place, and returns
 // exit status 2 for bad input.
 func reportProblem(stderr io.Writer, name string, err error) error {
-	var p *api.Problem
+	var p *wire.Problem
 	if !errors.As(err, &p) {
 		fmt.Fprintf(stderr, "eivfit: %s: %v\n", name, err)
 		return exitError{1}

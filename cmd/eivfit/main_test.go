@@ -20,6 +20,8 @@ import (
 	"time"
 
 	"eivfit/api"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 )
 
 func runCmd(t *testing.T, stdin string, args ...string) (stdout, stderr string, err error) {
@@ -38,7 +40,7 @@ func TestFitPearsonYorkCLI(t *testing.T) {
 	if err != nil {
 		t.Fatalf("%v\n%s", err, stderr)
 	}
-	var resp api.FitResponse
+	var resp wire.FitResponse
 	if err := json.Unmarshal([]byte(out), &resp); err != nil {
 		t.Fatal(err)
 	}
@@ -124,7 +126,7 @@ func TestFitDemoData(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: %v\n%s", f, err, stderr)
 		}
-		var resp api.FitResponse
+		var resp wire.FitResponse
 		if err := json.Unmarshal([]byte(out), &resp); err != nil {
 			t.Fatal(err)
 		}
@@ -206,7 +208,7 @@ func TestServe(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var fit api.FitResponse
+	var fit wire.FitResponse
 	if err := json.NewDecoder(resp.Body).Decode(&fit); err != nil || fit.N != 60 {
 		t.Fatalf("demo fit: %v n=%d", err, fit.N)
 	}
@@ -230,11 +232,11 @@ func TestCompareCLI(t *testing.T) {
 	if err != nil {
 		t.Fatalf("%v: %s", err, stderr)
 	}
-	var resp api.CompareResponse
+	var resp wire.CompareResponse
 	if err := json.Unmarshal([]byte(out), &resp); err != nil {
 		t.Fatal(err)
 	}
-	if resp.N != 80 || !resp.Replicates || len(resp.DecisionLevels) != 3 || resp.Caution != api.Caution {
+	if resp.N != 80 || !resp.Replicates || len(resp.DecisionLevels) != 3 || resp.Caution != study.Caution {
 		t.Errorf("n %d replicates %v levels %d", resp.N, resp.Replicates, len(resp.DecisionLevels))
 	}
 	flagged := false

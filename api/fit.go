@@ -1,0 +1,33 @@
+package api
+
+import (
+	"context"
+
+	"eivfit/api/report"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
+
+	"github.com/gin-gonic/gin"
+)
+
+// fitEndpoint is POST /v1/fit: a line fit by every method the data support.
+var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
+	fromJSON: wire.DecodeFitJSON,
+	fromCSV:  wire.FitFromCSV,
+	source:   (*wire.FitRequest).Source,
+	compute: func(ctx context.Context, req *wire.FitRequest, set study.Settings) (*study.FitResult, error) {
+		return study.Fit(ctx, req.Points.Data, req.Options(set))
+	},
+	answer: func(_ *wire.FitRequest, r *study.FitResult) any { return wire.NewFitResponse(r) },
+	points: func(r *study.FitResult) int { return r.N },
+}
+
+type fitAnswer = answer[*wire.FitRequest, *study.FitResult]
+
+func (s *Server) fitPage(a *fitAnswer, sha string) (*report.Page, error) {
+	return report.FitReport(a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, sha, s.cfg.Version)
+}
+
+// handleFit serves POST /v1/fit: JSON, or CSV with the options in the
+// query; answered with JSON, or the HTML report for Accept: text/html.
+func (s *Server) handleFit(c *gin.Context) { serve(s, c, fitEndpoint, s.fitPage) }

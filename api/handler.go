@@ -1,0 +1,237 @@
+package api
+
+import (
+	"bytes"
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"hash"
+	"io"
+	"mime"
+	"net/http"
+	"net/url"
+	"strings"
+
+	"eivfit/api/report"
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
+
+	"github.com/gin-gonic/gin"
+)
+
+// endpoint is what one analysis endpoint adds to the common flow: how its
+// request is decoded (JSON, or CSV with the options in the query), how its
+// errors are located, the study it runs (which validates its input), and
+// the answer it sends.
+type endpoint[Req, Res any] struct {
+	fromJSON func(io.Reader) (Req, error)
+	fromCSV  func(io.Reader, url.Values) (Req, error)
+	source   func(Req) *wire.Source
+	compute  func(context.Context, Req, study.Settings) (Res, error)
+	answer   func(Req, Res) any
+	points   func(Res) int
+}
+
+// answer is a computed request: the study's result, its wire form and the
+// encoded JSON.
+type answer[Req, Res any] struct {
+	req  Req
+	res  Res
+	resp any
+	json []byte
+}
+
+// analyse is the one flow from a body to its answer: decode, compute (the
+// study validates first) in a compute slot under the request deadline,
+// then encode, which refuses a number that is not finite. Errors are
+// problems located in the client's terms.
+func analyse[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], kind string, body io.Reader, q url.Values) (*answer[Req, Res], error) {
+	var req Req
+	var err error
+	if kind == "csv" {
+		req, err = e.fromCSV(body, q)
+	} else {
+		req, err = e.fromJSON(body)
+	}
+	if err != nil {
+		return nil, err
+	}
+	src := e.source(req)
+	res, err := inSlot(s, c, func(ctx context.Context) (Res, error) { return e.compute(ctx, req, s.settings(0)) })
+	if err != nil {
+		return nil, src.Problem(err)
+	}
+	s.metrics.points.Add(float64(e.points(res)))
+	a := &answer[Req, Res]{req: req, res: res, resp: e.answer(req, res)}
+	if a.json, err = wire.Marshal(a.resp); err != nil {
+		return nil, src.Problem(err)
+	}
+	return a, nil
+}
+
+// serve is the handler of an analysis endpoint: the media type, the body
+// within its limits and the memory budget, analyse, then JSON or (for
+// Accept: text/html) the HTML report.
+func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page func(*answer[Req, Res], string) (*report.Page, error)) {
+	kind := s.mediaType(c, true)
+	if kind == "" {
+		return
+	}
+	body, release, p := s.body(c)
+	if p != nil {
+		s.problem(c, p)
+		return
+	}
+	defer release()
+	if kind == "json" && len(c.Request.URL.RawQuery) > 0 {
+		s.problem(c, wire.Invalid("query", "a JSON request carries its options in the body, not the query string"))
+		return
+	}
+	body, sum := hashingBody(body)
+	a, err := analyse(s, c, e, kind, body, c.Request.URL.Query())
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
+	if wantsHTML(c) {
+		pg, err := page(a, hexSum(sum))
+		if err != nil {
+			s.problem(c, s.problemFor(c, err))
+			return
+		}
+		s.writeHTML(c, http.StatusOK, pg.Write)
+		return
+	}
+	c.Data(http.StatusOK, "application/json", a.json)
+}
+
+// problemFor maps any error of a request to its problem: study errors by
+// their kind (invalid 400, unfittable 422, too large 413), a body over the
+// limit 413, a deadline 503. Unknown errors are internal: logged, and
+// their text is not shown.
+func (s *Server) problemFor(c *gin.Context, err error) *wire.Problem {
+	var p *wire.Problem
+	var mbe *http.MaxBytesError
+	var se *study.Error
+	var sl study.ErrorList
+	switch {
+	case errors.As(err, &p):
+		return p
+	case errors.As(err, &mbe):
+		return wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", s.cfg.MaxBodyBytes))
+	case errors.Is(err, context.DeadlineExceeded):
+		p := wire.NewProblem(wire.KindDeadline, fmt.Sprintf("the computation did not finish within %v; ask for fewer resamples or points", s.cfg.RequestTimeout))
+		p.RetryAfter = 1
+		return p
+	case errors.Is(err, context.Canceled):
+		return wire.NewProblem(wire.KindDeadline, "the request was cancelled")
+	case errors.As(err, &se), errors.As(err, &sl):
+		return s.problemFor(c, (&wire.Source{Root: ""}).Problem(err))
+	}
+	s.cfg.Logger.Error("internal error", "route", c.FullPath(), "error", err.Error())
+	return wire.NewProblem(wire.KindInternal, "the server met an internal error; it has been logged")
+}
+
+// inSlot runs compute in a compute slot under the request deadline.
+func inSlot[T any](s *Server, c *gin.Context, compute func(context.Context) (T, error)) (T, error) {
+	release, p := s.acquire(c.Request.Context())
+	if p != nil {
+		var zero T
+		return zero, p
+	}
+	defer release()
+	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
+	defer cancel()
+	return compute(ctx)
+}
+
+func (s *Server) writeJSON(c *gin.Context, status int, v any) {
+	b, err := wire.Marshal(v)
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
+	c.Data(status, "application/json", b)
+}
+
+// wantsHTML says whether the client asked for the HTML report.
+func wantsHTML(c *gin.Context) bool {
+	return c.NegotiateFormat("application/json", "text/html") == "text/html"
+}
+
+func (s *Server) writeHTML(c *gin.Context, status int, write func(io.Writer) error) {
+	var b bytes.Buffer
+	if err := write(&b); err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
+	c.Header("Content-Security-Policy", report.ContentSecurityPolicy)
+	c.Header("Cache-Control", "no-store")
+	c.Data(status, "text/html; charset=utf-8", b.Bytes())
+}
+
+// hashingBody reads the body through SHA-256 for the report's record.
+func hashingBody(r io.Reader) (io.Reader, hash.Hash) {
+	h := sha256.New()
+	return io.TeeReader(r, h), h
+}
+
+func hexSum(h hash.Hash) string { return hex.EncodeToString(h.Sum(nil)) }
+
+// body wraps the request body with the size limit and reserves its bytes
+// in the intake budget; the caller must call release when done with the
+// request. A declared length above the limit is refused before anything is
+// read.
+func (s *Server) body(c *gin.Context) (io.Reader, func(), *wire.Problem) {
+	n := c.Request.ContentLength
+	if n > s.cfg.MaxBodyBytes {
+		return nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
+			n, s.cfg.MaxBodyBytes))
+	}
+	want := n
+	if want < 0 {
+		want = s.cfg.MaxBodyBytes
+	}
+	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
+	defer cancel()
+	if !s.intake.acquire(ctx, want) {
+		s.metrics.slotRejected.Inc()
+		p := wire.NewProblem(wire.KindBusy, fmt.Sprintf("the server is reading as many request bodies as its memory budget (%d bytes) allows; retry later", s.cfg.MaxInFlightBytes))
+		p.RetryAfter = 1
+		return nil, nil, p
+	}
+	s.metrics.intakeBytes.Add(float64(want))
+	release := func() {
+		s.intake.release(want)
+		s.metrics.intakeBytes.Sub(float64(want))
+	}
+	r := http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes)
+	if n > 0 {
+		return wire.SizedReader{Reader: r, N: n}, release, nil
+	}
+	return r, release, nil
+}
+
+// mediaType returns the request's media type: "json", "csv", or "" after
+// writing a 415.
+func (s *Server) mediaType(c *gin.Context, allowCSV bool) string {
+	ct := c.GetHeader("Content-Type")
+	mt, _, err := mime.ParseMediaType(ct)
+	if ct == "" {
+		err = errors.New("missing")
+	}
+	switch {
+	case err == nil && (mt == "application/json" || strings.HasSuffix(mt, "+json")):
+		return "json"
+	case err == nil && allowCSV && (mt == "text/csv" || mt == "application/csv"):
+		return "csv"
+	}
+	want := "application/json"
+	if allowCSV {
+		want += " or text/csv"
+	}
+	s.problem(c, wire.NewProblem(wire.KindMediaType, fmt.Sprintf("Content-Type %q is not accepted here; send %s", ct, want)))
+	return ""
+}

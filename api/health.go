@@ -1,0 +1,48 @@
+package api
+
+import (
+	"embed"
+	"net/http"
+
+	"eivfit/api/wire"
+
+	"eivfit/openapi"
+
+	"github.com/gin-gonic/gin"
+)
+
+// Demo holds the synthetic demo datasets (copies of testdata/demo-*.csv,
+// kept identical by a test), served at /demo/FILE so that a fresh server
+// can be tried at once.
+//
+//go:embed demo/*.csv
+var Demo embed.FS
+
+// handleDemo serves GET /demo/FILE.
+func (s *Server) handleDemo(c *gin.Context) {
+	b, err := Demo.ReadFile("demo/" + c.Param("file"))
+	if err != nil {
+		s.problem(c, wire.NewProblem(wire.KindNotFound, "demo files: demo-glucose.csv, demo-gas-sensor.csv, demo-glucose-duplicates.csv"))
+		return
+	}
+	c.Data(http.StatusOK, "text/csv; charset=utf-8", b)
+}
+
+// handleOpenAPI serves GET /openapi.yaml.
+func handleOpenAPI(c *gin.Context) {
+	c.Data(http.StatusOK, "application/yaml", openapi.Spec)
+}
+
+// handleHealthz serves GET /healthz: the process is up.
+func (s *Server) handleHealthz(c *gin.Context) {
+	s.writeJSON(c, http.StatusOK, map[string]string{"status": "ok", "version": s.cfg.Version})
+}
+
+// handleReadyz serves GET /readyz: 503 while draining.
+func (s *Server) handleReadyz(c *gin.Context) {
+	if s.draining.Load() {
+		s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "draining"})
+		return
+	}
+	s.writeJSON(c, http.StatusOK, map[string]any{"status": "ready", "slots": cap(s.slots), "slots_in_use": len(s.slots)})
+}

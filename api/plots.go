@@ -1,0 +1,68 @@
+package api
+
+import (
+	"errors"
+	"fmt"
+	"net/http"
+	"slices"
+	"strings"
+
+	"eivfit/api/report"
+	"eivfit/api/wire"
+
+	"github.com/gin-gonic/gin"
+)
+
+// handlePlot serves POST /v1/plots/{kind}: a fit request (JSON, or CSV with
+// the options in the query) drawn as one SVG plot; "method" in the query
+// picks the fit to draw.
+func (s *Server) handlePlot(c *gin.Context) {
+	kind := c.Param("kind")
+	if !slices.Contains(report.PlotKinds, kind) {
+		s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("no plot %q; plots: %s", truncate(kind), strings.Join(report.PlotKinds, ", "))))
+		return
+	}
+	mt := s.mediaType(c, true)
+	if mt == "" {
+		return
+	}
+	body, release, p := s.body(c)
+	if p != nil {
+		s.problem(c, p)
+		return
+	}
+	defer release()
+	q := c.Request.URL.Query()
+	method := q.Get("method")
+	q.Del("method")
+	if mt == "json" && len(q) > 0 {
+		s.problem(c, wire.Invalid("query", "with a JSON body only the query parameter method is taken"))
+		return
+	}
+	a, err := analyse(s, c, fitEndpoint, mt, body, q)
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
+	b, ok, err := report.FitPlot(kind, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, method)
+	var wp *wire.Problem
+	switch {
+	case errors.As(err, &wp):
+		s.problem(c, wp)
+	case err != nil:
+		s.problem(c, wire.NewProblem(wire.KindUnfittable, "the plot could not be drawn: "+err.Error()))
+	case !ok:
+		s.problem(c, wire.Invalid("/bootstrap/resamples", "the bootstrap plot needs a bootstrap: ask for resamples"))
+	default:
+		c.Header("Content-Security-Policy", report.ContentSecurityPolicy)
+		c.Data(http.StatusOK, "image/svg+xml", b)
+	}
+}
+
+// truncate shortens a client's string for a message.
+func truncate(s string) string {
+	if len(s) > 40 {
+		return s[:37] + "..."
+	}
+	return s
+}

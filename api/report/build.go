@@ -1,0 +1,433 @@
+package report
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
+)
+
+// Plot kinds served by POST /v1/plots/{kind}.
+var PlotKinds = []string{"data", "residuals", "run-order", "qq", "difference", "bootstrap"}
+
+// plotSet is everything the six plots need.
+type plotSet struct {
+	x, y, sx, sy []float64
+	fitName      string
+	fit          *wire.MethodFit
+	res          *study.MethodResult // the band and the bootstrap replicates
+	ols          *wire.MethodFit
+	diag         wire.DiagnosticsOut
+	agreement    *wire.AgreementOut
+	axes         Axes
+}
+
+func (ps *plotSet) line() Line {
+	l := Line{Name: ps.fitName, Intercept: ps.fit.Intercept.Estimate, Slope: ps.fit.Slope.Estimate}
+	if len(ps.x) > 1 {
+		lo, hi := slices.Min(ps.x), slices.Max(ps.x)
+		for k := range 41 {
+			x0 := lo + (hi-lo)*float64(k)/40
+			if a, b, ok := ps.res.Band(x0); ok {
+				l.BandX, l.BandLo, l.BandHi = append(l.BandX, x0), append(l.BandLo, a), append(l.BandHi, b)
+			}
+		}
+	}
+	return l
+}
+
+// plot renders one kind; ok is false when the kind does not apply (no
+// bootstrap ran).
+func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
+	d := ps.diag
+	level := make([]float64, len(d.Residuals))
+	resid := make([]float64, len(d.Residuals))
+	order := make([]float64, len(d.Residuals))
+	for i, r := range d.Residuals {
+		level[i], resid[i], order[i] = r.Level, r.Residual, r.Order
+	}
+	switch kind {
+	case "data":
+		var ols *Line
+		if ps.ols != nil && ps.fitName != "ols" {
+			ols = &Line{Name: "OLS", Intercept: ps.ols.Intercept.Estimate, Slope: ps.ols.Slope.Estimate}
+		}
+		b, err := DataPlot(ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes)
+		return b, true, err
+	case "residuals":
+		b, err := ResidualPlot(level, resid, ps.axes, d.Scale)
+		return b, true, err
+	case "run-order":
+		b, err := RunOrderPlot(order, resid, ps.axes, d.Scale)
+		return b, true, err
+	case "qq":
+		th, sm := make([]float64, len(d.Normality.QQ)), make([]float64, len(d.Normality.QQ))
+		for i, q := range d.Normality.QQ {
+			th[i], sm[i] = q.Theoretical, q.Sample
+		}
+		b, err := QQPlot(th, sm)
+		return b, true, err
+	case "difference":
+		a := ps.agreement
+		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
+		for i := range ps.x {
+			mean[i], diff[i] = (ps.x[i]+ps.y[i])/2, ps.y[i]-ps.x[i]
+		}
+		b, err := DifferencePlot(mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
+		return b, true, err
+	case "bootstrap":
+		bs := ps.fit.Bootstrap
+		if bs == nil || ps.res.Bootstrap == nil {
+			return nil, false, nil
+		}
+		slopes := ps.res.Bootstrap.Slopes()
+		if len(slopes) < 2 {
+			return nil, false, nil
+		}
+		iv, name := bs.Slope.BCa, "BCa"
+		if iv == nil {
+			iv, name = bs.Slope.Percentile, "percentile"
+		}
+		if iv == nil {
+			return nil, false, nil
+		}
+		b, err := BootstrapPlot(slopes, ps.fit.Slope.Estimate, iv.Lower, iv.Upper, name)
+		return b, true, err
+	}
+	return nil, false, fmt.Errorf("unknown plot %q", kind)
+}
+
+var plotCaptions = map[string]string{
+	"data":       "The samples with their stated uncertainties (bars, ±1 SD), the errors-in-variables line with its pointwise confidence band, the OLS line and the identity line.",
+	"residuals":  "Residuals against level: a funnel shape means the error grows with the level; a curve means the relation is not a straight line.",
+	"run-order":  "Residuals in run order: drift, steps or runs point to instability during the study.",
+	"qq":         "Normal Q-Q plot: points near the line mean normal residuals; a bend means skew, isolated points at the ends outliers.",
+	"difference": "Difference plot: y − x against the mean of x and y, with the mean difference and the limits of agreement.",
+	"bootstrap":  "The bootstrap distribution of the slope with the estimate and its interval.",
+}
+
+// fitPlots gathers a line fit's plots; method "" means the primary fit.
+func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, method string) (*plotSet, error) {
+	pm := res.Primary()
+	if method != "" {
+		if pm = res.Get(method); pm == nil {
+			return nil, wire.Invalid("query parameter method", fmt.Sprintf("%q was not fitted; choose one of the fitted methods", truncate(method)))
+		}
+	}
+	ag, err := study.AgreementOf(d.X, d.Y, res.Confidence, false)
+	if err != nil {
+		return nil, err
+	}
+	return &plotSet{x: d.X, y: d.Y, sx: d.SX, sy: d.SY, fitName: pm.Method.Name, fit: resp.Fits.Get(pm.Method.Name), res: pm,
+		ols: resp.Fits.OLS, diag: wire.DiagnosticsOutOf(study.DiagnoseFit(d, pm)), agreement: wire.AgreementOutOf(ag),
+		axes: Axes{X: "x", Y: "y"}}, nil
+}
+
+// FitPlot draws one plot of a line fit; method "" means the primary fit.
+// ok is false when the kind does not apply (no bootstrap ran).
+func FitPlot(kind string, resp *wire.FitResponse, res *study.FitResult, d *study.Data, method string) ([]byte, bool, error) {
+	ps, err := fitPlots(resp, res, d, method)
+	if err != nil {
+		return nil, false, err
+	}
+	return ps.plot(kind)
+}
+
+func comparePlots(resp *wire.CompareResponse, c *study.Comparison) *plotSet {
+	pm := c.Primary()
+	return &plotSet{x: c.Data.X, y: c.Data.Y, sx: c.Data.SX, sy: c.Data.SY, fitName: pm.Method.Name,
+		fit: resp.Fits.Get(pm.Method.Name), res: pm, ols: resp.Fits.OLS,
+		diag: resp.Diagnostics, agreement: &resp.Agreement,
+		axes: Axes{X: resp.XName + " (x)", Y: resp.YName + " (y)", Unit: resp.Unit}}
+}
+
+// truncate shortens a client's string for a message.
+func truncate(s string) string {
+	if len(s) > 40 {
+		return s[:37] + "..."
+	}
+	return s
+}
+
+func g(v float64) string {
+	if v == 0 {
+		return "0"
+	}
+	if math.Abs(v) >= 1e5 || math.Abs(v) < 1e-3 {
+		return strconv.FormatFloat(v, 'e', 4, 64)
+	}
+	return strconv.FormatFloat(v, 'g', 5, 64)
+}
+
+func ciText(c wire.CI) string { return fmt.Sprintf("%s to %s", g(c.Lower), g(c.Upper)) }
+
+func p2(v float64) string {
+	if v < 0.001 {
+		return "< 0.001"
+	}
+	return strconv.FormatFloat(v, 'f', 3, 64)
+}
+
+// meta lists version, input hash, seeds and time.
+func meta(version, sha string, fits wire.Fits, extra ...KV) []KV {
+	kv := []KV{{Key: "Software", Value: "eivfit " + version}, {Key: "Input SHA-256", Value: sha}}
+	seeds := map[uint64]bool{}
+	fits.Each(func(_ string, m *wire.MethodFit) {
+		if m.Bootstrap != nil {
+			seeds[m.Bootstrap.Seed] = true
+		}
+	})
+	for s := range seeds {
+		kv = append(kv, KV{Key: "Bootstrap seed", Value: strconv.FormatUint(s, 10)})
+	}
+	kv = append(kv, extra...)
+	return append(kv, KV{Key: "Produced", Value: time.Now().UTC().Format(time.RFC3339)})
+}
+
+func fitsTable(fs wire.Fits) Table {
+	t := Table{Caption: "Fitted lines y = a + b·x", Header: []string{"method", "slope b", "wire.CI of b", "intercept a", "wire.CI of a", "SE basis"}, Numeric: []int{1, 2, 3, 4}}
+	fs.Each(func(name string, m *wire.MethodFit) {
+		t.Rows = append(t.Rows, Row{Cells: []string{name, g(m.Slope.Estimate), ciText(m.Slope.CI), g(m.Intercept.Estimate), ciText(m.Intercept.CI), m.SEBasis}})
+	})
+	return t
+}
+
+func uncertaintyTable(fs wire.Fits) (Table, bool) {
+	t := Table{Caption: "Slope uncertainty by method of interval", Header: []string{"method", "analytic", "jackknife", "bootstrap percentile", "bootstrap BCa"}, Numeric: []int{1, 2, 3, 4}}
+	any := false
+	fs.Each(func(name string, m *wire.MethodFit) {
+		row := []string{name, ciText(m.Slope.CI), "-", "-", "-"}
+		if m.Jackknife != nil {
+			row[2] = ciText(m.Jackknife.Slope.CI)
+			any = true
+		}
+		if b := m.Bootstrap; b != nil {
+			if b.Slope.Percentile != nil {
+				row[3] = fmt.Sprintf("%s to %s", g(b.Slope.Percentile.Lower), g(b.Slope.Percentile.Upper))
+			}
+			if b.Slope.BCa != nil {
+				row[4] = fmt.Sprintf("%s to %s", g(b.Slope.BCa.Lower), g(b.Slope.BCa.Upper))
+			}
+			any = true
+		}
+		t.Rows = append(t.Rows, Row{Cells: row})
+	})
+	return t, any
+}
+
+func olsSection(ob []wire.OLSBias) *Section {
+	if len(ob) == 0 {
+		return nil
+	}
+	s := &Section{Heading: "How far OLS would have been off"}
+	t := Table{Header: []string{"compared with", "slope OLS − EIV", "wire.CI", "slope difference %", "wire.CI", "reliability κ", "κ-attenuated slope"}, Numeric: []int{1, 2, 3, 4, 5, 6}}
+	for _, o := range ob {
+		s.Text = append(s.Text, o.Summary)
+		k, ps := "-", "-"
+		if o.Reliability != nil {
+			k, ps = g(*o.Reliability), g(*o.PredictedOLSSlope)
+		}
+		ci1, ci2 := "-", "-"
+		if o.SlopeDifference.CI.Method != "" {
+			ci1, ci2 = ciText(o.SlopeDifference.CI), ciText(o.SlopeRelativePercent.CI)
+		}
+		t.Rows = append(t.Rows, Row{Cells: []string{o.Method, g(o.SlopeDifference.Estimate), ci1, g(o.SlopeRelativePercent.Estimate), ci2, k, ps}})
+	}
+	s.Tables = append(s.Tables, t)
+	return s
+}
+
+func diagSection(d wire.DiagnosticsOut) Section {
+	s := Section{Heading: "Checks of the assumptions", Text: []string{fmt.Sprintf("On the %s residuals of the %s fit.", d.Scale, d.ResidualsOf)}}
+	t := Table{Header: []string{"assumption", "test", "statistic", "p", "reading"}, Numeric: []int{2, 3}}
+	row := func(what, test string, r *wire.TestOut, reading string) {
+		if r == nil {
+			t.Rows = append(t.Rows, Row{Cells: []string{what, test, "-", "-", reading}})
+			return
+		}
+		t.Rows = append(t.Rows, Row{Cells: []string{what, test, g(r.Statistic), p2(r.PValue), reading}})
+	}
+	row("normal errors", "Shapiro–Wilk W", d.Normality.ShapiroWilk, d.Normality.Reading)
+	row("independence in run order", "Durbin–Watson d", d.Independence.DurbinWatson, d.Independence.Reading)
+	row("independence in run order", "runs test z", d.Independence.Runs, "")
+	row("constant variance", "Breusch–Pagan LM", d.Variance.BreuschPagan, d.Variance.Reading)
+	row("constant variance", "Spearman ρ of |residual| with level", d.Variance.Spearman, "")
+	if c := d.Linearity.Cusum; c != nil {
+		row("straight line", "cusum (Passing–Bablok), KS", &wire.TestOut{Statistic: c.KS, PValue: c.PValue}, d.Linearity.Reading)
+	}
+	if d.Linearity.LackOfFit != nil {
+		row("straight line", "lack of fit F (replicates)", d.Linearity.LackOfFit, "")
+	}
+	t.Rows = append(t.Rows, Row{Cells: []string{"no outliers", d.Outliers.Method, strconv.Itoa(len(d.Outliers.Flagged)) + " flagged", "-", d.Outliers.Reading}})
+	s.Tables = append(s.Tables, t)
+	return s
+}
+
+func (ps *plotSet) figures() ([]Figure, error) {
+	var out []Figure
+	for _, k := range PlotKinds {
+		b, ok, err := ps.plot(k)
+		if err != nil {
+			return nil, err
+		}
+		if ok {
+			out = append(out, Figure{Caption: plotCaptions[k], SVG: SVG(b)})
+		}
+	}
+	return out, nil
+}
+
+func warningTexts(ws []wire.Warning) []string {
+	var out []string
+	for _, w := range ws {
+		if w.Method != "" {
+			out = append(out, "["+w.Method+"] "+w.Message)
+		} else {
+			out = append(out, w.Message)
+		}
+	}
+	return out
+}
+
+// FitReport builds the HTML report of a line fit.
+func FitReport(resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha, version string) (*Page, error) {
+	ps, err := fitPlots(resp, res, d, "")
+	if err != nil {
+		return nil, err
+	}
+	inputs := []string{fmt.Sprintf("%d points; x from %s to %s, y from %s to %s.", resp.N, g(slices.Min(d.X)), g(slices.Max(d.X)), g(slices.Min(d.Y)), g(slices.Max(d.Y)))}
+	cols := "x, y"
+	for _, c := range []struct {
+		n string
+		v []float64
+	}{{"sx", d.SX}, {"sy", d.SY}, {"r", d.R}, {"order", d.Order}} {
+		if c.v != nil {
+			cols += ", " + c.n
+		}
+	}
+	inputs = append(inputs, "Columns given: "+cols+fmt.Sprintf(". Intervals at %g %%.", 100*resp.Confidence))
+	p := &Page{
+		Title:    "Straight-line fit with errors in both variables",
+		Subtitle: fmt.Sprintf("%d points · reported line: %s", resp.N, ps.fitName),
+		Meta:     meta(version, sha, resp.Fits),
+		Caution:  study.Caution,
+		Warnings: warningTexts(resp.Warnings),
+	}
+	m := ps.fit
+	p.Summary = append(p.Summary, fmt.Sprintf("%s: slope %s (%s), intercept %s (%s).", ps.fitName, g(m.Slope.Estimate), ciText(m.Slope.CI), g(m.Intercept.Estimate), ciText(m.Intercept.CI)))
+	for _, o := range resp.OLSBias {
+		if o.Method == ps.fitName {
+			p.Summary = append(p.Summary, o.Summary)
+		}
+	}
+	p.Sections = append(p.Sections, Section{Heading: "Input", Text: inputs})
+	fits := Section{Heading: "wire.Fits", Tables: []Table{fitsTable(resp.Fits)}}
+	if t, ok := uncertaintyTable(resp.Fits); ok {
+		fits.Tables = append(fits.Tables, t)
+	}
+	p.Sections = append(p.Sections, fits)
+	if len(m.At) > 0 {
+		t := Table{Caption: "Fitted y and bias y − x at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "wire.CI", "bias", "wire.CI", "bootstrap wire.CI of bias"}, Numeric: []int{0, 1, 2, 3, 4, 5}}
+		for _, a := range m.At {
+			bb := "-"
+			if a.Bias.Bootstrap != nil {
+				bb = fmt.Sprintf("%s to %s", g(a.Bias.Bootstrap.Lower), g(a.Bias.Bootstrap.Upper))
+			}
+			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI), g(a.Bias.Estimate), ciText(a.Bias.CI), bb}})
+		}
+		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
+	}
+	if s := olsSection(resp.OLSBias); s != nil {
+		p.Sections = append(p.Sections, *s)
+	}
+	p.Sections = append(p.Sections, diagSection(ps.diag))
+	figs, err := ps.figures()
+	if err != nil {
+		return nil, err
+	}
+	p.Sections = append(p.Sections, Section{Heading: "Plots", Figures: figs})
+	return p, nil
+}
+
+// CompareReport builds the HTML report of a method-comparison study.
+func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, version string) (*Page, error) {
+	ps := comparePlots(resp, sc)
+	c := &resp.Comparison
+	unit := ""
+	if resp.Unit != "" {
+		unit = " " + resp.Unit
+	}
+	p := &Page{
+		Title:    "Method comparison: " + resp.YName + " against " + resp.XName,
+		Subtitle: fmt.Sprintf("%d samples · %s · %s", c.N, map[bool]string{true: "with replicates", false: "single measurements"}[c.Replicates], resp.SignConvention),
+		Meta:     meta(version, sha, c.Fits),
+		Caution:  study.Caution,
+		Warnings: warningTexts(c.Warnings),
+	}
+	p.Summary = append(p.Summary, c.Recommendation.Text)
+	a := c.Agreement
+	p.Summary = append(p.Summary, fmt.Sprintf("Mean difference (y − x) %s%s (%s); limits of agreement %s to %s%s.",
+		g(a.MeanDifference.Estimate), unit, ciText(a.MeanDifference.CI), g(a.LimitsOfAgreement.Lower.Estimate), g(a.LimitsOfAgreement.Upper.Estimate), unit))
+	p.Sections = append(p.Sections, Section{Heading: "Error model", Text: []string{c.ErrorModel.Reading,
+		fmt.Sprintf("Model used: %s (%s); λ = %s (%s).", c.ErrorModel.Model, c.ErrorModel.Source, g(c.ErrorModel.Lambda), c.ErrorModel.LambdaSource)}})
+	fits := Section{Heading: "wire.Fits", Tables: []Table{fitsTable(c.Fits)}}
+	if t, ok := uncertaintyTable(c.Fits); ok {
+		fits.Tables = append(fits.Tables, t)
+	}
+	if pb := c.Fits.PassingBablok; pb != nil && pb.KendallTau != nil {
+		fits.Text = append(fits.Text, fmt.Sprintf("Passing–Bablok precondition: Kendall's τ = %s (p %s); cusum linearity p = %s.", g(pb.KendallTau.Statistic), p2(pb.KendallTau.PValue), p2(pb.Cusum.PValue)))
+	}
+	p.Sections = append(p.Sections, fits)
+	if len(c.DecisionLevels) > 0 {
+		t := Table{Caption: "Bias y − x at the decision levels", Header: []string{"level", "fit", "bias", "wire.CI", "bias %", "allowable", "verdict"}, Numeric: []int{0, 2, 3, 4, 5}}
+		for _, l := range c.DecisionLevels {
+			allow := "-"
+			if l.Allowable != nil {
+				allow = "±" + g(l.Allowable.Limit)
+			}
+			c.Fits.Each(func(name string, _ *wire.MethodFit) {
+				f := l.Fits[name]
+				cls := map[string]string{"within": "good", "exceeds": "bad", "inconclusive": "warn"}[f.Verdict]
+				v := f.Verdict
+				if v == "" {
+					v = "-"
+				}
+				t.Rows = append(t.Rows, Row{Class: cls, Cells: []string{g(l.Level), name, g(f.Bias.Estimate), ciText(f.Bias.CI), g(f.BiasPercent.Estimate), allow, v}})
+			})
+		}
+		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
+	}
+	ag := Table{Caption: "Agreement (Bland–Altman)", Header: []string{"quantity", "estimate", "wire.CI"}, Numeric: []int{1, 2}}
+	ag.Rows = append(ag.Rows,
+		Row{Cells: []string{"mean difference y − x", g(a.MeanDifference.Estimate), ciText(a.MeanDifference.CI)}},
+		Row{Cells: []string{"SD of differences", g(a.SDDifference), "-"}},
+		Row{Cells: []string{"lower limit of agreement", g(a.LimitsOfAgreement.Lower.Estimate), ciText(a.LimitsOfAgreement.Lower.CI)}},
+		Row{Cells: []string{"upper limit of agreement", g(a.LimitsOfAgreement.Upper.Estimate), ciText(a.LimitsOfAgreement.Upper.CI)}})
+	if pc := a.Percent; pc != nil {
+		ag.Rows = append(ag.Rows,
+			Row{Cells: []string{"mean difference, % of level", g(pc.MeanDifference.Estimate), ciText(pc.MeanDifference.CI)}},
+			Row{Cells: []string{"limits of agreement, %", g(pc.LimitsOfAgreement.Lower.Estimate) + ", " + g(pc.LimitsOfAgreement.Upper.Estimate), "-"}})
+	}
+	p.Sections = append(p.Sections, Section{Heading: "Agreement", Text: []string{a.ProportionalBias.Reading}, Tables: []Table{ag}})
+	if s := olsSection(c.OLSBias); s != nil {
+		p.Sections = append(p.Sections, *s)
+	}
+	p.Sections = append(p.Sections, diagSection(c.Diagnostics))
+	figs, err := ps.figures()
+	if err != nil {
+		return nil, err
+	}
+	p.Sections = append(p.Sections, Section{Heading: "Plots", Figures: figs})
+	if w := resp.WithoutExcluded; w != nil {
+		t := fitsTable(w.Fits)
+		t.Caption = "Fitted lines without " + strings.Join(w.Excluded, ", ")
+		p.Sections = append(p.Sections, Section{Heading: "Without the excluded samples",
+			Text: []string{w.Recommendation.Text}, Tables: []Table{t}})
+	}
+	return p, nil
+}

@@ -1,0 +1,167 @@
+package report
+
+import (
+	"fmt"
+	"io"
+	"strings"
+	"text/tabwriter"
+
+	"eivfit/api/wire"
+)
+
+// WriteText writes a fit as a table for a terminal.
+func WriteText(w io.Writer, r *wire.FitResponse) error {
+	var b strings.Builder
+	fmt.Fprintf(&b, "n = %d, intervals at %g %%\n\n", r.N, 100*r.Confidence)
+	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+	fmt.Fprintln(tw, "method\tslope\tse\tCI\tintercept\tse\tCI\tnotes")
+	row := func(name string, f *wire.MethodFit) {
+		if f == nil {
+			return
+		}
+		var notes []string
+		if f.Lambda != nil {
+			notes = append(notes, fmt.Sprintf("λ = %.4g (%s)", *f.Lambda, f.LambdaSource))
+		}
+		if f.RSquared != nil {
+			notes = append(notes, fmt.Sprintf("R² = %.6g", *f.RSquared))
+		}
+		if f.MSWD != nil {
+			notes = append(notes, fmt.Sprintf("MSWD = %.4g, p = %.3g", *f.MSWD, *f.PValue))
+		}
+		fmt.Fprintf(tw, "%s\t%.6g\t%.4g\t[%.6g, %.6g]\t%.6g\t%.4g\t[%.6g, %.6g]\t%s\n", name,
+			f.Slope.Estimate, f.Slope.SE, f.Slope.CI.Lower, f.Slope.CI.Upper,
+			f.Intercept.Estimate, f.Intercept.SE, f.Intercept.CI.Lower, f.Intercept.CI.Upper,
+			strings.Join(notes, "; "))
+		if j := f.Jackknife; j != nil {
+			fmt.Fprintf(tw, "  jackknife\t\t%.4g\t[%.6g, %.6g]\t\t%.4g\t[%.6g, %.6g]\t\n",
+				j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE, j.Intercept.CI.Lower, j.Intercept.CI.Upper)
+		}
+		if bs := f.Bootstrap; bs != nil {
+			fmtB := func(p wire.BootParamOut) string {
+				if p.BCa != nil {
+					return fmt.Sprintf("[%.6g, %.6g]", p.BCa.Lower, p.BCa.Upper)
+				}
+				if p.Percentile != nil {
+					return fmt.Sprintf("[%.6g, %.6g] pct", p.Percentile.Lower, p.Percentile.Upper)
+				}
+				return "refused"
+			}
+			fmt.Fprintf(tw, "  bootstrap BCa\t\t%.4g\t%s\t\t%.4g\t%s\tB = %d, seed %d, %s\n",
+				bs.Slope.SE, fmtB(bs.Slope), bs.Intercept.SE, fmtB(bs.Intercept), bs.Resamples, bs.Seed, bs.Scheme)
+		}
+	}
+	r.Fits.Each(row)
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	var ferr error
+	r.Fits.Each(func(name string, f *wire.MethodFit) {
+		if len(f.At) == 0 || ferr != nil {
+			return
+		}
+		fmt.Fprintf(&b, "\n%s at decision levels:\n", name)
+		tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+		fmt.Fprintln(tw, "  x\tfitted y\tCI\tbias y − x\tCI")
+		for _, a := range f.At {
+			fmt.Fprintf(tw, "  %g\t%.6g\t[%.6g, %.6g]\t%.4g\t[%.4g, %.4g]\n", a.X, a.Y.Estimate, a.Y.CI.Lower, a.Y.CI.Upper,
+				a.Bias.Estimate, a.Bias.CI.Lower, a.Bias.CI.Upper)
+		}
+		ferr = tw.Flush()
+	})
+	if ferr != nil {
+		return ferr
+	}
+	if len(r.OLSBias) > 0 {
+		b.WriteString("\nHow far OLS is off:\n")
+		for _, c := range r.OLSBias {
+			fmt.Fprintf(&b, "  %s\n", c.Summary)
+		}
+	}
+	if len(r.Warnings) > 0 {
+		b.WriteString("\nWarnings:\n")
+		for _, wn := range r.Warnings {
+			if wn.Method != "" {
+				fmt.Fprintf(&b, "  [%s] %s\n", wn.Method, wn.Message)
+			} else {
+				fmt.Fprintf(&b, "  %s\n", wn.Message)
+			}
+		}
+	}
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+// WriteCompareText writes a method-comparison study for a terminal.
+func WriteCompareText(w io.Writer, r *wire.CompareResponse) error {
+	var b strings.Builder
+	writeComparisonText(&b, r, &r.Comparison)
+	if r.WithoutExcluded != nil {
+		fmt.Fprintf(&b, "\n==== Without %s ====\n", strings.Join(r.WithoutExcluded.Excluded, ", "))
+		writeComparisonText(&b, r, r.WithoutExcluded)
+	}
+	fmt.Fprintf(&b, "\n%s\n%s\n", r.SignConvention, r.Caution)
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Comparison) {
+	fmt.Fprintf(b, "%s (y) against %s (x)", r.YName, r.XName)
+	if r.Unit != "" {
+		fmt.Fprintf(b, ", %s", r.Unit)
+	}
+	fmt.Fprintf(b, ": %d samples, intervals at %g %%\n", c.N, 100*c.Confidence)
+	fmt.Fprintf(b, "Error model: %s (%s), λ = %.4g (%s). %s\n\n", c.ErrorModel.Model, c.ErrorModel.Source,
+		c.ErrorModel.Lambda, c.ErrorModel.LambdaSource, c.ErrorModel.Reading)
+	tw := tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
+	fmt.Fprintln(tw, "fit\tslope\tCI\tintercept\tCI")
+	c.Fits.Each(func(name string, f *wire.MethodFit) {
+		fmt.Fprintf(tw, "%s\t%.5g\t[%.5g, %.5g]\t%.5g\t[%.5g, %.5g]\n", name, f.Slope.Estimate, f.Slope.CI.Lower, f.Slope.CI.Upper,
+			f.Intercept.Estimate, f.Intercept.CI.Lower, f.Intercept.CI.Upper)
+	})
+	_ = tw.Flush()
+	a := c.Agreement
+	fmt.Fprintf(b, "\nBland–Altman (y − x): mean difference %.4g [%.4g, %.4g], SD %.4g, limits of agreement %.4g to %.4g\n",
+		a.MeanDifference.Estimate, a.MeanDifference.CI.Lower, a.MeanDifference.CI.Upper, a.SDDifference,
+		a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate)
+	fmt.Fprintf(b, "  %s\n", a.ProportionalBias.Reading)
+	if len(c.DecisionLevels) > 0 {
+		b.WriteString("\nBias at decision levels:\n")
+		tw = tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
+		fmt.Fprintln(tw, "  level\tfit\tbias\tCI\tbias %\tallowable\tverdict")
+		for _, l := range c.DecisionLevels {
+			allow := "-"
+			if l.Allowable != nil {
+				allow = fmt.Sprintf("±%.4g", l.Allowable.Limit)
+			}
+			c.Fits.Each(func(name string, _ *wire.MethodFit) {
+				f := l.Fits[name]
+				v := f.Verdict
+				if v == "" {
+					v = "-"
+				}
+				fmt.Fprintf(tw, "  %g\t%s\t%.4g\t[%.4g, %.4g]\t%.3g\t%s\t%s\n", l.Level, name, f.Bias.Estimate, f.Bias.CI.Lower, f.Bias.CI.Upper,
+					f.BiasPercent.Estimate, allow, v)
+			})
+		}
+		_ = tw.Flush()
+	}
+	d := c.Diagnostics
+	fmt.Fprintf(b, "\nChecks on the %s residuals (%s):\n", d.ResidualsOf, d.Scale)
+	for _, s := range []string{d.Normality.Reading, d.Independence.Reading, d.Variance.Reading, d.Linearity.Reading, d.Outliers.Reading} {
+		fmt.Fprintf(b, "  - %s\n", s)
+	}
+	if len(c.OLSBias) > 0 {
+		b.WriteString("\nHow far OLS is off:\n")
+		for _, o := range c.OLSBias {
+			fmt.Fprintf(b, "  %s\n", o.Summary)
+		}
+	}
+	fmt.Fprintf(b, "\nRecommendation: %s\n", c.Recommendation.Text)
+	if len(c.Warnings) > 0 {
+		b.WriteString("\nWarnings:\n")
+		for _, wn := range c.Warnings {
+			fmt.Fprintf(b, "  %s\n", wn.Message)
+		}
+	}
+}

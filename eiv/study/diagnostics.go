@@ -1,0 +1,253 @@
+package study
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"strings"
+
+	"eivfit/eiv"
+)
+
+// Diagnostics checks the assumptions on the residuals of one fit, each
+// check with its reading in words.
+type Diagnostics struct {
+	// ResidualsOf names the fit; Scale is "absolute", "relative"
+	// (proportional error model) or "normalized" (York: in units of the
+	// stated SD about the line).
+	ResidualsOf string
+	Scale       string
+	// Residuals are in input order, with the level and run order used.
+	Residuals []Residual
+
+	ShapiroWilk      *eiv.TestResult
+	QQ               []QQPoint
+	NormalityReading string
+
+	// OrderSource is "order" (given) or "input".
+	OrderSource         string
+	DurbinWatson, Runs  *eiv.TestResult
+	IndependenceReading string
+
+	BreuschPagan *eiv.TestResult
+	// Spearman is Spearman's ρ of |residual| with the level.
+	Spearman        *eiv.TestResult
+	VarianceReading string
+
+	Cusum            *eiv.CusumResult
+	LackOfFit        *eiv.TestResult
+	LinearityReading string
+
+	// OutlierTest names the test; OutlierMaxTested is its r. Outliers
+	// are flagged, never dropped.
+	OutlierTest      string
+	OutlierMaxTested int
+	Outliers         []Outlier
+	OutlierReading   string
+}
+
+// Residual is one sample's residual.
+type Residual struct {
+	ID    string
+	Level float64 // (x + y)/2
+	Order float64
+	// Value is the residual on the Scale; Standardized is Value over the
+	// residuals' SD.
+	Value, Standardized float64
+}
+
+// QQPoint is one point of the normal Q-Q plot.
+type QQPoint struct {
+	Theoretical, Sample float64
+	ID                  string
+}
+
+// Outlier is one flagged sample; Index is its index in the caller's data.
+type Outlier struct {
+	ID        string
+	Index     int
+	Residual  float64
+	R, Lambda float64 // the ESD statistic and its critical value
+}
+
+// DiagnoseFit checks the assumptions on the residuals of a line fit's
+// method m (constant error model; the cusum linearity test on its line).
+func DiagnoseFit(d *Data, m *MethodResult) *Diagnostics {
+	n := d.Len()
+	st := &reduced{Data: *d, idx: make([]int, n), kx: make([]int, n), ky: make([]int, n)}
+	st.ID, st.Order = make([]string, n), make([]float64, n)
+	for i := range n {
+		st.kx[i], st.ky[i], st.idx[i] = 1, 1, i
+		st.Order[i] = float64(i + 1)
+		if d.Order != nil {
+			st.Order[i], st.hasOrder = d.Order[i], true
+		}
+		if d.ID != nil {
+			st.ID[i] = d.ID[i]
+		}
+	}
+	a, b := m.Fit.Intercept.Value, m.Fit.Slope.Value
+	c := eiv.CusumLinearity(d.X, d.Y, a, b)
+	return diagnose(st, m.Fit, m.Method.Name, string(eiv.ErrorConstant), &c, nil, nil)
+}
+
+func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResult, rx, ry *eiv.Repeatability) *Diagnostics {
+	n := st.Len()
+	a, b := f.Intercept.Value, f.Slope.Value
+	d := &Diagnostics{ResidualsOf: name, Scale: "absolute"}
+	e := make([]float64, n)
+	level := make([]float64, n)
+	for i := range n {
+		level[i] = (st.X[i] + st.Y[i]) / 2
+		e[i] = st.Y[i] - a - b*st.X[i]
+		if model == string(eiv.ErrorProportional) && level[i] > 0 {
+			e[i] /= level[i]
+		}
+	}
+	if model == string(eiv.ErrorProportional) {
+		d.Scale = "relative"
+	}
+	if name == "york" && st.SX != nil {
+		// York's residuals in units of their stated SD about the line.
+		for i := range n {
+			e[i] = (st.Y[i] - a - b*st.X[i]) / math.Sqrt(st.SY[i]*st.SY[i]+b*b*st.SX[i]*st.SX[i])
+		}
+		d.Scale = "normalized"
+	}
+	var ss float64
+	for _, v := range e {
+		ss += v * v
+	}
+	sd := math.Sqrt(ss / float64(max(n-2, 1)))
+	for i := range n {
+		z := 0.0
+		if sd > 0 {
+			z = e[i] / sd
+		}
+		d.Residuals = append(d.Residuals, Residual{ID: st.ID[i], Level: level[i], Order: st.Order[i], Value: e[i], Standardized: z})
+	}
+	to := func(r eiv.TestResult) *eiv.TestResult { return &r }
+	// Normality.
+	if sw, err := eiv.ShapiroWilk(e); err == nil {
+		d.ShapiroWilk = to(sw)
+		if sw.PValue < 0.05 {
+			d.NormalityReading = fmt.Sprintf("The residuals depart from a normal distribution (Shapiro–Wilk W = %.3f, p = %.2g): prefer the distribution-free Passing–Bablok line, and look at the Q-Q plot for outliers or skew.", sw.Statistic, sw.PValue)
+		} else {
+			d.NormalityReading = fmt.Sprintf("No evidence against normal residuals (Shapiro–Wilk W = %.3f, p = %.2g).", sw.Statistic, sw.PValue)
+		}
+	} else {
+		d.NormalityReading = "Normality could not be tested (the residuals are all equal)."
+	}
+	for _, q := range eiv.NormalQQ(e) {
+		d.QQ = append(d.QQ, QQPoint{Theoretical: q.Theoretical, Sample: q.Sample, ID: st.ID[q.Index]})
+	}
+	// Independence in run order.
+	ord := make([]int, n)
+	for i := range ord {
+		ord[i] = i
+	}
+	slices.SortStableFunc(ord, func(p, q int) int {
+		switch {
+		case st.Order[p] < st.Order[q]:
+			return -1
+		case st.Order[p] > st.Order[q]:
+			return 1
+		}
+		return 0
+	})
+	eo, lo := make([]float64, n), make([]float64, n)
+	for k, i := range ord {
+		eo[k], lo[k] = e[i], level[i]
+	}
+	d.OrderSource = "input"
+	if st.hasOrder {
+		d.OrderSource = "order"
+	}
+	var reads []string
+	if dw, err := eiv.DurbinWatson(eo, lo); err == nil {
+		d.DurbinWatson = to(dw)
+		if dw.PValue < 0.05 {
+			reads = append(reads, fmt.Sprintf("successive residuals in run order are correlated (Durbin–Watson d = %.2f, p = %.2g): look for drift or carry-over", dw.Statistic, dw.PValue))
+		}
+	}
+	if rt, err := eiv.RunsTest(eo); err == nil {
+		d.Runs = to(rt)
+		if rt.PValue < 0.05 {
+			reads = append(reads, fmt.Sprintf("the signs of the residuals in run order form %s runs than chance gives (p = %.2g)", map[bool]string{true: "fewer", false: "more"}[rt.Statistic < 0], rt.PValue))
+		}
+	}
+	d.IndependenceReading = sentence(reads, "No evidence of dependence in run order.", ".")
+	// Constant variance.
+	absE := make([]float64, n)
+	for i, v := range e {
+		absE[i] = math.Abs(v)
+	}
+	reads = nil
+	if bp, err := eiv.BreuschPagan(e, level); err == nil {
+		d.BreuschPagan = to(bp)
+		if bp.PValue < 0.05 {
+			reads = append(reads, fmt.Sprintf("the residual variance changes with the level (Breusch–Pagan p = %.2g)", bp.PValue))
+		}
+	}
+	if sp, err := eiv.Spearman(level, absE); err == nil {
+		d.Spearman = to(sp)
+		if sp.PValue < 0.05 && sp.Statistic > 0 {
+			reads = append(reads, fmt.Sprintf("|residual| grows with the level (Spearman ρ = %.2f, p = %.2g)", sp.Statistic, sp.PValue))
+		}
+	}
+	d.VarianceReading = sentence(reads, fmt.Sprintf("No evidence that the %s residual spread changes with the level.", d.Scale),
+		fmt.Sprintf(": the %s error model may not hold.", model))
+	// Linearity.
+	d.Cusum = cusum
+	reads = nil
+	if cusum != nil && !cusum.Linear {
+		reads = append(reads, fmt.Sprintf("the cusum test finds a departure from a straight line (p = %.2g)", cusum.PValue))
+	}
+	if rx != nil && ry != nil {
+		if lof, err := eiv.LackOfFit(st.X, st.Y, st.kx, st.ky, a, b, rx, ry); err == nil && model == string(eiv.ErrorConstant) {
+			d.LackOfFit = to(lof)
+			if lof.PValue < 0.05 {
+				reads = append(reads, fmt.Sprintf("the scatter about the line exceeds what the replicate error explains (lack of fit F = %.2f, p = %.2g): sample-specific differences (interferences, matrix effects) or curvature", lof.Statistic, lof.PValue))
+			}
+		}
+	}
+	if cusum != nil && !cusum.Linear {
+		d.LinearityReading = sentence(reads, "", "; restrict the range or model the curvature before reporting a line.")
+	} else {
+		d.LinearityReading = sentence(reads, "No evidence against a straight line.", "; look at the samples with the largest residuals.")
+	}
+	// Outliers: generalized ESD on the residuals; flagged, never dropped.
+	r := max(1, min(10, n/10))
+	d.OutlierTest, d.OutlierMaxTested, d.Outliers = "generalized ESD (Rosner 1983), α = 0.05", r, []Outlier{}
+	if n-r >= 3 {
+		if esd, err := eiv.GeneralizedESD(e, r, 0.05); err == nil {
+			for k, i := range esd.Outliers {
+				d.Outliers = append(d.Outliers, Outlier{ID: st.ID[i], Index: st.idx[i], Residual: e[i], R: esd.R[k], Lambda: esd.Lambda[k]})
+			}
+		}
+	}
+	if len(d.Outliers) == 0 {
+		d.OutlierReading = "No outliers flagged."
+	} else {
+		var names []string
+		for _, o := range d.Outliers {
+			name := o.ID
+			if name == "" {
+				name = fmt.Sprintf("#%d", o.Index+1)
+			}
+			names = append(names, name)
+		}
+		d.OutlierReading = fmt.Sprintf("Flagged as outliers: %s. They are kept in every fit; check them against the records, and exclude them only by listing their ids in \"exclude\", which shows the analysis both ways.", strings.Join(names, ", "))
+	}
+	return d
+}
+
+// sentence joins the findings into one sentence ending in tail, or says
+// none when there are none.
+func sentence(reads []string, none, tail string) string {
+	if len(reads) == 0 {
+		return none
+	}
+	s := strings.Join(reads, "; ")
+	return strings.ToUpper(s[:1]) + s[1:] + tail
+}
