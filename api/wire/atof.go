@@ -1,6 +1,7 @@
 package wire
 
 import (
+	"bytes"
 	"math"
 	"strconv"
 )
@@ -93,6 +94,9 @@ func parseFloat(b []byte) (v float64, ok bool) {
 }
 
 func slowFloat(b []byte) (float64, bool) {
+	if bytes.ContainsAny(b, "xX_") { // Go's hexadecimal floats and digit separators are not decimals
+		return 0, false
+	}
 	v, err := strconv.ParseFloat(string(b), 64)
 	if err != nil || math.IsInf(v, 0) || math.IsNaN(v) {
 		return v, false

@@ -10,6 +10,7 @@ import (
 	"net/http"
 	"strconv"
 	"strings"
+	"unicode"
 	"unicode/utf8"
 )
 
@@ -223,7 +224,7 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 		if d == nil {
 			strs = strs[:0]
 			for _, f := range fields {
-				strs = append(strs, string(bytes.TrimLeft(f, " \t")))
+				strs = append(strs, string(bytes.TrimLeftFunc(f, unicode.IsSpace)))
 			}
 			var seen [7]bool
 			var err error
@@ -239,7 +240,7 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 		for j, f := range fields {
 			k := cols[j]
 			if k == 5 {
-				f = bytes.TrimLeft(f, " \t")
+				f = bytes.TrimLeftFunc(f, unicode.IsSpace)
 				if !utf8.Valid(f) {
 					return nil, Invalid(fmt.Sprintf("row %d, column id", line), "the id is not valid UTF-8 text")
 				}
@@ -270,6 +271,11 @@ func parseCell(f string) (float64, error) {
 		return 0, errors.New("the cell is empty; every row needs a number in this column")
 	}
 	v, err := strconv.ParseFloat(f, 64)
+	if err == nil && strings.ContainsAny(f, "xX_") {
+		// strconv also reads Go's hexadecimal floats and digit
+		// separators; a CSV cell is a decimal number.
+		err = strconv.ErrSyntax
+	}
 	if err != nil {
 		var ne *strconv.NumError
 		if errors.As(err, &ne) && ne.Err == strconv.ErrRange {

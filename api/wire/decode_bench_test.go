@@ -2,6 +2,7 @@ package wire
 
 import (
 	"bytes"
+	"encoding/json"
 	"fmt"
 	"math/rand/v2"
 	"strconv"
@@ -48,6 +49,37 @@ func BenchmarkDecode(b *testing.B) {
 			for b.Loop() {
 				req, err := DecodeFitJSON(bytes.NewReader(j))
 				if err != nil || req.Points.Len() != n {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
+
+// BenchmarkDecodeStd is BenchmarkDecode's pair through the standard
+// library (encoding/csv, encoding/json into plain structs), to keep the
+// fast decoders' speed-up visible.
+func BenchmarkDecodeStd(b *testing.B) {
+	for _, n := range []int{1000, 1_000_000} {
+		c, j := payloads(n)
+		b.Run(fmt.Sprintf("csv/n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			b.SetBytes(int64(len(c)))
+			for b.Loop() {
+				d, err := decodeCSVReader(c)
+				if err != nil || d.Len() != n {
+					b.Fatal(err)
+				}
+			}
+		})
+		b.Run(fmt.Sprintf("json/n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			b.SetBytes(int64(len(j)))
+			for b.Loop() {
+				var req plainRequest
+				dec := json.NewDecoder(bytes.NewReader(j))
+				dec.DisallowUnknownFields()
+				if err := dec.Decode(&req); err != nil || len(req.Points) != n {
 					b.Fatal(err)
 				}
 			}

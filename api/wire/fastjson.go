@@ -2,10 +2,12 @@ package wire
 
 import (
 	"bytes"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
 	"net/http"
+	"strings"
 )
 
 // fitOptions is FitRequest without its points, for the fast decoder.
@@ -51,6 +53,11 @@ func decodeFitFast(body []byte) (req *FitRequest, ok bool, err error) {
 			}
 			p.pos++
 			p.ws()
+			if string(kb) != "points" && strings.EqualFold(string(kb), "points") {
+				// encoding/json would match the key without regard to case; the
+				// fields are named exactly.
+				return nil, true, Invalid("/"+escapePointer(string(kb)), fmt.Sprintf("unknown field %q", string(kb)))
+			}
 			if string(kb) == "points" {
 				if seenPoints {
 					return nil, true, Invalid("/points", "points appears twice")
@@ -94,6 +101,11 @@ func decodeFitFast(body []byte) (req *FitRequest, ok bool, err error) {
 		return nil, true, Invalid("", "the body holds more than one JSON value")
 	}
 	rest.WriteByte('}')
+	if !json.Valid(rest.Bytes()) {
+		// A syntax error among the options: the general decoder names it
+		// at its offset in the body as sent, not in this copy.
+		return nil, false, nil
+	}
 	var o fitOptions
 	if err := decodeStrict(&rest, &o); err != nil {
 		return nil, true, err

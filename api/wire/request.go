@@ -94,7 +94,11 @@ func decodeStrict(r io.Reader, v any) error {
 		var se *json.SyntaxError
 		if errors.As(err, &se) {
 			ptr := pointerAt(body, se.Offset-1)
-			return Invalid(ptr, fmt.Sprintf("the body is not valid JSON at byte %d (%s); numbers must be finite JSON numbers, not NaN or Infinity", se.Offset, se.Error()))
+			detail := fmt.Sprintf("the body is not valid JSON at byte %d (%s)", se.Offset, se.Error())
+			if at := se.Offset - 1; at >= 0 && at < int64(len(body)) && strings.IndexByte("NIn", body[at]) >= 0 {
+				detail += "; numbers must be finite JSON numbers, not NaN or Infinity"
+			}
+			return Invalid(ptr, detail)
 		}
 		return jsonProblem(err, "")
 	}
