@@ -181,7 +181,7 @@ func TestFarTailPValuesAgainstScipy(t *testing.T) {
 
 // issue 12's reproducer, with scipy's value written in: scipy.stats.kendalltau
 // (Debian python3-scipy 1.10.1, method "auto", here the normal
-// approximation with tie correction) gives p = X
+// approximation with tie correction) gives p = 1.1184255667844175e-19;
 // eivfit gave 0 before. Tolerance as in TestFarTailPValuesAgainstScipy.
 func TestKendallReproducerPValue(t *testing.T) {
 	c := farTailCases()[0].c
