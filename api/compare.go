@@ -92,12 +92,13 @@ type PercentOut struct {
 	LimitsOfAgreement LimitsOut `json:"limits_of_agreement"`
 }
 
-// ProportionalOut is the regression of differences on means.
+// ProportionalOut is the regression of differences on means; the line and
+// its p-value are absent when the means do not vary (the reading says so).
 type ProportionalOut struct {
-	Slope     Param   `json:"slope"`
-	Intercept Param   `json:"intercept"`
-	PValue    float64 `json:"p_value"`
-	Reading   string  `json:"reading"`
+	Slope     *Param   `json:"slope,omitempty"`
+	Intercept *Param   `json:"intercept,omitempty"`
+	PValue    *float64 `json:"p_value,omitempty"`
+	Reading   string   `json:"reading"`
 }
 
 // LevelOut is the bias at one decision level under each fit.
@@ -106,6 +107,15 @@ type LevelOut struct {
 	// Allowable is the limit applied here, when one was given.
 	Allowable *AllowableOut       `json:"allowable_bias,omitempty"`
 	Fits      map[string]LevelFit `json:"fits"`
+}
+
+// pctText prints a bias in percent for a report, "-" at level 0 where
+// it has none.
+func pctText(iv *Interval) string {
+	if iv == nil {
+		return "-"
+	}
+	return g(iv.Estimate)
 }
 
 // AllowableOut is the allowable bias at a level.
@@ -117,8 +127,9 @@ type AllowableOut struct {
 
 // LevelFit is one fit's bias at a level with its verdict.
 type LevelFit struct {
-	Bias        Interval `json:"bias"`
-	BiasPercent Interval `json:"bias_percent"`
+	Bias Interval `json:"bias"`
+	// BiasPercent is the bias in percent of the level (absent at level 0).
+	BiasPercent *Interval `json:"bias_percent,omitempty"`
 	// Verdict is "within" (the whole interval inside ±limit), "exceeds"
 	// (the whole interval outside), or "inconclusive" (it straddles the
 	// limit); empty when no allowable bias applies.
@@ -625,8 +636,10 @@ func agreement(st *study, conf float64, positive bool) (*AgreementOut, error) {
 		Multiplier:        ag.Multiplier,
 		LimitsOfAgreement: LimitsOut{Lower: interval(ag.Lower), Upper: interval(ag.Upper)},
 	}
+	out.ProportionalBias.Reading = "The differences could not be regressed on the level (the means do not vary)."
 	if ag.Proportional != nil {
-		out.ProportionalBias = ProportionalOut{Slope: param(ag.Proportional.Slope), Intercept: param(ag.Proportional.Intercept), PValue: ag.ProportionalP}
+		sl, ic := param(ag.Proportional.Slope), param(ag.Proportional.Intercept)
+		out.ProportionalBias = ProportionalOut{Slope: &sl, Intercept: &ic, PValue: ptr(ag.ProportionalP)}
 		if ag.ProportionalP < 0.05 {
 			out.ProportionalBias.Reading = fmt.Sprintf("The differences change with the level (slope %.3g, p = %.2g): a proportional bias.", ag.Proportional.Slope.Value, ag.ProportionalP)
 		} else {
@@ -666,10 +679,16 @@ func (req *CompareRequest) levels(fs Fits) []LevelOut {
 			lf := LevelFit{Bias: b}
 			if l.Level != 0 {
 				k := 100 / l.Level
-				lf.BiasPercent = Interval{Estimate: b.Estimate * k, SE: b.SE * math.Abs(k),
-					CI: CI{Lower: math.Min(b.CI.Lower*k, b.CI.Upper*k), Upper: math.Max(b.CI.Lower*k, b.CI.Upper*k), Level: b.CI.Level, Method: b.CI.Method}}
+				bp := Interval{Estimate: b.Estimate * k}
+				if b.SE != nil {
+					bp.SE = ptr(*b.SE * math.Abs(k))
+				}
+				if !b.CI.IsZero() {
+					bp.CI = CI{Lower: math.Min(b.CI.Lower*k, b.CI.Upper*k), Upper: math.Max(b.CI.Lower*k, b.CI.Upper*k), Level: b.CI.Level, Method: b.CI.Method}
+				}
+				lf.BiasPercent = &bp
 			}
-			if lo.Allowable != nil && b.CI.Method != "unavailable" {
+			if lo.Allowable != nil && !b.CI.IsZero() { // no interval, no verdict
 				lim := lo.Allowable.Limit
 				switch {
 				case b.CI.Lower >= -lim && b.CI.Upper <= lim:
@@ -926,10 +945,16 @@ func checkFiniteCompare(r *CompareResponse) error {
 		}
 		a := c.Agreement
 		chk(a.MeanDifference.Estimate, a.MeanDifference.CI.Lower, a.MeanDifference.CI.Upper, a.SDDifference,
-			a.LimitsOfAgreement.Lower.CI.Lower, a.LimitsOfAgreement.Upper.CI.Upper, a.ProportionalBias.PValue, c.ErrorModel.Lambda)
+			a.LimitsOfAgreement.Lower.CI.Lower, a.LimitsOfAgreement.Upper.CI.Upper, c.ErrorModel.Lambda)
+		if pb := a.ProportionalBias; pb.PValue != nil {
+			chk(*pb.PValue)
+		}
 		for _, l := range c.DecisionLevels {
 			for _, f := range l.Fits {
-				chk(f.Bias.Estimate, f.Bias.CI.Lower, f.Bias.CI.Upper, f.BiasPercent.Estimate, f.BiasPercent.CI.Lower, f.BiasPercent.CI.Upper)
+				f.Bias.eachNumber(func(_ string, v float64) { chk(v) })
+				if f.BiasPercent != nil {
+					f.BiasPercent.eachNumber(func(_ string, v float64) { chk(v) })
+				}
 			}
 		}
 		for _, t := range []*TestOut{c.Diagnostics.Normality.ShapiroWilk, c.Diagnostics.Independence.DurbinWatson, c.Diagnostics.Independence.Runs,

@@ -160,15 +160,11 @@ func finishFits(ctx context.Context, s eiv.Sample, fits []*fitted, at []float64,
 			return p.Y.CI.Lower, p.Y.CI.Upper, ok
 		}
 		for _, x0 := range at {
-			p, ok := f.fit.At(x0), true
+			p := f.fit.At(x0)
 			if f.at != nil {
-				p, ok = f.at(x0)
+				p, _ = f.at(x0)
 			}
-			a := AtOut{X: x0, Y: interval(p.Y), Bias: interval(p.Bias)}
-			if !ok {
-				a.Y.CI.Method, a.Bias.CI.Method = "unavailable", "unavailable"
-			}
-			f.out.At = append(f.out.At, a)
+			f.out.At = append(f.out.At, AtOut{X: x0, Y: interval(p.Y), Bias: interval(p.Bias)})
 		}
 	}
 	boot := bo != nil && bo.Resamples > 0
@@ -296,9 +292,9 @@ func pbFitted(s eiv.Sample, conf float64, set Settings) (*fitted, error) {
 	}
 	ft.at = func(x0 float64) (eiv.Prediction, bool) {
 		if loo == nil {
+			// No uncertainty to give: the estimates alone, no SE, no interval.
 			y := full.Intercept + full.Slope*x0
-			return eiv.Prediction{X: x0, Y: eiv.Estimate{Value: y, CI: eiv.Interval{Lower: y, Upper: y, Level: conf}},
-				Bias: eiv.Estimate{Value: y - x0, CI: eiv.Interval{Lower: y - x0, Upper: y - x0, Level: conf}}}, false
+			return eiv.Prediction{X: x0, Y: eiv.Estimate{Value: y}, Bias: eiv.Estimate{Value: y - x0}}, false
 		}
 		return eiv.JackknifeAt(full, loo, x0, conf), true
 	}
@@ -365,12 +361,14 @@ var seBasis = map[eiv.Method]string{
 
 func methodFit(f *eiv.Fit) *MethodFit {
 	out := &MethodFit{
-		Slope:             param(f.Slope),
-		Intercept:         param(f.Intercept),
-		CovSlopeIntercept: f.CovSlopeIntercept,
-		SEBasis:           seBasis[f.Method],
-		DOF:               f.DOF,
-		Converged:         f.Converged,
+		Slope:     param(f.Slope),
+		Intercept: param(f.Intercept),
+		SEBasis:   seBasis[f.Method],
+		DOF:       f.DOF,
+		Converged: f.Converged,
+	}
+	if f.Method != eiv.MethodPassingBablok { // a rank method: no covariance
+		out.CovSlopeIntercept = ptr(f.CovSlopeIntercept)
 	}
 	switch f.Method {
 	case eiv.MethodOLS:
@@ -397,8 +395,12 @@ func methodFit(f *eiv.Fit) *MethodFit {
 func bootstrapOut(br *eiv.BootstrapResult, seed uint64) *BootstrapOut {
 	out := &BootstrapOut{Resamples: br.Resamples, Failed: br.Failed, Seed: seed, Scheme: string(br.Scheme)}
 	one := func(stat eiv.Statistic) BootParamOut {
-		s, _ := br.Summarize(stat) // a refused interval stays nil; the warning says why
-		return BootParamOut{SE: s.SE, Percentile: bounds(s.Percentile), BCa: bounds(s.BCa)}
+		s, err := br.Summarize(stat) // a refused interval stays nil; the warning says why
+		out := BootParamOut{Percentile: bounds(s.Percentile), BCa: bounds(s.BCa)}
+		if err == nil || s.SE > 0 { // fewer than two fitted resamples leave no SE
+			out.SE = ptr(s.SE)
+		}
+		return out
 	}
 	out.Slope, out.Intercept = one(eiv.SlopeOf(0)), one(eiv.InterceptOf(0))
 	return out
@@ -421,14 +423,30 @@ func olsBiasOut(c *eiv.OLSComparison) OLSBias {
 	return out
 }
 
-func param(e eiv.Estimate) Param { return Param{Estimate: e.Value, SE: e.SE, CI: ci(e.CI)} }
-
-func ci(i eiv.Interval) CI {
-	return CI{Lower: i.Lower, Upper: i.Upper, Level: i.Level, Method: i.Method}
+// param and interval carry an estimate to the answer. An eiv estimate
+// without an interval method has no uncertainty (its SE and CI are unset
+// zeros): the answer then leaves se and ci out.
+func param(e eiv.Estimate) Param {
+	p := Param{Estimate: e.Value}
+	p.SE, p.CI = seCI(e)
+	return p
 }
 
 func interval(e eiv.Estimate) Interval {
-	return Interval{Estimate: e.Value, SE: e.SE, CI: ci(e.CI)}
+	iv := Interval{Estimate: e.Value}
+	iv.SE, iv.CI = seCI(e)
+	return iv
+}
+
+func seCI(e eiv.Estimate) (*float64, CI) {
+	if e.CI.Method == "" {
+		return nil, CI{}
+	}
+	return ptr(e.SE), ci(e.CI)
+}
+
+func ci(i eiv.Interval) CI {
+	return CI{Lower: i.Lower, Upper: i.Upper, Level: i.Level, Method: i.Method}
 }
 
 func bounds(i *eiv.Interval) *Bounds {
@@ -496,17 +514,21 @@ func checkFinite(r *FitResponse) error {
 
 func (p Param) eachNumber(f func(string, float64)) {
 	f("estimate", p.Estimate)
-	f("se", p.SE)
-	if p.SEScaled != nil {
-		f("se_scaled", *p.SEScaled)
-	}
+	optional(f, "se", p.SE)
+	optional(f, "se_scaled", p.SEScaled)
 	f("ci", p.CI.Lower)
 	f("ci", p.CI.Upper)
 }
 
+func optional(f func(string, float64), k string, v *float64) {
+	if v != nil {
+		f(k, *v)
+	}
+}
+
 func (iv Interval) eachNumber(f func(string, float64)) {
 	f("estimate", iv.Estimate)
-	f("se", iv.SE)
+	optional(f, "se", iv.SE)
 	f("ci", iv.CI.Lower)
 	f("ci", iv.CI.Upper)
 	if iv.Bootstrap != nil {
@@ -518,15 +540,12 @@ func (iv Interval) eachNumber(f func(string, float64)) {
 func (m *MethodFit) eachNumber(f func(string, float64)) {
 	m.Slope.eachNumber(func(k string, v float64) { f("slope/"+k, v) })
 	m.Intercept.eachNumber(func(k string, v float64) { f("intercept/"+k, v) })
-	f("cov_slope_intercept", m.CovSlopeIntercept)
 	for _, o := range [...]struct {
 		k string
 		p *float64
-	}{{"r_squared", m.RSquared}, {"residual_sd", m.ResidualSD}, {"lambda", m.Lambda},
-		{"chi2", m.Chi2}, {"mswd", m.MSWD}, {"p_value", m.PValue}} {
-		if o.p != nil {
-			f(o.k, *o.p)
-		}
+	}{{"cov_slope_intercept", m.CovSlopeIntercept}, {"r_squared", m.RSquared}, {"residual_sd", m.ResidualSD},
+		{"lambda", m.Lambda}, {"chi2", m.Chi2}, {"mswd", m.MSWD}, {"p_value", m.PValue}} {
+		optional(f, o.k, o.p)
 	}
 	if j := m.Jackknife; j != nil {
 		for _, v := range []float64{j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE,
@@ -536,7 +555,7 @@ func (m *MethodFit) eachNumber(f func(string, float64)) {
 	}
 	if b := m.Bootstrap; b != nil {
 		for _, p := range []BootParamOut{b.Slope, b.Intercept} {
-			f("bootstrap/se", p.SE)
+			optional(f, "bootstrap/se", p.SE)
 			for _, bd := range []*Bounds{p.Percentile, p.BCa} {
 				if bd != nil {
 					f("bootstrap", bd.Lower)

@@ -202,7 +202,12 @@ func g(v float64) string {
 	return strconv.FormatFloat(v, 'g', 5, 64)
 }
 
-func ciText(c CI) string { return fmt.Sprintf("%s to %s", g(c.Lower), g(c.Upper)) }
+func ciText(c CI) string {
+	if c.IsZero() {
+		return "-" // no interval
+	}
+	return fmt.Sprintf("%s to %s", g(c.Lower), g(c.Upper))
+}
 
 func p2(v float64) string {
 	if v < 0.001 {
@@ -435,7 +440,7 @@ func CompareReport(resp *CompareResponse, req *CompareRequest, sha, version stri
 				if v == "" {
 					v = "-"
 				}
-				t.Rows = append(t.Rows, report.Row{Class: cls, Cells: []string{g(l.Level), name, g(f.Bias.Estimate), ciText(f.Bias.CI), g(f.BiasPercent.Estimate), allow, v}})
+				t.Rows = append(t.Rows, report.Row{Class: cls, Cells: []string{g(l.Level), name, g(f.Bias.Estimate), ciText(f.Bias.CI), pctText(f.BiasPercent), allow, v}})
 			})
 		}
 		p.Sections = append(p.Sections, report.Section{Heading: "Decision levels", Tables: []report.Table{t}})

@@ -53,8 +53,8 @@ func TestFitPearsonYorkCLI(t *testing.T) {
 	}{
 		{"slope", y.Slope.Estimate, "-0.480533407"},
 		{"intercept", y.Intercept.Estimate, "5.47991022"},
-		{"se(slope)", y.Slope.SE, "0.0579850"},
-		{"se(intercept)", y.Intercept.SE, "0.2949707"},
+		{"se(slope)", *y.Slope.SE, "0.0579850"},
+		{"se(intercept)", *y.Intercept.SE, "0.2949707"},
 		{"mswd", *y.MSWD, "1.4832941"},
 	} {
 		want, _ := strconv.ParseFloat(c.published, 64)
