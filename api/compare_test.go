@@ -1,6 +1,7 @@
 package api
 
 import (
+	"bytes"
 	"context"
 	"encoding/json"
 	"fmt"
@@ -9,6 +10,8 @@ import (
 	"os"
 	"strings"
 	"testing"
+
+	"eivfit/api/answertest"
 )
 
 func decodeCompare(t *testing.T, body string) *CompareResponse {
@@ -21,6 +24,11 @@ func decodeCompare(t *testing.T, body string) *CompareResponse {
 	if err != nil {
 		t.Fatal(err)
 	}
+	var b bytes.Buffer
+	if err := WriteJSON(&b, resp); err != nil {
+		t.Fatal(err)
+	}
+	answertest.Check(t, b.Bytes())
 	return resp
 }
 

@@ -20,12 +20,14 @@ import (
 	"time"
 
 	"eivfit/api"
+	"eivfit/api/answertest"
 )
 
 func runCmd(t *testing.T, stdin string, args ...string) (stdout, stderr string, err error) {
 	t.Helper()
 	var o, e bytes.Buffer
 	err = run(context.Background(), args, strings.NewReader(stdin), &o, &e)
+	answertest.Check(t, o.Bytes()) // every JSON answer the CLI prints
 	return o.String(), e.String(), err
 }
 
