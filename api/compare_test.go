@@ -1,6 +1,7 @@
 package api
 
 import (
+	"bytes"
 	"context"
 	"eivfit/api/wire"
 	"encoding/json"
@@ -10,6 +11,8 @@ import (
 	"os"
 	"strings"
 	"testing"
+
+	"eivfit/api/answertest"
 )
 
 func decodeCompare(t *testing.T, body string) *wire.CompareResponse {
@@ -22,6 +25,11 @@ func decodeCompare(t *testing.T, body string) *wire.CompareResponse {
 	if err != nil {
 		t.Fatal(err)
 	}
+	var b bytes.Buffer
+	if err := wire.WriteJSON(&b, resp); err != nil {
+		t.Fatal(err)
+	}
+	answertest.Check(t, b.Bytes())
 	return resp
 }
 

@@ -16,6 +16,7 @@ import (
 	"testing"
 	"time"
 
+	"eivfit/api/answertest"
 	"eivfit/openapi"
 
 	"github.com/getkin/kin-openapi/openapi3"
@@ -116,6 +117,7 @@ func (h *harness) validate(req *http.Request, body string, rec *httptest.Respons
 	}
 	out := &openapi3filter.ResponseValidationInput{RequestValidationInput: in, Status: rec.Code,
 		Header: rec.Header(), Options: &openapi3filter.Options{IncludeResponseStatus: true}}
+	answertest.Check(h.t, rec.Body.Bytes())
 	out.SetBodyBytes(rec.Body.Bytes())
 	if err := openapi3filter.ValidateResponse(context.Background(), out); err != nil {
 		h.t.Errorf("%s %s → %d: answer does not match the OpenAPI document: %v\n%s", req.Method, req.URL, rec.Code, err, truncate(rec.Body.String()))

@@ -96,7 +96,7 @@ func agreementOf(d, m []float64, multiplier, conf float64) (*Agreement, error) {
 		tt := 0.0
 		if f.Slope.SE > 0 {
 			tt = f.Slope.Value / f.Slope.SE
-			a.ProportionalP = 2 * distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n - 2)}.Survival(math.Abs(tt))
+			a.ProportionalP = tTwoSided(tt, float64(n-2))
 		} else {
 			a.ProportionalP = 1
 			if f.Slope.Value != 0 {

@@ -34,7 +34,10 @@ type Estimate struct {
 	SE float64
 	// SEScaled is SE multiplied by √MSWD (York only; zero otherwise).
 	SEScaled float64
-	// CI is the confidence interval at Fit.Confidence.
+	// CI is the confidence interval at Fit.Confidence. An estimate without
+	// uncertainty (Passing–Bablok with too few slopes, a comparison without
+	// resamples or leave-one-out lines) has CI.Method empty, and its SE and
+	// CI are then unset zeros, not values.
 	CI Interval
 }
 

@@ -121,7 +121,7 @@ func swPValue(w float64, n int) float64 {
 		mu = poly([]float64{-1.5861, -0.31082, -0.083751, 0.0038915}, ln)
 		sigma = math.Exp(poly([]float64{-0.4803, -0.082676, 0.0030302}, ln))
 	}
-	return distuv.Normal{Mu: mu, Sigma: sigma}.Survival(y)
+	return normalSF((y - mu) / sigma)
 }
 
 // QQPoint is one point of a normal Q-Q plot.

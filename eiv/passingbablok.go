@@ -138,9 +138,8 @@ func PassingBablok(x, y []float64, opt *Options) (*PassingBablokResult, error) {
 		f.Slope.SE = (bu - bl) / (2 * z)
 		f.Intercept.SE = (au - al) / (2 * z)
 	} else {
+		// No interval and no SE: both stay unset (CI.Method empty).
 		f.Warnings = append(f.Warnings, &Warning{Code: "interval_unavailable", Message: "passing_bablok: too few slopes for a confidence interval at this level"})
-		f.Slope.CI = Interval{Lower: b, Upper: b, Level: conf, Method: "unavailable"}
-		f.Intercept.CI = Interval{Lower: a, Upper: a, Level: conf, Method: "unavailable"}
 	}
 	if err := f.finite(); err != nil {
 		return nil, err

@@ -76,7 +76,7 @@ type BiasShift struct {
 // CompareOLS compares ols with eiv. sx may be nil. boot, when not nil,
 // must hold the lines of (eiv, ols) as its estimators 0 and 1, fitted on the
 // same resamples; jack, when not nil, the leave-one-out lines in the same
-// order (from JackknifeLines).
+// order (from JackknifeLines), used from four points up.
 func CompareOLS(ols, eiv *Fit, x, sx []float64, at []float64, boot *BootstrapResult, jack [][]Line) *OLSComparison {
 	c := &OLSComparison{Method: eiv.Method}
 	slopeDiff := func(l []Line) float64 { return l[1].Slope - l[0].Slope }
@@ -92,7 +92,10 @@ func CompareOLS(ols, eiv *Fit, x, sx []float64, at []float64, boot *BootstrapRes
 				return e
 			}
 		}
-		if jack != nil {
+		// Leave-one-out samples of two points fit every line through both
+		// points: the paired differences all vanish, an SE of 0 that says
+		// nothing. Below four points there is no jackknife interval.
+		if len(jack) >= 4 {
 			se := jackSE(jack, stat)
 			t := tQuantile(eiv.Confidence, eiv.N-2)
 			e.SE = se

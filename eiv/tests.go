@@ -42,8 +42,7 @@ func KendallTau(x, y []float64) (TestResult, error) {
 	if xt == tot || yt == tot {
 		return TestResult{}, ErrDegenerate
 	}
-	tau := float64(s) / math.Sqrt(tot-xt) / math.Sqrt(tot-yt)
-	res := TestResult{Statistic: tau}
+	res := TestResult{Statistic: tauB(s, tot-xt, tot-yt)}
 	if xt == 0 && yt == 0 && (n <= 33 || min(dis, int64(tot)-dis) <= 1) {
 		c := min(dis, int64(tot)-dis)
 		res.PValue = math.Min(1, 2*kendallExactCDF(n, int(c)))
@@ -53,9 +52,21 @@ func KendallTau(x, y []float64) (TestResult, error) {
 	m := float64(n) * float64(n-1)
 	v := (m*(2*float64(n)+5)-x1-y1)/18 + 2*xt*yt/m + x0*y0/(9*m*float64(n-2))
 	z := float64(s) / math.Sqrt(v)
-	res.PValue = 2 * distuv.UnitNormal.Survival(math.Abs(z))
+	res.PValue = normalTwoSided(z)
 	res.Detail = "τ-b, normal approximation with tie correction, two-sided"
 	return res, nil
+}
+
+// tauB is S/√(ab) for a and b the untied pair counts in x and y. |τ| = 1
+// exactly when every pair is concordant (or discordant), |S| = a = b; the
+// quotient is then formed without a square root, so that perfectly
+// concordant data give τ = 1, not 1 − ε. Otherwise one square root of the
+// product (exact below 2⁵³) rounds once, and the result is kept in [−1, 1].
+func tauB(s int64, a, b float64) float64 {
+	if a == b {
+		return float64(s) / a
+	}
+	return math.Max(-1, math.Min(1, float64(s)/math.Sqrt(a*b)))
 }
 
 func sign(v float64) int {
@@ -154,19 +165,40 @@ func Spearman(x, y []float64) (TestResult, error) {
 	if n < 3 {
 		return TestResult{}, ErrTooFewPoints
 	}
-	m := centredMoments(ranks(x), ranks(y))
+	rx, ry := ranks(x), ranks(y)
+	m := centredMoments(rx, ry)
 	if m.sxx == 0 || m.syy == 0 {
 		return TestResult{}, ErrDegenerate
 	}
-	rho := m.sxy / math.Sqrt(m.sxx*m.syy)
+	// ρ = ±1 exactly when the rank vectors coincide (or mirror each other):
+	// an affine relation between two vectors of mid-ranks forces the same
+	// order and tie groups. Otherwise the quotient is kept in [−1, 1].
+	rho := math.Max(-1, math.Min(1, m.sxy/math.Sqrt(m.sxx*m.syy)))
+	switch {
+	case slices.Equal(rx, ry):
+		rho = 1
+	case mirrored(rx, ry):
+		rho = -1
+	}
 	res := TestResult{Statistic: rho, Detail: "two-sided, t approximation on n−2 df"}
 	if math.Abs(rho) >= 1 {
 		res.PValue = 0
 		return res, nil
 	}
 	t := rho * math.Sqrt(float64(n-2)/((1-rho)*(1+rho)))
-	res.PValue = 2 * distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n - 2)}.Survival(math.Abs(t))
+	res.PValue = tTwoSided(t, float64(n-2))
 	return res, nil
+}
+
+// mirrored says whether the ranks rx and ry add up to n + 1 everywhere.
+func mirrored(rx, ry []float64) bool {
+	n1 := float64(len(rx) + 1)
+	for i := range rx {
+		if rx[i]+ry[i] != n1 {
+			return false
+		}
+	}
+	return true
 }
 
 // DurbinWatson returns d = Σ(e_t − e_{t−1})²/Σe_t² of residuals e in run
@@ -235,7 +267,7 @@ func DurbinWatson(e, level []float64) (TestResult, error) {
 	nu := float64(n - 2)
 	mean := trMA / nu
 	variance := 2 * (nu*trMA2 - trMA*trMA) / (nu * nu * (nu + 2))
-	p := distuv.Normal{Mu: mean, Sigma: math.Sqrt(variance)}.CDF(d)
+	p := normalCDF((d - mean) / math.Sqrt(variance))
 	return TestResult{Statistic: d, PValue: p, Detail: fmt.Sprintf(
 		"one-sided for positive serial correlation; normal approximation, E d = %.4g, SD %.3g", mean, math.Sqrt(variance))}, nil
 }
@@ -297,7 +329,7 @@ func RunsTest(e []float64) (TestResult, error) {
 		return TestResult{}, ErrDegenerate
 	}
 	z := (float64(runs) - mu) / math.Sqrt(v)
-	return TestResult{Statistic: z, PValue: 2 * distuv.UnitNormal.Survival(math.Abs(z)),
+	return TestResult{Statistic: z, PValue: normalTwoSided(z),
 		Detail: fmt.Sprintf("%d runs, %.1f expected; z, two-sided", runs, mu)}, nil
 }
 
@@ -322,7 +354,7 @@ func BreuschPagan(e, level []float64) (TestResult, error) {
 	}
 	r2 := m.sxy * m.sxy / (m.sxx * m.syy)
 	lm := float64(n) * r2
-	return TestResult{Statistic: lm, PValue: distuv.ChiSquared{K: 1}.Survival(lm),
+	return TestResult{Statistic: lm, PValue: chiSquaredSF(lm, 1),
 		Detail: "Koenker's studentized LM = n·R² of e² on level, χ²(1)"}, nil
 }
 
@@ -427,8 +459,4 @@ func KolmogorovSurvival(t float64) float64 {
 		}
 	}
 	return math.Max(0, math.Min(1, 2*s))
-}
-
-func fSurvival(f, d1, d2 float64) float64 {
-	return distuv.F{D1: d1, D2: d2}.Survival(f)
 }

@@ -164,7 +164,21 @@ func g(v float64) string {
 	return strconv.FormatFloat(v, 'g', 5, 64)
 }
 
-func ciText(c wire.CI) string { return fmt.Sprintf("%s to %s", g(c.Lower), g(c.Upper)) }
+func ciText(c wire.CI) string {
+	if c.IsZero() {
+		return "-" // no interval
+	}
+	return fmt.Sprintf("%s to %s", g(c.Lower), g(c.Upper))
+}
+
+// pctText prints a bias in percent for a report, "-" at level 0 where
+// it has none.
+func pctText(iv *wire.Interval) string {
+	if iv == nil {
+		return "-"
+	}
+	return g(iv.Estimate)
+}
 
 func p2(v float64) string {
 	if v < 0.001 {
@@ -397,7 +411,7 @@ func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, versio
 				if v == "" {
 					v = "-"
 				}
-				t.Rows = append(t.Rows, Row{Class: cls, Cells: []string{g(l.Level), name, g(f.Bias.Estimate), ciText(f.Bias.CI), g(f.BiasPercent.Estimate), allow, v}})
+				t.Rows = append(t.Rows, Row{Class: cls, Cells: []string{g(l.Level), name, g(f.Bias.Estimate), ciText(f.Bias.CI), pctText(f.BiasPercent), allow, v}})
 			})
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})

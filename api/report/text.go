@@ -29,9 +29,9 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 		if f.MSWD != nil {
 			notes = append(notes, fmt.Sprintf("MSWD = %.4g, p = %.3g", *f.MSWD, *f.PValue))
 		}
-		fmt.Fprintf(tw, "%s\t%.6g\t%.4g\t[%.6g, %.6g]\t%.6g\t%.4g\t[%.6g, %.6g]\t%s\n", name,
-			f.Slope.Estimate, f.Slope.SE, f.Slope.CI.Lower, f.Slope.CI.Upper,
-			f.Intercept.Estimate, f.Intercept.SE, f.Intercept.CI.Lower, f.Intercept.CI.Upper,
+		fmt.Fprintf(tw, "%s\t%.6g\t%s\t%s\t%.6g\t%s\t%s\t%s\n", name,
+			f.Slope.Estimate, textSE(f.Slope.SE), textCI(f.Slope.CI, "%.6g"),
+			f.Intercept.Estimate, textSE(f.Intercept.SE), textCI(f.Intercept.CI, "%.6g"),
 			strings.Join(notes, "; "))
 		if j := f.Jackknife; j != nil {
 			fmt.Fprintf(tw, "  jackknife\t\t%.4g\t[%.6g, %.6g]\t\t%.4g\t[%.6g, %.6g]\t\n",
@@ -47,8 +47,8 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 				}
 				return "refused"
 			}
-			fmt.Fprintf(tw, "  bootstrap BCa\t\t%.4g\t%s\t\t%.4g\t%s\tB = %d, seed %d, %s\n",
-				bs.Slope.SE, fmtB(bs.Slope), bs.Intercept.SE, fmtB(bs.Intercept), bs.Resamples, bs.Seed, bs.Scheme)
+			fmt.Fprintf(tw, "  bootstrap BCa\t\t%s\t%s\t\t%s\t%s\tB = %d, seed %d, %s\n",
+				textSE(bs.Slope.SE), fmtB(bs.Slope), textSE(bs.Intercept.SE), fmtB(bs.Intercept), bs.Resamples, bs.Seed, bs.Scheme)
 		}
 	}
 	r.Fits.Each(row)
@@ -64,8 +64,8 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 		tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 		fmt.Fprintln(tw, "  x\tfitted y\tCI\tbias y − x\tCI")
 		for _, a := range f.At {
-			fmt.Fprintf(tw, "  %g\t%.6g\t[%.6g, %.6g]\t%.4g\t[%.4g, %.4g]\n", a.X, a.Y.Estimate, a.Y.CI.Lower, a.Y.CI.Upper,
-				a.Bias.Estimate, a.Bias.CI.Lower, a.Bias.CI.Upper)
+			fmt.Fprintf(tw, "  %g\t%.6g\t%s\t%.4g\t%s\n", a.X, a.Y.Estimate, textCI(a.Y.CI, "%.6g"),
+				a.Bias.Estimate, textCI(a.Bias.CI, "%.4g"))
 		}
 		ferr = tw.Flush()
 	})
@@ -92,6 +92,23 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 	return err
 }
 
+// textSE prints an optional standard error, "-" where there is none.
+func textSE(se *float64) string {
+	if se == nil {
+		return "-"
+	}
+	return fmt.Sprintf("%.4g", *se)
+}
+
+// textCI prints an interval as [lower, upper] in the format of one
+// number, "-" where there is none.
+func textCI(c wire.CI, num string) string {
+	if c.IsZero() {
+		return "-"
+	}
+	return fmt.Sprintf("["+num+", "+num+"]", c.Lower, c.Upper)
+}
+
 // WriteCompareText writes a method-comparison study for a terminal.
 func WriteCompareText(w io.Writer, r *wire.CompareResponse) error {
 	var b strings.Builder
@@ -116,8 +133,8 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 	tw := tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "fit\tslope\tCI\tintercept\tCI")
 	c.Fits.Each(func(name string, f *wire.MethodFit) {
-		fmt.Fprintf(tw, "%s\t%.5g\t[%.5g, %.5g]\t%.5g\t[%.5g, %.5g]\n", name, f.Slope.Estimate, f.Slope.CI.Lower, f.Slope.CI.Upper,
-			f.Intercept.Estimate, f.Intercept.CI.Lower, f.Intercept.CI.Upper)
+		fmt.Fprintf(tw, "%s\t%.5g\t%s\t%.5g\t%s\n", name, f.Slope.Estimate, textCI(f.Slope.CI, "%.5g"),
+			f.Intercept.Estimate, textCI(f.Intercept.CI, "%.5g"))
 	})
 	_ = tw.Flush()
 	a := c.Agreement
@@ -140,8 +157,12 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 				if v == "" {
 					v = "-"
 				}
-				fmt.Fprintf(tw, "  %g\t%s\t%.4g\t[%.4g, %.4g]\t%.3g\t%s\t%s\n", l.Level, name, f.Bias.Estimate, f.Bias.CI.Lower, f.Bias.CI.Upper,
-					f.BiasPercent.Estimate, allow, v)
+				pct := "-"
+				if f.BiasPercent != nil {
+					pct = fmt.Sprintf("%.3g", f.BiasPercent.Estimate)
+				}
+				fmt.Fprintf(tw, "  %g\t%s\t%.4g\t%s\t%s\t%s\t%s\n", l.Level, name, f.Bias.Estimate, textCI(f.Bias.CI, "%.4g"),
+					pct, allow, v)
 			})
 		}
 		_ = tw.Flush()

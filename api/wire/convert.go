@@ -44,7 +44,12 @@ func comparisonOut(c *study.Comparison) *Comparison {
 			lo.Allowable = &AllowableOut{Absolute: a.Absolute, Percent: a.Percent, Limit: l.Limit}
 		}
 		for _, f := range l.Fits {
-			lo.Fits[f.Method.Name] = LevelFit{Bias: atOut(f.At).Bias, BiasPercent: interval(f.BiasPercent), Verdict: f.Verdict}
+			lf := LevelFit{Bias: atOut(f.At).Bias, Verdict: f.Verdict}
+			if l.Level != 0 {
+				bp := interval(f.BiasPercent)
+				lf.BiasPercent = &bp
+			}
+			lo.Fits[f.Method.Name] = lf
 		}
 		out.DecisionLevels = append(out.DecisionLevels, lo)
 	}
@@ -65,9 +70,10 @@ func AgreementOutOf(a *study.Agreement) *AgreementOut {
 		Multiplier:        ag.Multiplier,
 		LimitsOfAgreement: LimitsOut{Lower: interval(ag.Lower), Upper: interval(ag.Upper)},
 	}
+	out.ProportionalBias.Reading = a.ProportionalReading
 	if ag.Proportional != nil {
-		out.ProportionalBias = ProportionalOut{Slope: param(ag.Proportional.Slope), Intercept: param(ag.Proportional.Intercept),
-			PValue: ag.ProportionalP, Reading: a.ProportionalReading}
+		sl, ic := param(ag.Proportional.Slope), param(ag.Proportional.Intercept)
+		out.ProportionalBias = ProportionalOut{Slope: &sl, Intercept: &ic, PValue: ptr(ag.ProportionalP), Reading: a.ProportionalReading}
 	}
 	if p := a.Percent; p != nil {
 		out.Percent = &PercentOut{MeanDifference: interval(p.MeanDifference), SDDifference: p.SDDifference,
@@ -112,12 +118,14 @@ func fitsOut(ms []*study.MethodResult) Fits {
 func methodFit(m *study.MethodResult) *MethodFit {
 	f := m.Fit
 	out := &MethodFit{
-		Slope:             param(f.Slope),
-		Intercept:         param(f.Intercept),
-		CovSlopeIntercept: f.CovSlopeIntercept,
-		SEBasis:           m.Method.SEBasis,
-		DOF:               f.DOF,
-		Converged:         f.Converged,
+		Slope:     param(f.Slope),
+		Intercept: param(f.Intercept),
+		SEBasis:   m.Method.SEBasis,
+		DOF:       f.DOF,
+		Converged: f.Converged,
+	}
+	if f.Method != eiv.MethodPassingBablok { // a rank method: no covariance
+		out.CovSlopeIntercept = ptr(f.CovSlopeIntercept)
 	}
 	switch f.Method {
 	case eiv.MethodOLS:
@@ -181,8 +189,12 @@ func testOut(t *eiv.TestResult) *TestOut {
 func bootstrapOut(br *eiv.BootstrapResult, seed uint64) *BootstrapOut {
 	out := &BootstrapOut{Resamples: br.Resamples, Failed: br.Failed, Seed: seed, Scheme: string(br.Scheme)}
 	one := func(stat eiv.Statistic) BootParamOut {
-		s, _ := br.Summarize(stat) // a refused interval stays nil; the warning says why
-		return BootParamOut{SE: s.SE, Percentile: bounds(s.Percentile), BCa: bounds(s.BCa)}
+		s, err := br.Summarize(stat) // a refused interval stays nil; the warning says why
+		out := BootParamOut{Percentile: bounds(s.Percentile), BCa: bounds(s.BCa)}
+		if err == nil || s.SE > 0 { // fewer than two fitted resamples leave no SE
+			out.SE = ptr(s.SE)
+		}
+		return out
 	}
 	out.Slope, out.Intercept = one(eiv.SlopeOf(0)), one(eiv.InterceptOf(0))
 	return out
@@ -217,14 +229,30 @@ func warningsOut(ws []study.Warning) []Warning {
 	return out
 }
 
-func param(e eiv.Estimate) Param { return Param{Estimate: e.Value, SE: e.SE, CI: ci(e.CI)} }
-
-func ci(i eiv.Interval) CI {
-	return CI{Lower: i.Lower, Upper: i.Upper, Level: i.Level, Method: i.Method}
+// param and interval carry an estimate to the answer. An eiv estimate
+// without an interval method has no uncertainty (its SE and CI are unset
+// zeros): the answer then leaves se and ci out.
+func param(e eiv.Estimate) Param {
+	p := Param{Estimate: e.Value}
+	p.SE, p.CI = seCI(e)
+	return p
 }
 
 func interval(e eiv.Estimate) Interval {
-	return Interval{Estimate: e.Value, SE: e.SE, CI: ci(e.CI)}
+	iv := Interval{Estimate: e.Value}
+	iv.SE, iv.CI = seCI(e)
+	return iv
+}
+
+func seCI(e eiv.Estimate) (*float64, CI) {
+	if e.CI.Method == "" {
+		return nil, CI{}
+	}
+	return ptr(e.SE), ci(e.CI)
+}
+
+func ci(i eiv.Interval) CI {
+	return CI{Lower: i.Lower, Upper: i.Upper, Level: i.Level, Method: i.Method}
 }
 
 func bounds(i *eiv.Interval) *Bounds {

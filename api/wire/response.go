@@ -57,9 +57,11 @@ func (fs *Fits) list() []struct {
 // MethodFit is one estimator's line. Method-specific fields are omitted
 // where they do not apply.
 type MethodFit struct {
-	Slope             Param   `json:"slope"`
-	Intercept         Param   `json:"intercept"`
-	CovSlopeIntercept float64 `json:"cov_slope_intercept"`
+	Slope     Param `json:"slope"`
+	Intercept Param `json:"intercept"`
+	// CovSlopeIntercept is cov(slope, intercept) on the basis of se; absent
+	// for passing_bablok, which has none.
+	CovSlopeIntercept *float64 `json:"cov_slope_intercept,omitempty"`
 	// SEBasis says how se was computed.
 	SEBasis string `json:"se_basis"`
 
@@ -105,21 +107,27 @@ type TestOut struct {
 	Detail    string  `json:"detail,omitempty"`
 }
 
-// Param is a fitted parameter.
+// Param is a fitted parameter. SE and CI are absent where the method
+// gives none (Passing–Bablok with too few slopes for its rank interval):
+// never a zero in place of a missing value.
 type Param struct {
 	Estimate float64  `json:"estimate"`
-	SE       float64  `json:"se"`
+	SE       *float64 `json:"se,omitempty"`
 	SEScaled *float64 `json:"se_scaled,omitempty"`
-	CI       CI       `json:"ci"`
+	CI       CI       `json:"ci,omitzero"`
 }
 
-// CI is a confidence interval.
+// CI is a confidence interval. The zero CI (no method) stands for no
+// interval and is left out of the JSON.
 type CI struct {
 	Lower  float64 `json:"lower"`
 	Upper  float64 `json:"upper"`
 	Level  float64 `json:"level"`
 	Method string  `json:"method"`
 }
+
+// IsZero reports a missing interval, for the JSON tag omitzero.
+func (c CI) IsZero() bool { return c.Method == "" }
 
 // JackknifeOut is the leave-one-out uncertainty of a fit.
 type JackknifeOut struct {
@@ -144,11 +152,12 @@ type BootstrapOut struct {
 	Intercept BootParamOut `json:"intercept"`
 }
 
-// BootParamOut holds the bootstrap SE and intervals of one parameter.
+// BootParamOut holds the bootstrap SE and intervals of one parameter; SE
+// is absent when fewer than two resamples could be fitted.
 type BootParamOut struct {
-	SE         float64 `json:"se"`
-	Percentile *Bounds `json:"percentile,omitempty"`
-	BCa        *Bounds `json:"bca,omitempty"`
+	SE         *float64 `json:"se,omitempty"`
+	Percentile *Bounds  `json:"percentile,omitempty"`
+	BCa        *Bounds  `json:"bca,omitempty"`
 }
 
 // Bounds is an interval without its metadata (the level is the fit's).
@@ -165,12 +174,14 @@ type AtOut struct {
 }
 
 // Interval is an estimate with its confidence interval and, when the
-// bootstrap ran, the bootstrap's.
+// bootstrap ran, the bootstrap's. SE and CI are absent where there is no
+// uncertainty to give (the OLS comparison without resamples for
+// Passing–Bablok; Passing–Bablok predictions above its jackknife limit).
 type Interval struct {
-	Estimate  float64 `json:"estimate"`
-	SE        float64 `json:"se"`
-	CI        CI      `json:"ci"`
-	Bootstrap *Bounds `json:"bootstrap,omitempty"`
+	Estimate  float64  `json:"estimate"`
+	SE        *float64 `json:"se,omitempty"`
+	CI        CI       `json:"ci,omitzero"`
+	Bootstrap *Bounds  `json:"bootstrap,omitempty"`
 }
 
 // OLSBias compares OLS with one errors-in-variables fit.
@@ -278,12 +289,13 @@ type PercentOut struct {
 	LimitsOfAgreement LimitsOut `json:"limits_of_agreement"`
 }
 
-// ProportionalOut is the regression of differences on means.
+// ProportionalOut is the regression of differences on means; the line and
+// its p-value are absent when the means do not vary (the reading says so).
 type ProportionalOut struct {
-	Slope     Param   `json:"slope"`
-	Intercept Param   `json:"intercept"`
-	PValue    float64 `json:"p_value"`
-	Reading   string  `json:"reading"`
+	Slope     *Param   `json:"slope,omitempty"`
+	Intercept *Param   `json:"intercept,omitempty"`
+	PValue    *float64 `json:"p_value,omitempty"`
+	Reading   string   `json:"reading"`
 }
 
 // LevelOut is the bias at one decision level under each fit.
@@ -303,8 +315,9 @@ type AllowableOut struct {
 
 // LevelFit is one fit's bias at a level with its verdict.
 type LevelFit struct {
-	Bias        Interval `json:"bias"`
-	BiasPercent Interval `json:"bias_percent"`
+	Bias Interval `json:"bias"`
+	// BiasPercent is the bias in percent of the level (absent at level 0).
+	BiasPercent *Interval `json:"bias_percent,omitempty"`
 	// Verdict is "within" (the whole interval inside ±limit), "exceeds"
 	// (the whole interval outside), or "inconclusive" (it straddles the
 	// limit); empty when no allowable bias applies.

@@ -20,6 +20,7 @@ import (
 	"time"
 
 	"eivfit/api"
+	"eivfit/api/answertest"
 	"eivfit/api/wire"
 	"eivfit/eiv/study"
 )
@@ -28,6 +29,7 @@ func runCmd(t *testing.T, stdin string, args ...string) (stdout, stderr string, 
 	t.Helper()
 	var o, e bytes.Buffer
 	err = run(context.Background(), args, strings.NewReader(stdin), &o, &e)
+	answertest.Check(t, o.Bytes()) // every JSON answer the CLI prints
 	return o.String(), e.String(), err
 }
 
@@ -55,8 +57,8 @@ func TestFitPearsonYorkCLI(t *testing.T) {
 	}{
 		{"slope", y.Slope.Estimate, "-0.480533407"},
 		{"intercept", y.Intercept.Estimate, "5.47991022"},
-		{"se(slope)", y.Slope.SE, "0.0579850"},
-		{"se(intercept)", y.Intercept.SE, "0.2949707"},
+		{"se(slope)", *y.Slope.SE, "0.0579850"},
+		{"se(intercept)", *y.Intercept.SE, "0.2949707"},
 		{"mswd", *y.MSWD, "1.4832941"},
 	} {
 		want, _ := strconv.ParseFloat(c.published, 64)

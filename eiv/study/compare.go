@@ -142,7 +142,8 @@ type LevelFit struct {
 	Method *Method
 	// At is the fit's prediction at the level (its Bias is y − x).
 	At *Prediction
-	// BiasPercent is the bias in percent of the level (zero at level 0).
+	// BiasPercent is the bias in percent of the level (zero at level 0;
+	// without an interval where the bias has none).
 	BiasPercent eiv.Estimate
 	// Verdict is "within" (the whole interval inside ±limit), "exceeds"
 	// (the whole interval outside), or "inconclusive" (it straddles the
@@ -513,7 +514,7 @@ func agreement(x, y []float64, conf float64, positive bool) (*Agreement, error) 
 	if err != nil {
 		return nil, err
 	}
-	out := &Agreement{Agreement: ag}
+	out := &Agreement{Agreement: ag, ProportionalReading: "The differences could not be regressed on the level (the means do not vary)."}
 	if ag.Proportional != nil {
 		if ag.ProportionalP < 0.05 {
 			out.ProportionalReading = fmt.Sprintf("The differences change with the level (slope %.3g, p = %.2g): a proportional bias.", ag.Proportional.Slope.Value, ag.ProportionalP)
@@ -551,10 +552,12 @@ func judge(o *CompareOptions, fits []*MethodResult) []LevelResult {
 			lf := LevelFit{Method: f.Method, At: at}
 			if l.Level != 0 {
 				k := 100 / l.Level
-				lf.BiasPercent = eiv.Estimate{Value: b.Value * k, SE: b.SE * math.Abs(k),
-					CI: eiv.Interval{Lower: math.Min(b.CI.Lower*k, b.CI.Upper*k), Upper: math.Max(b.CI.Lower*k, b.CI.Upper*k), Level: b.CI.Level, Method: b.CI.Method}}
+				lf.BiasPercent = eiv.Estimate{Value: b.Value * k, SE: b.SE * math.Abs(k)}
+				if b.CI.Method != "" {
+					lf.BiasPercent.CI = eiv.Interval{Lower: math.Min(b.CI.Lower*k, b.CI.Upper*k), Upper: math.Max(b.CI.Lower*k, b.CI.Upper*k), Level: b.CI.Level, Method: b.CI.Method}
+				}
 			}
-			if lo.Allowable != nil && at.Available {
+			if lo.Allowable != nil && b.CI.Method != "" { // no interval, no verdict
 				lim := lo.Limit
 				switch {
 				case b.CI.Lower >= -lim && b.CI.Upper <= lim:

@@ -172,7 +172,8 @@ func (b *Bootstrap) Slopes() []float64 { return b.Result.Replicates(eiv.SlopeOf(
 type Prediction struct {
 	eiv.Prediction
 	// Available is false when the method gives no interval here (Passing–
-	// Bablok above its jackknife limit): the intervals then have zero width.
+	// Bablok above its jackknife limit): the estimates then have no SE and
+	// no interval (an empty CI.Method).
 	Available bool
 	// Boot is the bootstrap interval of the fitted y (BCa, else
 	// percentile), nil without a bootstrap; the bias's is Boot − X.
@@ -186,9 +187,9 @@ func (m *MethodResult) Predict(x0 float64) (eiv.Prediction, bool) {
 	}
 	conf := m.Fit.Confidence
 	if m.pbLOO == nil {
+		// No uncertainty to give: the estimates alone, no SE, no interval.
 		y := m.pbLine.Intercept + m.pbLine.Slope*x0
-		return eiv.Prediction{X: x0, Y: eiv.Estimate{Value: y, CI: eiv.Interval{Lower: y, Upper: y, Level: conf}},
-			Bias: eiv.Estimate{Value: y - x0, CI: eiv.Interval{Lower: y - x0, Upper: y - x0, Level: conf}}}, false
+		return eiv.Prediction{X: x0, Y: eiv.Estimate{Value: y}, Bias: eiv.Estimate{Value: y - x0}}, false
 	}
 	return eiv.JackknifeAt(m.pbLine, m.pbLOO, x0, conf), true
 }
@@ -396,9 +397,6 @@ func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float6
 		}
 		for _, x0 := range at {
 			p, ok := f.Predict(x0)
-			if !ok {
-				p.Y.CI.Method, p.Bias.CI.Method = "unavailable", "unavailable"
-			}
 			f.At = append(f.At, Prediction{Prediction: p, Available: ok})
 		}
 	}
@@ -477,16 +475,16 @@ func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float6
 	return olsBias, nil
 }
 
-// pbJackknifeMaxN bounds the Passing–Bablok jackknife used for its
+// PassingBablokJackknifeMaxN bounds the Passing–Bablok jackknife used for its
 // predictions: n refits of O(n² log n) each.
-const pbJackknifeMaxN = 200
+const PassingBablokJackknifeMaxN = 200
 
 // pbBootstrapMaxN bounds the samples for which Passing–Bablok joins the bootstrap.
 const pbBootstrapMaxN = 300
 
 // passingBablok runs Passing–Bablok with its checks. Its predictions and
 // bias intervals come from the jackknife (the method has no analytic
-// covariance); above pbJackknifeMaxN points they are given without interval.
+// covariance); above PassingBablokJackknifeMaxN points they are given without interval.
 func passingBablok(s eiv.Sample, p fitParams) (*MethodResult, error) {
 	pb, err := eiv.PassingBablok(s.X, s.Y, &eiv.Options{Confidence: p.conf})
 	if err != nil {
@@ -494,7 +492,7 @@ func passingBablok(s eiv.Sample, p fitParams) (*MethodResult, error) {
 	}
 	r := &MethodResult{Fit: pb.Fit, PassingBablok: pb, est: eiv.PassingBablokEstimator{},
 		pbLine: eiv.Line{Intercept: pb.Fit.Intercept.Value, Slope: pb.Fit.Slope.Value}}
-	if s.Len() <= pbJackknifeMaxN {
+	if s.Len() <= PassingBablokJackknifeMaxN {
 		if jl, err := eiv.JackknifeLines(s, []eiv.Estimator{eiv.PassingBablokEstimator{}}); err == nil {
 			for _, l := range jl {
 				r.pbLOO = append(r.pbLOO, l[0])
