@@ -95,12 +95,8 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Setting
 
 // handleBatch serves POST /v1/batch. The batch holds one compute slot.
 func (s *Server) handleBatch(c *gin.Context) {
-	if s.mediaType(c, false) == "" {
-		return
-	}
-	body, release, p := s.body(c)
-	if p != nil {
-		s.problem(c, p)
+	kind, body, release := s.open(c, false)
+	if kind == "" {
 		return
 	}
 	defer release()

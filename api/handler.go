@@ -75,13 +75,8 @@ func analyse[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], kin
 // within its limits and the memory budget, analyse, then JSON or (for
 // Accept: text/html) the HTML report.
 func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page func(*answer[Req, Res], string) (*report.Page, error)) {
-	kind := s.mediaType(c, true)
+	kind, body, release := s.open(c, true)
 	if kind == "" {
-		return
-	}
-	body, release, p := s.body(c)
-	if p != nil {
-		s.problem(c, p)
 		return
 	}
 	defer release()
@@ -105,6 +100,22 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		return
 	}
 	c.Data(http.StatusOK, "application/json", a.json)
+}
+
+// open is every body-taking handler's opening: the media type ("json",
+// "csv"), then the body within its limits and the memory budget. kind is
+// "" after a problem has been written; otherwise the caller must call
+// release when done with the request.
+func (s *Server) open(c *gin.Context, allowCSV bool) (kind string, body io.Reader, release func()) {
+	if kind = s.mediaType(c, allowCSV); kind == "" {
+		return "", nil, nil
+	}
+	body, release, p := s.body(c)
+	if p != nil {
+		s.problem(c, p)
+		return "", nil, nil
+	}
+	return kind, body, release
 }
 
 // problemFor maps any error of a request to its problem: study errors by

@@ -22,13 +22,8 @@ func (s *Server) handlePlot(c *gin.Context) {
 		s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("no plot %q; plots: %s", truncate(kind), strings.Join(report.PlotKinds, ", "))))
 		return
 	}
-	mt := s.mediaType(c, true)
+	mt, body, release := s.open(c, true)
 	if mt == "" {
-		return
-	}
-	body, release, p := s.body(c)
-	if p != nil {
-		s.problem(c, p)
 		return
 	}
 	defer release()

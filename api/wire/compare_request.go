@@ -420,7 +420,7 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 	for _, v := range levels {
 		req.DecisionLevels = append(req.DecisionLevels, DecisionLevel{Level: v})
 	}
-	req.Exclude = splitList(q.Get("exclude"))
+	req.Exclude = SplitList(q.Get("exclude"))
 	fq := url.Values{}
 	for _, k := range []string{"resamples", "seed", "scheme"} {
 		if v := q.Get(k); v != "" {

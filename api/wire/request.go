@@ -181,7 +181,7 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 	num := func(name string) (*float64, error) { return queryFloat(q, name) }
 	var err error
 	if s := q.Get("methods"); s != "" {
-		req.Methods = splitList(s)
+		req.Methods = SplitList(s)
 	}
 	if req.Lambda, err = num("lambda"); err != nil {
 		return nil, err
@@ -228,7 +228,7 @@ func queryFloat(q url.Values, name string) (*float64, error) {
 // queryFloats reads an optional comma list of finite numbers from the query.
 func queryFloats(q url.Values, name string) ([]float64, error) {
 	var out []float64
-	for _, f := range splitList(q.Get(name)) {
+	for _, f := range SplitList(q.Get(name)) {
 		v, err := finiteQuery(name, f)
 		if err != nil {
 			return nil, err
@@ -246,7 +246,8 @@ func finiteQuery(name, s string) (float64, error) {
 	return v, nil
 }
 
-func splitList(s string) []string {
+// SplitList splits a comma list, dropping blanks.
+func SplitList(s string) []string {
 	var out []string
 	for _, f := range strings.Split(s, ",") {
 		if f = strings.TrimSpace(f); f != "" {

@@ -52,7 +52,7 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 		return err
 	}
 	opts := &wire.CompareRequest{XName: *xName, YName: *yName, Unit: *unit, ErrorModel: *errorModel,
-		Confidence: confidence, Exclude: splitList(*exclude)}
+		Confidence: confidence, Exclude: wire.SplitList(*exclude)}
 	if opts.Lambda, err = flagFloat("lambda", *lambda); err != nil {
 		return usageError(stderr, "compare", err)
 	}
@@ -67,7 +67,7 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if abs != nil || pct != nil {
 		opts.AllowableBias = &wire.Allowable{Absolute: abs, Percent: pct}
 	}
-	for _, f := range splitList(*levels) {
+	for _, f := range wire.SplitList(*levels) {
 		v, err := flagFloat("decision-levels", f)
 		if err != nil {
 			return usageError(stderr, "compare", err)

@@ -10,7 +10,6 @@ import (
 	"math"
 	"os"
 	"strconv"
-	"strings"
 
 	"eivfit/api/report"
 	"eivfit/api/wire"
@@ -51,11 +50,11 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	if done {
 		return err
 	}
-	req := &wire.FitRequest{Methods: splitList(*methods), Confidence: confidence, At: nil}
+	req := &wire.FitRequest{Methods: wire.SplitList(*methods), Confidence: confidence, At: nil}
 	if req.Lambda, err = flagFloat("lambda", *lambda); err != nil {
 		return usageError(stderr, "fit", err)
 	}
-	for _, f := range splitList(*at) {
+	for _, f := range wire.SplitList(*at) {
 		v, err := flagFloat("at", f)
 		if err != nil {
 			return usageError(stderr, "fit", err)
@@ -111,16 +110,6 @@ func bootstrapFlags(resamples int, seed, scheme string) (*wire.BootstrapOptions,
 		b.Seed = &v
 	}
 	return b, nil
-}
-
-func splitList(s string) []string {
-	var out []string
-	for _, f := range strings.Split(s, ",") {
-		if f = strings.TrimSpace(f); f != "" {
-			out = append(out, f)
-		}
-	}
-	return out
 }
 
 // usageError reports a flag's bad value, exit status 2.
