@@ -157,19 +157,22 @@ func NewServer(cfg Config) (*Server, error) {
 	e.NoMethod(func(c *gin.Context) {
 		s.problem(c, newProblem(kindMethod, fmt.Sprintf("%s is not allowed here", c.Request.Method)))
 	})
-	v1 := e.Group("/v1", s.authorize)
-	v1.POST("/fit", s.handleFit)
-	v1.POST("/batch", s.handleBatch)
-	v1.POST("/method-comparison", s.handleCompare)
-	v1.POST("/plots/:kind", s.handlePlot)
-	e.GET("/", s.handleIndex)
-	e.POST("/report", s.handleFormReport)
-	e.GET("/healthz", s.handleHealthz)
-	e.GET("/readyz", s.handleReadyz)
-	e.GET("/openapi.yaml", handleOpenAPI)
-	e.GET("/demo/:file", s.handleDemo)
+	const jsonType, htmlType = "application/json", "text/html"
+	v1 := e.Group("/v1", s.authorize, s.plainBody(s.problem))
+	v1.POST("/fit", s.negotiated(jsonType, htmlType), s.handleFit)
+	v1.POST("/batch", s.negotiated(jsonType), s.handleBatch)
+	v1.POST("/method-comparison", s.negotiated(jsonType, htmlType), s.handleCompare)
+	v1.POST("/plots/:kind", s.negotiated("image/svg+xml"), s.handlePlot)
+	e.POST("/report", s.negotiated(htmlType), s.plainBody(s.formProblemOf), s.handleFormReport)
+	get(e, "/", s.negotiated(htmlType), s.handleIndex)
+	get(e, "/healthz", s.negotiated(jsonType), s.handleHealthz)
+	get(e, "/readyz", s.negotiated(jsonType), s.handleReadyz)
+	get(e, "/openapi.yaml", s.negotiated("application/yaml"), handleOpenAPI)
+	get(e, "/demo/:file", s.negotiated("text/csv"), s.handleDemo)
 	if cfg.MetricsAddr == "" {
-		e.GET("/metrics", gin.WrapH(s.MetricsHandler()))
+		// On the main listener, /metrics needs a key whenever /v1 does;
+		// a separate metrics listener (MetricsAddr) serves it open.
+		get(e, "/metrics", s.authorize, gin.WrapH(s.MetricsHandler()))
 	}
 	s.engine = e
 	return s, nil
