@@ -113,9 +113,16 @@ func unfinished(i int, raw json.RawMessage) BatchResult {
 	if json.Unmarshal(raw, &named) == nil && named.Name != "" {
 		res.Name = named.Name
 	}
-	p := newProblem(kindDeadline, "the batch ran past its deadline before this dataset was fitted; send it again, or in a smaller batch")
+	p := batchDeadline()
 	res.Problem, res.Status = prefixed(p, fmt.Sprintf("/datasets/%d", i)), p.Status
 	return res
+}
+
+// batchDeadline is the problem of a dataset left unfitted at the deadline;
+// its one error points at the dataset (once prefixed).
+func batchDeadline() *Problem {
+	const detail = "the batch ran past its deadline before this dataset was fitted; send it again, or in a smaller batch"
+	return newProblem(kindDeadline, detail, FieldError{Detail: detail})
 }
 
 func runEntry(ctx context.Context, i int, raw json.RawMessage, set Settings) BatchResult {
@@ -140,7 +147,7 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set Settings) Bat
 	fit, err := Fit(ctx, &e.FitRequest, set)
 	if err != nil {
 		if ctx.Err() != nil {
-			return fail(newProblem(kindDeadline, "the batch ran past its deadline before this dataset was fitted"))
+			return fail(batchDeadline())
 		}
 		return fail(err)
 	}
