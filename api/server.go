@@ -28,8 +28,9 @@ import (
 // its documented default (DefaultConfig).
 type Config struct {
 	Addr string // listen address; default 127.0.0.1:8080
-	// MetricsAddr, when set, serves /metrics on a separate listener instead
-	// of the main one.
+	// MetricsAddr, when set, serves /metrics on a separate listener,
+	// without a key, instead of the main one (where it needs a key when
+	// APIKeys are set).
 	MetricsAddr string
 	// MaxBodyBytes bounds a request body; default 64 MiB.
 	MaxBodyBytes int64
@@ -55,7 +56,8 @@ type Config struct {
 	// ShutdownTimeout bounds the drain on SIGTERM; default 90 s.
 	ShutdownTimeout time.Duration
 	// APIKeys, when not empty, are required as "Authorization: Bearer KEY"
-	// on /v1/*; each entry is a key or its SHA-256 in hex.
+	// on /v1/* and on /metrics of the main listener; each entry is a key or
+	// its SHA-256 in hex.
 	APIKeys []string
 	// Logger receives one line per request (never request data); default
 	// JSON on stderr.
