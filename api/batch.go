@@ -51,8 +51,11 @@ func prefixed(p *Problem, prefix string) *Problem {
 	return &q
 }
 
-// RunBatch decodes and fits every dataset in parallel (up to GOMAXPROCS at
-// once, each bootstrap on one core), stopping early only when ctx ends.
+// RunBatch decodes and fits every dataset, set.Workers of them at once
+// (zero means GOMAXPROCS), each fit and its bootstrap on one core. When ctx
+// ends, the datasets already fitted keep their results and every other one
+// gets a deadline-exceeded problem: a batch at its deadline loses nothing
+// it finished.
 func RunBatch(ctx context.Context, req *BatchRequest, set Settings, maxBatch int) (*BatchResponse, error) {
 	if len(req.Datasets) == 0 {
 		return nil, invalid("/datasets", "datasets is required: an array of fit requests, each with a name")
@@ -61,10 +64,14 @@ func RunBatch(ctx context.Context, req *BatchRequest, set Settings, maxBatch int
 		return nil, invalid("/datasets", fmt.Sprintf("at most %d datasets per batch", maxBatch))
 	}
 	out := &BatchResponse{Results: make([]BatchResult, len(req.Datasets))}
+	workers := set.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
 	set.Workers = 1
 	work := make(chan int)
 	var wg sync.WaitGroup
-	for range min(runtime.GOMAXPROCS(0), len(req.Datasets)) {
+	for range min(workers, len(req.Datasets)) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
@@ -73,18 +80,21 @@ func RunBatch(ctx context.Context, req *BatchRequest, set Settings, maxBatch int
 			}
 		}()
 	}
+dispatch:
 	for i := range req.Datasets {
-		if ctx.Err() != nil {
-			break
+		select {
+		case work <- i:
+		case <-ctx.Done():
+			break dispatch
 		}
-		work <- i
 	}
 	close(work)
 	wg.Wait()
-	if err := ctx.Err(); err != nil {
-		return nil, err
-	}
-	for _, r := range out.Results {
+	for i := range out.Results {
+		r := &out.Results[i]
+		if r.Status == 0 { // never started: the batch ended first
+			*r = unfinished(i, req.Datasets[i])
+		}
 		if r.Status == http.StatusOK {
 			out.OK++
 		} else {
@@ -92,6 +102,27 @@ func RunBatch(ctx context.Context, req *BatchRequest, set Settings, maxBatch int
 		}
 	}
 	return out, nil
+}
+
+// unfinished is the result of a dataset the batch's deadline left unfitted.
+func unfinished(i int, raw json.RawMessage) BatchResult {
+	res := BatchResult{Name: fmt.Sprintf("dataset %d", i+1)}
+	var named struct {
+		Name string `json:"name"`
+	}
+	if json.Unmarshal(raw, &named) == nil && named.Name != "" {
+		res.Name = named.Name
+	}
+	p := batchDeadline()
+	res.Problem, res.Status = prefixed(p, fmt.Sprintf("/datasets/%d", i)), p.Status
+	return res
+}
+
+// batchDeadline is the problem of a dataset left unfitted at the deadline;
+// its one error points at the dataset (once prefixed).
+func batchDeadline() *Problem {
+	const detail = "the batch ran past its deadline before this dataset was fitted; send it again, or in a smaller batch"
+	return newProblem(kindDeadline, detail, FieldError{Detail: detail})
 }
 
 func runEntry(ctx context.Context, i int, raw json.RawMessage, set Settings) BatchResult {
@@ -116,7 +147,7 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set Settings) Bat
 	fit, err := Fit(ctx, &e.FitRequest, set)
 	if err != nil {
 		if ctx.Err() != nil {
-			return fail(newProblem(kindDeadline, "the batch ran past its deadline before this dataset was fitted"))
+			return fail(batchDeadline())
 		}
 		return fail(err)
 	}
@@ -124,7 +155,10 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set Settings) Bat
 	return res
 }
 
-// handleBatch serves POST /v1/batch. The batch holds one compute slot.
+// handleBatch serves POST /v1/batch. The batch takes one compute slot,
+// waiting as any request does, then every further free slot it can use
+// (one per dataset, at most GOMAXPROCS), and fits one dataset per slot
+// held, so that it never uses more cores than it holds.
 func (s *Server) handleBatch(c *gin.Context) {
 	if s.mediaType(c, false) == "" {
 		return
@@ -140,9 +174,15 @@ func (s *Server) handleBatch(c *gin.Context) {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	resp, err := inSlot(s, c, func(ctx context.Context) (*BatchResponse, error) {
-		return RunBatch(ctx, &req, s.settings(1), s.cfg.MaxBatch)
-	})
+	held, free, p := s.batchSlots(c.Request.Context(), min(runtime.GOMAXPROCS(0), len(req.Datasets)))
+	if p != nil {
+		s.problem(c, p)
+		return
+	}
+	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
+	resp, err := RunBatch(ctx, &req, s.settings(held), s.cfg.MaxBatch)
+	cancel()
+	free()
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
 		return
@@ -153,4 +193,32 @@ func (s *Server) handleBatch(c *gin.Context) {
 		}
 	}
 	s.writeJSON(c, http.StatusOK, resp)
+}
+
+// batchSlots takes one compute slot (waiting up to SlotWait), then up to
+// want−1 more that are free now, without waiting. held is the number
+// taken; release gives them all back.
+func (s *Server) batchSlots(ctx context.Context, want int) (held int, release func(), p *Problem) {
+	first, p := s.acquire(ctx)
+	if p != nil {
+		return 0, nil, p
+	}
+	held = 1
+extra:
+	for held < want {
+		select {
+		case s.slots <- struct{}{}:
+			held++
+			s.metrics.slotsInUse.Inc()
+		default:
+			break extra
+		}
+	}
+	return held, func() {
+		for range held - 1 {
+			<-s.slots
+			s.metrics.slotsInUse.Dec()
+		}
+		first()
+	}, nil
 }

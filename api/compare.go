@@ -282,8 +282,10 @@ func (req *CompareRequest) Validate(lim Limits) error {
 	if req.Lambda != nil && !(*req.Lambda > 0 && !math.IsInf(*req.Lambda, 0)) {
 		add(param("lambda"), "lambda (the error-variance ratio) must be a finite number greater than 0")
 	}
-	if req.Confidence != nil && !(*req.Confidence > 0 && *req.Confidence < 1) {
-		add(param("confidence"), "confidence must lie strictly between 0 and 1, e.g. 0.95")
+	if req.Confidence != nil {
+		if err := CheckConfidence(*req.Confidence); err != nil {
+			add(param("confidence"), "%s", err)
+		}
 	}
 	checkAllowable := func(a *Allowable, ptr string) {
 		if a == nil {

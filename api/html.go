@@ -477,7 +477,8 @@ func CompareReport(resp *CompareResponse, req *CompareRequest, sha, version stri
 
 // wantsHTML says whether the client asked for the HTML report.
 func wantsHTML(c *gin.Context) bool {
-	return c.NegotiateFormat("application/json", "text/html") == "text/html"
+	mt, _ := negotiate(strings.Join(c.Request.Header.Values("Accept"), ", "), "application/json", "text/html")
+	return mt == "text/html"
 }
 
 func (s *Server) writeHTML(c *gin.Context, status int, write func(io.Writer) error) {
@@ -604,39 +605,18 @@ func (s *Server) handleIndex(c *gin.Context) {
 // urlencoded, no JavaScript needed), answered with the HTML report; a bad
 // input is answered with the form again and the problem in words.
 func (s *Server) handleFormReport(c *gin.Context) {
-	body, release, p := s.body(c)
-	if p != nil {
-		s.formError(c, p.Status, p.Title+". "+p.Detail)
+	release, ok := s.readForm(c)
+	if !ok {
 		return
 	}
 	defer release()
-	c.Request.Body = io.NopCloser(body)
-	if err := c.Request.ParseMultipartForm(32 << 20); err != nil && err != http.ErrNotMultipart {
-		s.formError(c, http.StatusBadRequest, "The form could not be read: "+err.Error())
-		return
-	}
 	if len(s.keys.hashes) > 0 && !s.keys.valid(c.Request.FormValue("api_key")) {
 		s.formError(c, http.StatusUnauthorized, "A valid API key is required.")
 		return
 	}
-	var data []byte
-	if fh, err := c.FormFile("file"); err == nil && fh.Size > 0 {
-		f, err := fh.Open()
-		if err != nil {
-			s.formError(c, http.StatusBadRequest, "The uploaded file could not be read.")
-			return
-		}
-		data, err = io.ReadAll(f)
-		f.Close()
-		if err != nil {
-			s.formError(c, http.StatusBadRequest, "The uploaded file could not be read.")
-			return
-		}
-	} else {
-		data = []byte(c.Request.FormValue("csv"))
-	}
-	if len(bytes.TrimSpace(data)) == 0 {
-		s.formError(c, http.StatusBadRequest, "Choose a CSV file or paste CSV data.")
+	data, msg := formData(c)
+	if msg != "" {
+		s.formError(c, http.StatusBadRequest, msg)
 		return
 	}
 	sum := sha256.Sum256(data)
@@ -723,6 +703,6 @@ func (s *Server) formProblem(c *gin.Context, err error) {
 func (s *Server) formError(c *gin.Context, status int, msg string) {
 	s.writeHTML(c, status, func(w io.Writer) error {
 		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, NeedsKey: len(s.keys.hashes) > 0, Error: msg,
-			DemoFit: c.Request.FormValue("csv")})
+			DemoFit: c.Request.Form.Get("csv")}) // the form as read, if it was: never parsed here
 	})
 }

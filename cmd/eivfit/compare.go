@@ -54,6 +54,10 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if done {
 		return err
 	}
+	if err := api.CheckConfidence(*confidence); err != nil {
+		fmt.Fprintf(stderr, "eivfit compare: --confidence: %v\n", err)
+		return exitError{2}
+	}
 	q := url.Values{}
 	for k, v := range strs {
 		if *v != "" {

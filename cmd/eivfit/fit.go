@@ -46,6 +46,10 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	if done {
 		return err
 	}
+	if err := api.CheckConfidence(*confidence); err != nil {
+		fmt.Fprintf(stderr, "eivfit fit: --confidence: %v\n", err)
+		return exitError{2}
+	}
 	q := url.Values{}
 	set := func(k, v string) {
 		if v != "" {
