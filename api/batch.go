@@ -15,8 +15,11 @@ import (
 	"github.com/gin-gonic/gin"
 )
 
-// RunBatch decodes and fits every dataset in parallel (up to GOMAXPROCS at
-// once, each bootstrap on one core), stopping early only when ctx ends.
+// RunBatch decodes and fits every dataset, set.Workers of them at once
+// (zero means GOMAXPROCS), each fit and its bootstrap on one core. When ctx
+// ends, the datasets already fitted keep their results and every other one
+// gets a deadline-exceeded problem: a batch at its deadline loses nothing
+// it finished.
 func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, maxBatch int) (*wire.BatchResponse, error) {
 	if len(req.Datasets) == 0 {
 		return nil, wire.Invalid("/datasets", "datasets is required: an array of fit requests, each with a name")
@@ -25,10 +28,14 @@ func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, m
 		return nil, wire.Invalid("/datasets", fmt.Sprintf("at most %d datasets per batch", maxBatch))
 	}
 	out := &wire.BatchResponse{Results: make([]wire.BatchResult, len(req.Datasets))}
+	workers := set.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
 	set.Workers = 1
 	work := make(chan int)
 	var wg sync.WaitGroup
-	for range min(runtime.GOMAXPROCS(0), len(req.Datasets)) {
+	for range min(workers, len(req.Datasets)) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
@@ -37,18 +44,21 @@ func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, m
 			}
 		}()
 	}
+dispatch:
 	for i := range req.Datasets {
-		if ctx.Err() != nil {
-			break
+		select {
+		case work <- i:
+		case <-ctx.Done():
+			break dispatch
 		}
-		work <- i
 	}
 	close(work)
 	wg.Wait()
-	if err := ctx.Err(); err != nil {
-		return nil, err
-	}
-	for _, r := range out.Results {
+	for i := range out.Results {
+		r := &out.Results[i]
+		if r.Status == 0 { // never started: the batch ended first
+			*r = unfinished(i, req.Datasets[i])
+		}
 		if r.Status == http.StatusOK {
 			out.OK++
 		} else {
@@ -56,6 +66,27 @@ func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, m
 		}
 	}
 	return out, nil
+}
+
+// unfinished is the result of a dataset the batch's deadline left unfitted.
+func unfinished(i int, raw json.RawMessage) wire.BatchResult {
+	res := wire.BatchResult{Name: fmt.Sprintf("dataset %d", i+1)}
+	var named struct {
+		Name string `json:"name"`
+	}
+	if json.Unmarshal(raw, &named) == nil && named.Name != "" {
+		res.Name = named.Name
+	}
+	p := batchDeadline()
+	res.Problem, res.Status = wire.Prefixed(p, fmt.Sprintf("/datasets/%d", i)), p.Status
+	return res
+}
+
+// batchDeadline is the problem of a dataset left unfitted at the deadline;
+// its one error points at the dataset (once prefixed).
+func batchDeadline() *wire.Problem {
+	const detail = "the batch ran past its deadline before this dataset was fitted; send it again, or in a smaller batch"
+	return wire.NewProblem(wire.KindDeadline, detail, wire.FieldError{Detail: detail})
 }
 
 func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Settings) wire.BatchResult {
@@ -81,7 +112,7 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Setting
 	r, err := study.Fit(ctx, e.Points.Data, e.Options(set))
 	if err != nil {
 		if ctx.Err() != nil {
-			return fail(wire.NewProblem(wire.KindDeadline, "the batch ran past its deadline before this dataset was fitted"))
+			return fail(batchDeadline())
 		}
 		return fail(src.Problem(err))
 	}
@@ -93,7 +124,10 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Setting
 	return res
 }
 
-// handleBatch serves POST /v1/batch. The batch holds one compute slot.
+// handleBatch serves POST /v1/batch. The batch takes one compute slot,
+// waiting as any request does, then every further free slot it can use
+// (one per dataset, at most GOMAXPROCS), and fits one dataset per slot
+// held, so that it never uses more cores than it holds.
 func (s *Server) handleBatch(c *gin.Context) {
 	kind, body, release := s.open(c, false)
 	if kind == "" {
@@ -105,9 +139,15 @@ func (s *Server) handleBatch(c *gin.Context) {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	resp, err := inSlot(s, c, func(ctx context.Context) (*wire.BatchResponse, error) {
-		return RunBatch(ctx, &req, s.settings(1), s.cfg.MaxBatch)
-	})
+	held, free, p := s.batchSlots(c.Request.Context(), min(runtime.GOMAXPROCS(0), len(req.Datasets)))
+	if p != nil {
+		s.problem(c, p)
+		return
+	}
+	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
+	resp, err := RunBatch(ctx, &req, s.settings(held), s.cfg.MaxBatch)
+	cancel()
+	free()
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
 		return
@@ -118,4 +158,32 @@ func (s *Server) handleBatch(c *gin.Context) {
 		}
 	}
 	s.writeJSON(c, http.StatusOK, resp)
+}
+
+// batchSlots takes one compute slot (waiting up to SlotWait), then up to
+// want−1 more that are free now, without waiting. held is the number
+// taken; release gives them all back.
+func (s *Server) batchSlots(ctx context.Context, want int) (held int, release func(), p *wire.Problem) {
+	first, p := s.acquire(ctx)
+	if p != nil {
+		return 0, nil, p
+	}
+	held = 1
+extra:
+	for held < want {
+		select {
+		case s.slots <- struct{}{}:
+			held++
+			s.metrics.slotsInUse.Inc()
+		default:
+			break extra
+		}
+	}
+	return held, func() {
+		for range held - 1 {
+			<-s.slots
+			s.metrics.slotsInUse.Dec()
+		}
+		first()
+	}, nil
 }

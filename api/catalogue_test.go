@@ -2,6 +2,8 @@ package api
 
 import (
 	"bufio"
+	"bytes"
+	"compress/gzip"
 	"context"
 	"eivfit/api/wire"
 	"eivfit/eiv/study"
@@ -103,6 +105,35 @@ func TestBadInputCatalogue(t *testing.T) {
 		{"body over limit", "POST", "/v1/fit", "application/json", many(30000), 413, "-"},
 		{"batch not array", "POST", "/v1/batch", "application/json", `{"datasets":{}}`, 400, "/datasets"},
 		{"compare unknown", "POST", "/v1/method-comparison", "application/json", `{"samples":[],"decision":[1]}`, 400, "/decision"},
+		// Confidence levels whose quantiles double precision cannot resolve.
+		{"confidence rounds to 1", "POST", "/v1/fit", "application/json", pts(`,"confidence":0.9999999999999999`), 400, "/confidence"},
+		{"confidence 1e-300", "POST", "/v1/fit", "application/json", pts(`,"confidence":1e-300`), 400, "/confidence"},
+		{"csv confidence rounds to 1", "POST", "/v1/fit?confidence=0.9999999999999999", "text/csv", "x,y\n1,2\n2,3\n3,5\n", 400, "query parameter confidence"},
+		{"compare confidence rounds to 1", "POST", "/v1/method-comparison", "application/json", `{"samples":[{"id":"a","x":[1],"y":[2]}],"confidence":0.9999999999999999}`, 400, "/confidence"},
+		{"plot confidence rounds to 1", "POST", "/v1/plots/data?confidence=0.9999999999999999", "text/csv", "x,y\n1,2\n2,3\n3,5\n", 400, "query parameter confidence"},
+		// Content codings are refused before the body is read (see headers).
+		{"gzip csv body", "POST", "/v1/fit", "text/csv", gzipped("x,y\n1,2\n2,3\n3,5\n"), 415, "header Content-Encoding"},
+		{"deflate batch body", "POST", "/v1/batch", "application/json", "x\x9c", 415, "header Content-Encoding"},
+		{"gzip compare body", "POST", "/v1/method-comparison", "application/json", gzipped(`{"samples":[]}`), 415, "header Content-Encoding"},
+		// Accept: weights and wildcards (see headers).
+		{"accept json q=0", "POST", "/v1/fit", "application/json", pts(""), 406, "header Accept"},
+		{"accept xml only", "POST", "/v1/fit", "application/json", pts(""), 406, "header Accept"},
+		{"accept malformed", "POST", "/v1/fit", "application/json", pts(""), 406, "header Accept"},
+		{"accept batch html only", "POST", "/v1/batch", "application/json", `{"datasets":[]}`, 406, "header Accept"},
+		{"accept plot json only", "POST", "/v1/plots/data", "application/json", pts(""), 406, "header Accept"},
+		{"accept healthz */*;q=0", "GET", "/healthz", "", "", 406, "header Accept"},
+		{"HEAD on a POST route", "HEAD", "/v1/fit", "", "", 405, "-"},
+	}
+	headers := map[string][]string{
+		"gzip csv body":          {"Content-Encoding", "gzip"},
+		"deflate batch body":     {"Content-Encoding", "deflate"},
+		"gzip compare body":      {"Content-Encoding", "identity, gzip"},
+		"accept json q=0":        {"Accept", "application/json;q=0"},
+		"accept xml only":        {"Accept", "application/xml, text/*;q=0"},
+		"accept malformed":       {"Accept", "json"},
+		"accept batch html only": {"Accept", "text/html"},
+		"accept plot json only":  {"Accept", "application/json"},
+		"accept healthz */*;q=0": {"Accept", "*/*;q=0"},
 	}
 	if len(cases) < 40 {
 		t.Fatalf("the catalogue has %d cases", len(cases))
@@ -115,7 +146,7 @@ func TestBadInputCatalogue(t *testing.T) {
 			var body string
 			go func() {
 				defer close(done)
-				rec := h.do(c.method, c.path, c.ctype, c.body)
+				rec := h.do(c.method, c.path, c.ctype, c.body, headers[c.name]...)
 				status, body = rec.Code, rec.Body.String()
 			}()
 			select {
@@ -323,4 +354,13 @@ func TestSeparateMetricsListener(t *testing.T) {
 	if c := get("http://" + mln.Addr().String() + "/metrics"); c != 200 {
 		t.Errorf("metrics listener: %d", c)
 	}
+}
+
+// gzipped compresses s, as a client that sends Content-Encoding: gzip would.
+func gzipped(s string) string {
+	var b bytes.Buffer
+	zw := gzip.NewWriter(&b)
+	_, _ = zw.Write([]byte(s))
+	_ = zw.Close()
+	return b.String()
 }

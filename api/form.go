@@ -4,7 +4,10 @@ import (
 	"bytes"
 	"crypto/sha256"
 	"encoding/hex"
+	"errors"
+	"fmt"
 	"io"
+	"mime"
 	"net/http"
 	"net/url"
 	"strings"
@@ -27,39 +30,18 @@ func (s *Server) handleIndex(c *gin.Context) {
 // urlencoded, no JavaScript needed), answered with the HTML report; a bad
 // input is answered with the form again and the problem in words.
 func (s *Server) handleFormReport(c *gin.Context) {
-	body, release, p := s.body(c)
-	if p != nil {
-		s.formError(c, p.Status, p.Title+". "+p.Detail)
+	release, ok := s.readForm(c)
+	if !ok {
 		return
 	}
 	defer release()
-	c.Request.Body = io.NopCloser(body)
-	if err := c.Request.ParseMultipartForm(32 << 20); err != nil && err != http.ErrNotMultipart {
-		s.formError(c, http.StatusBadRequest, "The form could not be read: "+err.Error())
-		return
-	}
 	if len(s.keys.hashes) > 0 && !s.keys.valid(c.Request.FormValue("api_key")) {
 		s.formError(c, http.StatusUnauthorized, "A valid API key is required.")
 		return
 	}
-	var data []byte
-	if fh, err := c.FormFile("file"); err == nil && fh.Size > 0 {
-		f, err := fh.Open()
-		if err != nil {
-			s.formError(c, http.StatusBadRequest, "The uploaded file could not be read.")
-			return
-		}
-		data, err = io.ReadAll(f)
-		f.Close()
-		if err != nil {
-			s.formError(c, http.StatusBadRequest, "The uploaded file could not be read.")
-			return
-		}
-	} else {
-		data = []byte(c.Request.FormValue("csv"))
-	}
-	if len(bytes.TrimSpace(data)) == 0 {
-		s.formError(c, http.StatusBadRequest, "Choose a CSV file or paste CSV data.")
+	data, msg := formData(c)
+	if msg != "" {
+		s.formError(c, http.StatusBadRequest, msg)
 		return
 	}
 	sum := sha256.Sum256(data)
@@ -125,6 +107,95 @@ func (s *Server) formProblem(c *gin.Context, err error) {
 func (s *Server) formError(c *gin.Context, status int, msg string) {
 	s.writeHTML(c, status, func(w io.Writer) error {
 		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, NeedsKey: len(s.keys.hashes) > 0, Error: msg,
-			DemoFit: c.Request.FormValue("csv")})
+			DemoFit: c.Request.Form.Get("csv")}) // the form as read, if it was: never parsed here
 	})
+}
+
+// formTextMax bounds a urlencoded form (pasted data), as the standard
+// library's form parser does: a larger file goes as a multipart upload,
+// bounded by the body limit.
+const formTextMax = 10 << 20
+
+// readForm reads the report form (multipart or urlencoded) within the body
+// limit and the memory budget. When it cannot, it answers the form again
+// saying what was wrong (media type, size, syntax) and returns ok false;
+// otherwise the caller calls release when done with the request.
+func (s *Server) readForm(c *gin.Context) (release func(), ok bool) {
+	ct := c.GetHeader("Content-Type")
+	mt, _, err := mime.ParseMediaType(ct)
+	if err != nil || mt != "multipart/form-data" && mt != "application/x-www-form-urlencoded" {
+		s.formProblemOf(c, wire.NewProblem(wire.KindMediaType, fmt.Sprintf(
+			"the form must be sent as multipart/form-data or application/x-www-form-urlencoded, not %q", truncate(ct))))
+		return nil, false
+	}
+	body, release, p := s.body(c)
+	if p != nil {
+		s.formProblemOf(c, p)
+		return nil, false
+	}
+	if mt == "multipart/form-data" {
+		c.Request.Body = io.NopCloser(body)
+		err = c.Request.ParseMultipartForm(32 << 20)
+	} else {
+		var b []byte
+		b, err = io.ReadAll(io.LimitReader(body, formTextMax+1))
+		if err == nil && len(b) > formTextMax {
+			release()
+			s.formProblemOf(c, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf(
+				"pasted data (a urlencoded form) is limited to %d MiB: upload the CSV as a file instead", formTextMax>>20)))
+			return nil, false
+		}
+		if err == nil {
+			c.Request.Body = io.NopCloser(bytes.NewReader(b))
+			err = c.Request.ParseForm()
+		}
+	}
+	if err != nil {
+		release()
+		var mbe *http.MaxBytesError
+		if errors.As(err, &mbe) {
+			s.formProblemOf(c, s.problemFor(c, err))
+		} else {
+			s.formProblemOf(c, wire.NewProblem(wire.KindInvalid, "the form could not be read ("+mt+"): "+err.Error()))
+		}
+		return nil, false
+	}
+	return release, true
+}
+
+// formData returns the CSV of the form: the uploaded file (field "file"),
+// else the pasted text (field "csv"); msg says what is missing otherwise.
+func formData(c *gin.Context) (data []byte, msg string) {
+	if fh, err := c.FormFile("file"); err == nil && fh.Size > 0 {
+		f, err := fh.Open()
+		if err != nil {
+			return nil, "The uploaded file could not be read."
+		}
+		defer f.Close()
+		if data, err = io.ReadAll(f); err != nil {
+			return nil, "The uploaded file could not be read."
+		}
+	} else {
+		data = []byte(c.Request.FormValue("csv"))
+	}
+	if len(bytes.TrimSpace(data)) > 0 {
+		return data, ""
+	}
+	hasFile := false
+	if mf := c.Request.MultipartForm; mf != nil {
+		_, hasFile = mf.File["file"]
+	}
+	_, hasText := c.Request.PostForm["csv"]
+	switch {
+	case hasFile:
+		return nil, "The uploaded file (field \"file\") is empty; choose a CSV file or paste CSV data."
+	case hasText:
+		return nil, "The pasted data (field \"csv\") is empty; choose a CSV file or paste CSV data."
+	}
+	return nil, "The form carries no data: it needs a CSV file (field \"file\") or pasted CSV (field \"csv\")."
+}
+
+// formProblemOf answers the form again with the problem in words.
+func (s *Server) formProblemOf(c *gin.Context, p *wire.Problem) {
+	s.formProblem(c, p)
 }

@@ -169,7 +169,8 @@ func (s *Server) writeJSON(c *gin.Context, status int, v any) {
 
 // wantsHTML says whether the client asked for the HTML report.
 func wantsHTML(c *gin.Context) bool {
-	return c.NegotiateFormat("application/json", "text/html") == "text/html"
+	mt, _ := negotiate(strings.Join(c.Request.Header.Values("Accept"), ", "), "application/json", "text/html")
+	return mt == "text/html"
 }
 
 func (s *Server) writeHTML(c *gin.Context, status int, write func(io.Writer) error) {

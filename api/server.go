@@ -27,8 +27,9 @@ import (
 // its documented default (DefaultConfig).
 type Config struct {
 	Addr string // listen address; default 127.0.0.1:8080
-	// MetricsAddr, when set, serves /metrics on a separate listener instead
-	// of the main one.
+	// MetricsAddr, when set, serves /metrics on a separate listener,
+	// without a key, instead of the main one (where it needs a key when
+	// APIKeys are set).
 	MetricsAddr string
 	// MaxBodyBytes bounds a request body; default 64 MiB.
 	MaxBodyBytes int64
@@ -54,7 +55,8 @@ type Config struct {
 	// ShutdownTimeout bounds the drain on SIGTERM; default 90 s.
 	ShutdownTimeout time.Duration
 	// APIKeys, when not empty, are required as "Authorization: Bearer KEY"
-	// on /v1/*; each entry is a key or its SHA-256 in hex.
+	// on /v1/* and on /metrics of the main listener; each entry is a key or
+	// its SHA-256 in hex.
 	APIKeys []string
 	// Logger receives one line per request (never request data); default
 	// JSON on stderr.
@@ -158,19 +160,22 @@ func NewServer(cfg Config) (*Server, error) {
 	e.NoMethod(func(c *gin.Context) {
 		s.problem(c, wire.NewProblem(wire.KindMethod, fmt.Sprintf("%s is not allowed here", c.Request.Method)))
 	})
-	v1 := e.Group("/v1", s.authorize)
-	v1.POST("/fit", s.handleFit)
-	v1.POST("/batch", s.handleBatch)
-	v1.POST("/method-comparison", s.handleCompare)
-	v1.POST("/plots/:kind", s.handlePlot)
-	e.GET("/", s.handleIndex)
-	e.POST("/report", s.handleFormReport)
-	e.GET("/healthz", s.handleHealthz)
-	e.GET("/readyz", s.handleReadyz)
-	e.GET("/openapi.yaml", handleOpenAPI)
-	e.GET("/demo/:file", s.handleDemo)
+	const jsonType, htmlType = "application/json", "text/html"
+	v1 := e.Group("/v1", s.authorize, s.plainBody(s.problem))
+	v1.POST("/fit", s.negotiated(jsonType, htmlType), s.handleFit)
+	v1.POST("/batch", s.negotiated(jsonType), s.handleBatch)
+	v1.POST("/method-comparison", s.negotiated(jsonType, htmlType), s.handleCompare)
+	v1.POST("/plots/:kind", s.negotiated("image/svg+xml"), s.handlePlot)
+	e.POST("/report", s.negotiated(htmlType), s.plainBody(s.formProblemOf), s.handleFormReport)
+	get(e, "/", s.negotiated(htmlType), s.handleIndex)
+	get(e, "/healthz", s.negotiated(jsonType), s.handleHealthz)
+	get(e, "/readyz", s.negotiated(jsonType), s.handleReadyz)
+	get(e, "/openapi.yaml", s.negotiated("application/yaml"), handleOpenAPI)
+	get(e, "/demo/:file", s.negotiated("text/csv"), s.handleDemo)
 	if cfg.MetricsAddr == "" {
-		e.GET("/metrics", gin.WrapH(s.MetricsHandler()))
+		// On the main listener, /metrics needs a key whenever /v1 does;
+		// a separate metrics listener (MetricsAddr) serves it open.
+		get(e, "/metrics", s.authorize, gin.WrapH(s.MetricsHandler()))
 	}
 	s.engine = e
 	return s, nil

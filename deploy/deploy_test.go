@@ -118,14 +118,17 @@ func TestKubernetesManifests(t *testing.T) {
 		t.Fatal("one container expected")
 	}
 	c := dep.Spec.Template.Spec.Containers[0]
-	var port corev1.ContainerPort
+	var port, metricsPort corev1.ContainerPort
 	for _, p := range c.Ports {
-		if p.Name == "http" {
+		switch p.Name {
+		case "http":
 			port = p
+		case "metrics":
+			metricsPort = p
 		}
 	}
-	if port.ContainerPort == 0 {
-		t.Fatal("no port named http")
+	if port.ContainerPort == 0 || metricsPort.ContainerPort == 0 || port.ContainerPort == metricsPort.ContainerPort {
+		t.Fatal("want two distinct ports, named http and metrics")
 	}
 	env := map[string]corev1.EnvVar{}
 	for _, e := range c.Env {
@@ -133,6 +136,11 @@ func TestKubernetesManifests(t *testing.T) {
 	}
 	if !strings.HasSuffix(env["EIVFIT_ADDR"].Value, ":"+itoa(int(port.ContainerPort))) || !strings.HasPrefix(env["EIVFIT_ADDR"].Value, "0.0.0.0:") {
 		t.Errorf("EIVFIT_ADDR %q does not listen on the container port %d", env["EIVFIT_ADDR"].Value, port.ContainerPort)
+	}
+	// /metrics has its own listener: the main port serves none, so API keys
+	// guard every data path and the scrape needs no key.
+	if !strings.HasSuffix(env["EIVFIT_METRICS_ADDR"].Value, ":"+itoa(int(metricsPort.ContainerPort))) {
+		t.Errorf("EIVFIT_METRICS_ADDR %q does not listen on the metrics port %d", env["EIVFIT_METRICS_ADDR"].Value, metricsPort.ContainerPort)
 	}
 	if g := env["GOMAXPROCS"]; g.ValueFrom == nil || g.ValueFrom.ResourceFieldRef == nil || g.ValueFrom.ResourceFieldRef.Resource != "limits.cpu" {
 		t.Error("GOMAXPROCS does not follow limits.cpu")
@@ -173,7 +181,7 @@ func TestKubernetesManifests(t *testing.T) {
 		t.Error("the container must have a read-only root filesystem, no privilege escalation and drop ALL capabilities")
 	}
 	ann := dep.Spec.Template.Annotations
-	if ann["prometheus.io/scrape"] != "true" || ann["prometheus.io/path"] != "/metrics" || ann["prometheus.io/port"] != itoa(int(port.ContainerPort)) ||
+	if ann["prometheus.io/scrape"] != "true" || ann["prometheus.io/path"] != "/metrics" || ann["prometheus.io/port"] != itoa(int(metricsPort.ContainerPort)) ||
 		!slices.Contains(served, "/metrics") {
 		t.Errorf("Prometheus scrape annotations %v", ann)
 	}
@@ -184,7 +192,7 @@ func TestKubernetesManifests(t *testing.T) {
 	}
 	for _, p := range svc.Spec.Ports {
 		if !portMatches(p.TargetPort, port) {
-			t.Errorf("Service targetPort %s is not the container port", p.TargetPort.String())
+			t.Errorf("Service targetPort %s is not the container port (the metrics port stays off the Service)", p.TargetPort.String())
 		}
 	}
 	if hpa.Spec.ScaleTargetRef.Kind != "Deployment" || hpa.Spec.ScaleTargetRef.Name != dep.Name || hpa.Spec.ScaleTargetRef.APIVersion != "apps/v1" {
@@ -205,8 +213,18 @@ func TestKubernetesManifests(t *testing.T) {
 	if !selects(np.Spec.PodSelector.MatchLabels, podLabels) {
 		t.Error("the NetworkPolicy selects no pod")
 	}
-	if len(np.Spec.Ingress) == 0 || len(np.Spec.Ingress[0].Ports) == 0 || !portMatches(*np.Spec.Ingress[0].Ports[0].Port, port) {
-		t.Error("the NetworkPolicy does not admit the HTTP port")
+	admitted := func(cp corev1.ContainerPort) bool {
+		for _, in := range np.Spec.Ingress {
+			for _, p := range in.Ports {
+				if p.Port != nil && portMatches(*p.Port, cp) {
+					return true
+				}
+			}
+		}
+		return false
+	}
+	if !admitted(port) || !admitted(metricsPort) {
+		t.Error("the NetworkPolicy does not admit the HTTP and metrics ports")
 	}
 }
 
@@ -260,5 +278,19 @@ func TestSystemdUnit(t *testing.T) {
 		if !strings.Contains(s, want) {
 			t.Errorf("eivfit.service lacks %q", want)
 		}
+	}
+	// /metrics on a loopback listener of its own, apart from the main one.
+	b, err = os.ReadFile("systemd/eivfit.env")
+	if err != nil {
+		t.Fatal(err)
+	}
+	env := map[string]string{}
+	for _, l := range strings.Split(string(b), "\n") {
+		if k, v, ok := strings.Cut(strings.TrimSpace(l), "="); ok && !strings.HasPrefix(k, "#") {
+			env[k] = v
+		}
+	}
+	if m := env["EIVFIT_METRICS_ADDR"]; !strings.HasPrefix(m, "127.0.0.1:") || m == env["EIVFIT_ADDR"] {
+		t.Errorf("eivfit.env: EIVFIT_METRICS_ADDR %q must be a loopback address apart from EIVFIT_ADDR %q", m, env["EIVFIT_ADDR"])
 	}
 }

@@ -99,6 +99,9 @@ func TestFitBadInputExitsTwo(t *testing.T) {
 		{"bad format", "", []string{"fit", "--format", "xml", "-"}, "--format"},
 		{"bad flag", "", []string{"fit", "--sigma", "-"}, "sigma"},
 		{"unknown command", "", []string{"fitt"}, "unknown command"},
+		{"confidence rounds to 1", "x,y\n1,2\n2,3\n3,5\n", []string{"fit", "--confidence", "0.9999999999999999", "-"}, "--confidence: confidence must lie between"},
+		{"confidence tiny", "x,y\n1,2\n2,3\n3,5\n", []string{"fit", "--confidence", "1e-300", "-"}, "--confidence"},
+		{"compare confidence 1", "id,x,y\nA,1,2\n", []string{"compare", "--confidence", "1", "-"}, "--confidence"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

@@ -64,7 +64,7 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	var bodyMiB int
 	var keysFile, logLevel string
 	sf.str(&cfg.Addr, "addr", "ADDR", d.Addr, "listen address")
-	sf.str(&cfg.MetricsAddr, "metrics-addr", "METRICS_ADDR", "", "serve /metrics on this separate address instead of the main one")
+	sf.str(&cfg.MetricsAddr, "metrics-addr", "METRICS_ADDR", "", "serve /metrics on this separate address, without a key, instead of the main one (where it needs a key when keys are set)")
 	sf.int(&bodyMiB, "max-body-mib", "MAX_BODY_MIB", int(d.MaxBodyBytes>>20), "largest request body, MiB")
 	sf.int(&cfg.Limits.MaxPoints, "max-points", "MAX_POINTS", d.Limits.MaxPoints, "most points per dataset")
 	sf.int(&cfg.Limits.MaxResamples, "max-resamples", "MAX_RESAMPLES", d.Limits.MaxResamples, "most bootstrap resamples per fit")
@@ -78,7 +78,7 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	sf.dur(&cfg.WriteTimeout, "write-timeout", "WRITE_TIMEOUT", d.WriteTimeout, "time to write a response")
 	sf.dur(&cfg.IdleTimeout, "idle-timeout", "IDLE_TIMEOUT", d.IdleTimeout, "keep-alive idle time")
 	sf.dur(&cfg.ShutdownTimeout, "shutdown-timeout", "SHUTDOWN_TIMEOUT", d.ShutdownTimeout, "drain time on SIGTERM/SIGINT")
-	sf.str(&keysFile, "api-keys-file", "API_KEYS_FILE", "", "file of API keys (one per line, KEY or sha256:HEX); when set, /v1/* needs \"Authorization: Bearer KEY\"")
+	sf.str(&keysFile, "api-keys-file", "API_KEYS_FILE", "", "file of API keys (one per line, KEY or sha256:HEX); when set, /v1/* and /metrics on the main address need \"Authorization: Bearer KEY\"")
 	sf.str(&logLevel, "log-level", "LOG_LEVEL", "info", "log level: debug, info, warn, error")
 	var gcPercent int
 	sf.int(&gcPercent, "gc-percent", "GC_PERCENT", 400, "garbage-collector target (GOGC): the live heap of small requests is tiny, so the Go default of 100 collects very often; set GOMEMLIMIT (or the container's memory limit) to bound the heap")
