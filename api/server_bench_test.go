@@ -2,11 +2,10 @@ package api
 
 import (
 	"bytes"
-	"fmt"
-	"math/rand/v2"
 	"net/http/httptest"
-	"strings"
 	"testing"
+
+	"eivfit/api/wire/wiretest"
 )
 
 // BenchmarkSmallFit is one small request (n = 40; ols, deming, york)
@@ -16,13 +15,7 @@ func BenchmarkSmallFit(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	r := rand.New(rand.NewPCG(5, 5))
-	var pts []string
-	for range 40 {
-		t := 5 + 20*r.Float64()
-		pts = append(pts, fmt.Sprintf(`{"x":%.4f,"y":%.4f,"sx":0.2,"sy":0.25}`, t+0.2*r.NormFloat64(), 0.1+1.03*t+0.25*r.NormFloat64()))
-	}
-	body := []byte(`{"points":[` + strings.Join(pts, ",") + `],"methods":["ols","deming","york"]}`)
+	body := wiretest.SmallFit()
 	h := srv.Handler()
 	b.ReportAllocs()
 	for b.Loop() {

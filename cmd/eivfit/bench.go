@@ -24,6 +24,7 @@ import (
 	"text/tabwriter"
 	"time"
 
+	"eivfit/api/wire/wiretest"
 	"eivfit/eiv"
 )
 
@@ -298,13 +299,7 @@ func benchHTTP(ctx context.Context, stdout, stderr io.Writer, dur time.Duration)
 		return err
 	}
 	defer stopServer(child)
-	r := rand.New(rand.NewPCG(5, 5))
-	var pts []string
-	for range 40 {
-		t := 5 + 20*r.Float64()
-		pts = append(pts, fmt.Sprintf(`{"x":%.4f,"y":%.4f,"sx":0.2,"sy":0.25}`, t+0.2*r.NormFloat64(), 0.1+1.03*t+0.25*r.NormFloat64()))
-	}
-	body := []byte(`{"points":[` + strings.Join(pts, ",") + `],"methods":["ols","deming","york"]}`)
+	body := wiretest.SmallFit()
 	tr := &http.Transport{MaxIdleConnsPerHost: 256, MaxConnsPerHost: 256, DisableCompression: true}
 	client := &http.Client{Transport: tr, Timeout: 10 * time.Second}
 	one := func() (time.Duration, bool) {

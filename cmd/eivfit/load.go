@@ -15,6 +15,8 @@ import (
 	"strings"
 	"sync"
 	"time"
+
+	"eivfit/api/wire/wiretest"
 )
 
 const loadUsage = `Usage: eivfit load [flags]
@@ -62,13 +64,7 @@ func runLoad(ctx context.Context, args []string, stdout, stderr io.Writer) error
 	if *saturate > 0 {
 		return saturateRun(stdout, client, base, *saturate, child)
 	}
-	r := rand.New(rand.NewPCG(5, 5))
-	var pts []string
-	for range 40 {
-		t := 5 + 20*r.Float64()
-		pts = append(pts, fmt.Sprintf(`{"x":%.4f,"y":%.4f,"sx":0.2,"sy":0.25}`, t+0.2*r.NormFloat64(), 0.1+1.03*t+0.25*r.NormFloat64()))
-	}
-	body := []byte(`{"points":[` + strings.Join(pts, ",") + `],"methods":["ols","deming","york"]}`)
+	body := wiretest.SmallFit()
 	var mu sync.Mutex
 	codes := map[int]int{}
 	one := func() (time.Duration, bool) {
