@@ -2,6 +2,8 @@ package api
 
 import (
 	"context"
+	"errors"
+	"testing"
 
 	"eivfit/api/wire"
 	"eivfit/eiv/study"
@@ -35,4 +37,13 @@ func runCompare(ctx context.Context, req *wire.CompareRequest, set study.Setting
 		return nil, req.Source().Problem(err)
 	}
 	return resp, nil
+}
+
+func problemOf(t *testing.T, err error) *wire.Problem {
+	t.Helper()
+	var p *wire.Problem
+	if !errors.As(err, &p) {
+		t.Fatalf("want a *wire.Problem, got %T %v", err, err)
+	}
+	return p
 }

@@ -1,14 +1,33 @@
-package api
+package wire_test
 
 import (
 	"context"
-	"eivfit/api/wire"
-	"eivfit/eiv/study"
 	"errors"
 	"net/url"
 	"strings"
 	"testing"
+
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 )
+
+// The decoders' errors, and the study's errors as wire.Source locates
+// them: each case names the JSON pointer, CSV row and column or query
+// parameter a client must see.
+
+// runFit is the handlers' path without HTTP: fit, convert, encode, each
+// error located as the handler locates it.
+func runFit(req *wire.FitRequest) (*wire.FitResponse, error) {
+	r, err := study.Fit(context.Background(), req.Points.Data, req.Options(study.Settings{Limits: study.DefaultLimits}))
+	if err != nil {
+		return nil, req.Source().Problem(err)
+	}
+	resp := wire.NewFitResponse(r)
+	if _, err := wire.Marshal(resp); err != nil {
+		return nil, req.Source().Problem(err)
+	}
+	return resp, nil
+}
 
 func problemOf(t *testing.T, err error) *wire.Problem {
 	t.Helper()
@@ -152,7 +171,7 @@ func TestValidateAndFitErrors(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			_, err = runFit(context.Background(), req, defaultSettings)
+			_, err = runFit(req)
 			if err == nil {
 				t.Fatal("no error")
 			}
@@ -179,7 +198,7 @@ func TestOddButValid(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			resp, err := runFit(context.Background(), req, defaultSettings)
+			resp, err := runFit(req)
 			if err != nil {
 				var p *wire.Problem
 				// Values near the double limits may be refused, but only
