@@ -43,8 +43,10 @@ import (
 // sampling steps on small data.
 var pbSelectCap int64 = 1 << 16
 
-// pbSampleSize is the number of slopes sampled from a bracket per step.
-const pbSampleSize = 4096
+// pbSampleSize is the number of slopes sampled from a bracket per step;
+// the first step of every rank shares one sample of up to
+// pbGlobalSampleSize slopes of all pairs.
+const pbSampleSize, pbGlobalSampleSize = 1 << 14, 1 << 16
 
 type pbItem struct {
 	k    float64 // key
@@ -54,6 +56,7 @@ type pbItem struct {
 // pbSet holds the distinct points in (x, y) order with their multiplicities.
 type pbSet struct {
 	ctx        context.Context
+	n          int // points, with duplicates
 	x, y       []float64
 	w          []int32
 	ntot       int64   // Σ w_a·w_b over pairs of distinct points: the slopes before −1 are dropped
@@ -63,6 +66,7 @@ type pbSet struct {
 	pre        []int64
 	rng        *rand.Rand
 	last       *pbBracket
+	global     []float64
 }
 
 // pbBracket is the multiset of slopes in (lo, hi] with the counts at its
@@ -103,7 +107,7 @@ func newPBSet(ctx context.Context, x, y []float64) *pbSet {
 		}
 		return cmpFloat(y[a], y[b])
 	})
-	s := &pbSet{ctx: ctx, rng: rand.New(rand.NewPCG(0x5eb1, uint64(n)))}
+	s := &pbSet{ctx: ctx, n: n, rng: rand.New(rand.NewPCG(0x5eb1, uint64(n)))}
 	for p := 0; p < n; {
 		q := p + 1
 		for q < n && x[idx[q]] == x[idx[p]] && y[idx[q]] == y[idx[p]] {
@@ -382,7 +386,36 @@ func (s *pbSet) sample(lo, hi float64, tot int64, m int) ([]float64, error) {
 		run += bw
 		return nil
 	})
+	slices.Sort(out)
 	return out, err
+}
+
+// globalSample draws, once, a sorted sample of the slopes of all pairs of
+// distinct points (uniform by weight).
+func (s *pbSet) globalSample() []float64 {
+	if s.global != nil {
+		return s.global
+	}
+	// A point drawn uniformly from all n (duplicates by their multiplicity).
+	rep := make([]int32, 0, s.n)
+	for i, w := range s.w {
+		for range w {
+			rep = append(rep, int32(i))
+		}
+	}
+	pick := func() int32 { return rep[s.rng.IntN(len(rep))] }
+	m := min(pbGlobalSampleSize, max(1024, 4*s.n))
+	out := make([]float64, 0, m)
+	for len(out) < m {
+		a, b := pick(), pick()
+		if a == b {
+			continue
+		}
+		out = append(out, s.slope(min(a, b), max(a, b)))
+	}
+	slices.Sort(out)
+	s.global = out
+	return out
 }
 
 // mergeBracket runs, for the keys at lo and hi already in k1 and k2, the
@@ -391,7 +424,9 @@ func (s *pbSet) sample(lo, hi float64, tot int64, m int) ([]float64, error) {
 // pairs with).
 func (s *pbSet) mergeBracket(visit func(q pbItem, left []pbItem, pre []int64) error) error {
 	it := s.fill(s.k1)
-	slices.SortStableFunc(it, func(p, q pbItem) int { return cmpFloat(p.k, q.k) })
+	if _, err := s.mergeSort(it, nil); err != nil {
+		return err
+	}
 	for i := range it {
 		it[i].k = s.k2[it[i].i]
 	}
@@ -407,6 +442,7 @@ func (s *pbSet) orderStat(r int64) (float64, error) {
 	}
 	lo, hi := math.Inf(-1), math.Inf(1)
 	flo, fhi := int64(0), s.ntot
+	var err error
 	for iter := 0; ; iter++ {
 		if fhi-flo <= max(pbSelectCap, 2*int64(len(s.x))) || iter >= 64 {
 			b, err := s.enumerate(lo, hi, flo, fhi)
@@ -416,11 +452,12 @@ func (s *pbSet) orderStat(r int64) (float64, error) {
 			s.last = b
 			return b.at(r), nil
 		}
-		smp, err := s.sample(lo, hi, fhi-flo, pbSampleSize)
-		if err != nil {
+		var smp []float64
+		if iter == 0 {
+			smp = s.globalSample()
+		} else if smp, err = s.sample(lo, hi, fhi-flo, pbSampleSize); err != nil {
 			return 0, err
 		}
-		slices.Sort(smp)
 		m := float64(len(smp))
 		f := float64(r-flo) / float64(fhi-flo)
 		d := 3*math.Sqrt(m*f*(1-f)) + 2

@@ -218,3 +218,64 @@ func TestPassingBablokCancel(t *testing.T) {
 		t.Fatal("no return 5 s after cancel")
 	}
 }
+
+// The O(n log n) Kendall counts equal the double loop over all pairs,
+// written here from the definition, on data with and without ties.
+func TestKendallPairs(t *testing.T) {
+	for _, kind := range []string{"continuous", "grid4", "integers", "minus1", "same"} {
+		for _, n := range []int{3, 4, 9, 50, 400} {
+			t.Run(fmt.Sprintf("%s/n=%d", kind, n), func(t *testing.T) {
+				x, y := pbCase(kind, 3, n)
+				sgn := func(v float64) int64 {
+					switch {
+					case v > 0:
+						return 1
+					case v < 0:
+						return -1
+					}
+					return 0
+				}
+				var s, dis int64
+				for i := range n {
+					for j := i + 1; j < n; j++ {
+						p := sgn(x[j]-x[i]) * sgn(y[j]-y[i])
+						s += p
+						if p < 0 {
+							dis++
+						}
+					}
+				}
+				gs, gd := kendallPairs(x, y)
+				if gs != s || gd != dis {
+					t.Errorf("S, D = %d, %d, want %d, %d", gs, gd, s, dis)
+				}
+			})
+		}
+	}
+}
+
+// BenchmarkPassingBablok times the whole fit (selection, intercepts, cusum,
+// Kendall) on seeded continuous data.
+func BenchmarkPassingBablok(b *testing.B) {
+	for _, n := range []int{100, 1000, 2000, 20_000, 100_000} {
+		x, y := pbCase("continuous", 1, n)
+		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				if _, err := PassingBablok(x, y, nil); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
+
+// BenchmarkPassingBablokSorted is the former way, all slopes stored and
+// sorted, at n = 2000 for a ratio within one run.
+func BenchmarkPassingBablokSorted(b *testing.B) {
+	x, y := pbCase("continuous", 1, 2000)
+	b.ReportAllocs()
+	for b.Loop() {
+		pbSorted(x, y, 0.95)
+	}
+}
