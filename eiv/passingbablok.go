@@ -71,15 +71,10 @@ func PassingBablokContext(ctx context.Context, x, y []float64, opt *Options) (*P
 	}
 	n := len(x)
 	sel := newPBSet(ctx, x, y)
-	k64, err := sel.count(math.Nextafter(-1, math.Inf(-1)))
+	k64, e, err := sel.minusOne()
 	if err != nil {
 		return nil, err
 	}
-	le1, err := sel.count(-1)
-	if err != nil {
-		return nil, err
-	}
-	e := le1 - k64 // slopes of exactly −1, left out
 	if sel.ntot-e < 2 {
 		return nil, fmt.Errorf("%w: too few distinct pairs for Passing–Bablok", ErrDegenerate)
 	}
@@ -90,11 +85,7 @@ func PassingBablokContext(ctx context.Context, x, y []float64, opt *Options) (*P
 		if r < 1 || r > N {
 			return 0, false, nil
 		}
-		ra := int64(r)
-		if ra > k64 {
-			ra += e
-		}
-		v, err := sel.orderStat(ra)
+		v, err := sel.nth(int64(r), k64, e)
 		return v, err == nil, err
 	}
 	var b float64
@@ -348,25 +339,15 @@ func selectedSlope(x, y []float64) (float64, error) {
 		return 0, ErrDegenerate
 	}
 	sel := newPBSet(context.Background(), x, y)
-	k, err := sel.count(math.Nextafter(-1, math.Inf(-1)))
+	k, e, err := sel.minusOne()
 	if err != nil {
 		return 0, err
 	}
-	le1, err := sel.count(-1)
-	if err != nil {
-		return 0, err
-	}
-	e := le1 - k
 	N := sel.ntot - e
 	if N < 2 {
 		return 0, ErrDegenerate
 	}
-	at := func(r int64) (float64, error) {
-		if r > k {
-			r += e
-		}
-		return sel.orderStat(r)
-	}
+	at := func(r int64) (float64, error) { return sel.nth(r, k, e) }
 	if N%2 == 1 {
 		r := (N+1)/2 + k
 		if r > N {

@@ -434,6 +434,24 @@ func (s *pbSet) mergeBracket(visit func(q pbItem, left []pbItem, pre []int64) er
 	return err
 }
 
+// minusOne returns K, the number of slopes below −1, and E, the number of
+// slopes of exactly −1 (which Passing–Bablok leaves out).
+func (s *pbSet) minusOne() (k, e int64, err error) {
+	if k, err = s.count(math.Nextafter(-1, math.Inf(-1))); err != nil {
+		return 0, 0, err
+	}
+	le, err := s.count(-1)
+	return k, le - k, err
+}
+
+// nth returns the r-th (1-based) of the slopes other than −1, given K and E.
+func (s *pbSet) nth(r, k, e int64) (float64, error) {
+	if r > k {
+		r += e
+	}
+	return s.orderStat(r)
+}
+
 // orderStat returns the r-th smallest slope (1-based, all slopes of
 // distinct points, −1 included).
 func (s *pbSet) orderStat(r int64) (float64, error) {
