@@ -120,7 +120,6 @@ func newPBSet(ctx context.Context, x, y []float64) *pbSet {
 	tot := int64(n) * int64(n-1) / 2
 	for _, w := range s.w {
 		tot -= int64(w) * int64(w-1) / 2
-		_ = w
 	}
 	s.ntot = tot
 	s.xr = s.x[m-1] - s.x[0]
