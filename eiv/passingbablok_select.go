@@ -350,6 +350,7 @@ func (s *pbSet) sorted(k []float64) []pbItem {
 // sample draws about m slopes uniformly (by weight) from the tot pairs in
 // (lo, hi].
 func (s *pbSet) sample(lo, hi float64, tot int64, m int) ([]float64, error) {
+	m = int(min(int64(m), 4*tot+64))
 	draws := make([]int64, m)
 	for i := range draws {
 		draws[i] = s.rng.Int64N(tot)
@@ -403,7 +404,7 @@ func (s *pbSet) globalSample() []float64 {
 		}
 	}
 	pick := func() int32 { return rep[s.rng.IntN(len(rep))] }
-	m := min(pbGlobalSampleSize, max(1024, 4*s.n))
+	m := int(min(int64(pbGlobalSampleSize), int64(max(1024, 4*s.n)), 4*s.ntot+64))
 	out := make([]float64, 0, m)
 	for len(out) < m {
 		a, b := pick(), pick()
