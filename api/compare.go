@@ -488,8 +488,11 @@ func (req *CompareRequest) analyse(ctx context.Context, st *study, set Settings)
 		}
 		add("weighted_deming", wd, eiv.WeightedDemingEstimator{Lambda: wd.Lambda}, em.lsrcRel)
 	}
-	pbf, err := pbFitted(s, conf, set)
+	pbf, err := pbFitted(ctx, s, conf, set)
 	if err != nil {
+		if ctx.Err() != nil {
+			return nil, ctx.Err()
+		}
 		return nil, fail("passing_bablok", err)
 	}
 	fits = append(fits, pbf)

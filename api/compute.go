@@ -94,8 +94,11 @@ func Fit(ctx context.Context, req *FitRequest, set Settings) (*FitResponse, erro
 	for _, m := range methods {
 		t0 := time.Now()
 		if m == "passing_bablok" {
-			ft, err := pbFitted(s, conf, set)
+			ft, err := pbFitted(ctx, s, conf, set)
 			if err != nil {
+				if ctx.Err() != nil {
+					return nil, ctx.Err()
+				}
 				return nil, fitProblem(err, eiv.MethodPassingBablok, d.locate, methodPtr(m))
 			}
 			fits = append(fits, ft)
@@ -269,9 +272,9 @@ const pbBootstrapMaxN = 300
 // pbFitted runs Passing–Bablok with its checks. Its predictions and bias
 // intervals come from the jackknife (the method has no analytic
 // covariance); above pbJackknifeMaxN points they are given without interval.
-func pbFitted(s eiv.Sample, conf float64, set Settings) (*fitted, error) {
+func pbFitted(ctx context.Context, s eiv.Sample, conf float64, set Settings) (*fitted, error) {
 	t0 := time.Now()
-	pb, err := eiv.PassingBablok(s.X, s.Y, &eiv.Options{Confidence: conf})
+	pb, err := eiv.PassingBablokContext(ctx, s.X, s.Y, &eiv.Options{Confidence: conf})
 	if err != nil {
 		return nil, err
 	}
