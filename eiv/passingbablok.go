@@ -1,6 +1,7 @@
 package eiv
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"slices"
@@ -47,7 +48,17 @@ type CusumResult struct {
 //   - the CI of b is [S₍M1+K₎, S₍M2+K₎] with C = z_{1−α/2}·√(n(n−1)(2n+5)/18),
 //     M1 = round((N − C)/2), M2 = N − M1 + 1; the CI of a is
 //     [median{y − b_U·x}, median{y − b_L·x}].
+//
+// The slopes are not stored: their order statistics are found by slope
+// selection (passingbablok_select.go), O(n log n) time per count and O(n)
+// memory, with the same values, bit for bit, as sorting all of them.
 func PassingBablok(x, y []float64, opt *Options) (*PassingBablokResult, error) {
+	return PassingBablokContext(context.Background(), x, y, opt)
+}
+
+// PassingBablokContext is PassingBablok that stops with ctx's error when ctx
+// is cancelled or its deadline passes.
+func PassingBablokContext(ctx context.Context, x, y []float64, opt *Options) (*PassingBablokResult, error) {
 	conf, err := opt.confidence()
 	if err != nil {
 		return nil, err
@@ -55,68 +66,43 @@ func PassingBablok(x, y []float64, opt *Options) (*PassingBablokResult, error) {
 	if err := checkXY(x, y); err != nil {
 		return nil, err
 	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
 	n := len(x)
-	if n > 20000 {
-		return nil, &OptionError{Option: "n", Reason: "Passing–Bablok needs n(n−1)/2 slopes; at most 20,000 points"}
+	sel := newPBSet(ctx, x, y)
+	k64, e, err := sel.minusOne()
+	if err != nil {
+		return nil, err
 	}
-	idx := make([]int, n)
-	for i := range idx {
-		idx[i] = i
-	}
-	slices.SortFunc(idx, func(a, b int) int {
-		switch {
-		case x[a] != x[b]:
-			return cmpFloat(x[a], x[b])
-		default:
-			return cmpFloat(y[a], y[b])
-		}
-	})
-	s := make([]float64, 0, n*(n-1)/2)
-	k := 0
-	for p := range n {
-		i := idx[p]
-		for q := p + 1; q < n; q++ {
-			j := idx[q]
-			dx, dy := x[j]-x[i], y[j]-y[i]
-			if dx == 0 && dy == 0 {
-				continue
-			}
-			var sl float64
-			if dx == 0 {
-				sl = math.Inf(1)
-			} else {
-				sl = dy / dx
-			}
-			if sl == -1 {
-				continue
-			}
-			if sl < -1 {
-				k++
-			}
-			s = append(s, sl)
-		}
-	}
-	N := len(s)
-	if N < 2 {
+	if sel.ntot-e < 2 {
 		return nil, fmt.Errorf("%w: too few distinct pairs for Passing–Bablok", ErrDegenerate)
 	}
-	slices.Sort(s)
-	at := func(r int) (float64, bool) { // 1-based order statistic, within range
+	N, k := int(sel.ntot-e), int(k64)
+	// at is the r-th (1-based) of the N slopes other than −1; false when r
+	// is out of range.
+	at := func(r int) (float64, bool, error) {
 		if r < 1 || r > N {
-			return 0, false
+			return 0, false, nil
 		}
-		return s[r-1], true
+		v, err := sel.nth(int64(r), k64, e)
+		return v, err == nil, err
 	}
 	var b float64
 	var ok1, ok2 bool
 	if N%2 == 1 {
-		b, ok1 = at((N+1)/2 + k)
+		b, ok1, err = at((N+1)/2 + k)
 		ok2 = ok1
 	} else {
 		var lo, hi float64
-		lo, ok1 = at(N/2 + k)
-		hi, ok2 = at(N/2 + 1 + k)
+		lo, ok1, err = at(N/2 + k)
+		if err == nil {
+			hi, ok2, err = at(N/2 + 1 + k)
+		}
 		b = (lo + hi) / 2
+	}
+	if err != nil {
+		return nil, err
 	}
 	if !ok1 || !ok2 || math.IsInf(b, 0) {
 		return nil, fmt.Errorf("%w: the shifted median slope is not finite (x and y show no positive relation)", ErrDegenerate)
@@ -125,8 +111,14 @@ func PassingBablok(x, y []float64, opt *Options) (*PassingBablokResult, error) {
 	c := z * math.Sqrt(float64(n)*float64(n-1)*float64(2*n+5)/18)
 	m1 := int(math.Round((float64(N) - c) / 2))
 	m2 := N - m1 + 1
-	bl, okl := at(m1 + k)
-	bu, oku := at(m2 + k)
+	bl, okl, err := at(m1 + k)
+	if err != nil {
+		return nil, err
+	}
+	bu, oku, err := at(m2 + k)
+	if err != nil {
+		return nil, err
+	}
 	res := &PassingBablokResult{Slopes: N, Shift: k}
 	f := &Fit{Method: MethodPassingBablok, N: n, Confidence: conf, DOF: n - 2, Converged: true}
 	a := medianOf(y, x, b)
@@ -239,14 +231,22 @@ func cusumTest(x, y []float64, a, b float64) CusumResult {
 	return res
 }
 
-// PassingBablokEstimator is Passing–Bablok for the resampling engines. Its
-// fitter keeps a buffer for the n(n−1)/2 slopes, so that after the first
-// fit it allocates nothing.
+// PassingBablokEstimator is Passing–Bablok for the resampling engines. Up
+// to pbFitterBruteMaxN points its fitter keeps a buffer for the n(n−1)/2
+// slopes and sorts them (after the first fit it allocates nothing); above,
+// it selects the order statistics as PassingBablok does.
 type PassingBablokEstimator struct{}
+
+// pbFitterBruteMaxN is the largest sample the fitter sorts all slopes of.
+const pbFitterBruteMaxN = 128
 
 func (PassingBablokEstimator) Method() Method { return MethodPassingBablok }
 func (PassingBablokEstimator) NewFitter(n int) LineFitter {
-	return &pbFitter{s: make([]float64, 0, n*(n-1)/2), r: make([]float64, n)}
+	f := &pbFitter{r: make([]float64, n)}
+	if n <= pbFitterBruteMaxN {
+		f.s = make([]float64, 0, n*(n-1)/2)
+	}
+	return f
 }
 
 // TruePoints for Passing–Bablok move each point to the line along the
@@ -260,6 +260,36 @@ type pbFitter struct{ s, r []float64 }
 
 func (f *pbFitter) FitLine(smp Sample) (float64, float64, error) {
 	x, y := smp.X, smp.Y
+	n := len(x)
+	var b float64
+	var err error
+	if n <= pbFitterBruteMaxN {
+		b, err = f.sortedSlope(x, y)
+	} else {
+		b, err = selectedSlope(x, y)
+	}
+	if err != nil {
+		return 0, 0, err
+	}
+	if math.IsInf(b, 0) || math.IsNaN(b) {
+		return 0, 0, ErrDegenerate
+	}
+	res := f.r[:n]
+	for i := range n {
+		res[i] = y[i] - b*x[i]
+	}
+	slices.Sort(res)
+	var a float64
+	if n%2 == 1 {
+		a = res[n/2]
+	} else {
+		a = (res[n/2-1] + res[n/2]) / 2
+	}
+	return a, b, nil
+}
+
+// sortedSlope is the shifted median of the slopes, all stored and sorted.
+func (f *pbFitter) sortedSlope(x, y []float64) (float64, error) {
 	n := len(x)
 	s := f.s[:0]
 	k := 0
@@ -285,36 +315,53 @@ func (f *pbFitter) FitLine(smp Sample) (float64, float64, error) {
 	f.s = s
 	N := len(s)
 	if N < 2 {
-		return 0, 0, ErrDegenerate
+		return 0, ErrDegenerate
 	}
 	slices.Sort(s)
-	var b float64
 	if N%2 == 1 {
 		r := (N+1)/2 + k
 		if r > N {
-			return 0, 0, ErrDegenerate
+			return 0, ErrDegenerate
 		}
-		b = s[r-1]
-	} else {
-		r := N/2 + k
-		if r+1 > N {
-			return 0, 0, ErrDegenerate
+		return s[r-1], nil
+	}
+	r := N/2 + k
+	if r+1 > N {
+		return 0, ErrDegenerate
+	}
+	return (s[r-1] + s[r]) / 2, nil
+}
+
+// selectedSlope is the shifted median of the slopes by slope selection.
+func selectedSlope(x, y []float64) (float64, error) {
+	if len(x) < 2 {
+		return 0, ErrDegenerate
+	}
+	sel := newPBSet(context.Background(), x, y)
+	k, e, err := sel.minusOne()
+	if err != nil {
+		return 0, err
+	}
+	N := sel.ntot - e
+	if N < 2 {
+		return 0, ErrDegenerate
+	}
+	at := func(r int64) (float64, error) { return sel.nth(r, k, e) }
+	if N%2 == 1 {
+		r := (N+1)/2 + k
+		if r > N {
+			return 0, ErrDegenerate
 		}
-		b = (s[r-1] + s[r]) / 2
+		return at(r)
 	}
-	if math.IsInf(b, 0) || math.IsNaN(b) {
-		return 0, 0, ErrDegenerate
+	r := N/2 + k
+	if r+1 > N {
+		return 0, ErrDegenerate
 	}
-	res := f.r[:n]
-	for i := range n {
-		res[i] = y[i] - b*x[i]
+	lo, err := at(r)
+	if err != nil {
+		return 0, err
 	}
-	slices.Sort(res)
-	var a float64
-	if n%2 == 1 {
-		a = res[n/2]
-	} else {
-		a = (res[n/2-1] + res[n/2]) / 2
-	}
-	return a, b, nil
+	hi, err := at(r + 1)
+	return (lo + hi) / 2, err
 }

@@ -17,7 +17,7 @@ import (
 //	       + Σt(t−1)(t−2)·Σu(u−1)(u−2)/(9n(n−1)(n−2)) + Σt(t−1)·Σu(u−1)/(2n(n−1))
 //
 // where S is concordant minus discordant pairs and t, u the sizes of tie
-// groups in x and y. O(n²).
+// groups in x and y. O(n log n).
 func KendallTau(x, y []float64) (TestResult, error) {
 	n := len(x)
 	if n != len(y) {
@@ -26,16 +26,7 @@ func KendallTau(x, y []float64) (TestResult, error) {
 	if n < 3 {
 		return TestResult{}, ErrTooFewPoints
 	}
-	var s, dis int64
-	for i := range n {
-		for j := i + 1; j < n; j++ {
-			p := sign(x[j]-x[i]) * sign(y[j]-y[i])
-			s += int64(p)
-			if p < 0 {
-				dis++
-			}
-		}
-	}
+	s, dis := kendallPairs(x, y)
 	xt, x0, x1 := tieSums(x)
 	yt, y0, y1 := tieSums(y)
 	tot := float64(n) * float64(n-1) / 2
@@ -67,16 +58,6 @@ func tauB(s int64, a, b float64) float64 {
 		return float64(s) / a
 	}
 	return math.Max(-1, math.Min(1, float64(s)/math.Sqrt(a*b)))
-}
-
-func sign(v float64) int {
-	switch {
-	case v > 0:
-		return 1
-	case v < 0:
-		return -1
-	}
-	return 0
 }
 
 // tieSums returns Σt(t−1)/2, Σt(t−1)(t−2) and Σt(t−1)(2t+5) over tie groups.

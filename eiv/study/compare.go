@@ -360,7 +360,7 @@ func analyse(ctx context.Context, st *reduced, o *CompareOptions) (*Comparison, 
 
 	s := eiv.Sample{X: st.X, Y: st.Y, SX: st.SX, SY: st.SY}
 	for _, m := range Methods {
-		p := fitParams{conf: conf, jackMax: o.jackMax()}
+		p := fitParams{ctx: ctx, conf: conf, jackMax: o.jackMax()}
 		lsrc := ""
 		switch m.Name {
 		case "deming":
@@ -378,6 +378,9 @@ func analyse(ctx context.Context, st *reduced, o *CompareOptions) (*Comparison, 
 		t0 := time.Now()
 		r, err := m.fit(s, p)
 		if err != nil {
+			if ctx.Err() != nil {
+				return nil, ctx.Err()
+			}
 			return nil, fail(m.Name, err)
 		}
 		r.Method, r.LambdaSource, r.elapsed = m, lsrc, time.Since(t0)

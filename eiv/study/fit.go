@@ -238,7 +238,7 @@ func Fit(ctx context.Context, d Data, o *FitOptions) (*FitResult, error) {
 	s := eiv.Sample{X: d.X, Y: d.Y, SX: d.SX, SY: d.SY, R: d.R}
 	for _, m := range methods {
 		t0 := time.Now()
-		p := fitParams{conf: conf, jackknife: true, jackMax: o.jackMax()}
+		p := fitParams{ctx: ctx, conf: conf, jackknife: true, jackMax: o.jackMax()}
 		lsrc := ""
 		if m.Name == "deming" || m.Name == "weighted_deming" {
 			var err error
@@ -248,6 +248,9 @@ func Fit(ctx context.Context, d Data, o *FitOptions) (*FitResult, error) {
 		}
 		r, err := m.fit(s, p)
 		if err != nil {
+			if ctx.Err() != nil {
+				return nil, ctx.Err()
+			}
 			return nil, fitError(err, m.Name, nil)
 		}
 		r.Method, r.LambdaSource, r.elapsed = m, lsrc, time.Since(t0)
@@ -512,7 +515,11 @@ const pbBootstrapMaxN = 300
 // bias intervals come from the jackknife (the method has no analytic
 // covariance); above PassingBablokJackknifeMaxN points they are given without interval.
 func passingBablok(s eiv.Sample, p fitParams) (*MethodResult, error) {
-	pb, err := eiv.PassingBablok(s.X, s.Y, &eiv.Options{Confidence: p.conf})
+	ctx := p.ctx
+	if ctx == nil {
+		ctx = context.Background()
+	}
+	pb, err := eiv.PassingBablokContext(ctx, s.X, s.Y, &eiv.Options{Confidence: p.conf})
 	if err != nil {
 		return nil, err
 	}

@@ -1,6 +1,7 @@
 package study
 
 import (
+	"context"
 	"slices"
 
 	"eivfit/eiv"
@@ -27,6 +28,7 @@ type Method struct {
 
 // fitParams are what a method's fitter takes besides the sample.
 type fitParams struct {
+	ctx       context.Context // a fitter that takes long (Passing–Bablok) stops when it ends
 	conf      float64
 	lambda    float64 // Deming fits: the error-variance ratio; 0 means 1 with a warning
 	jackknife bool    // ask for the jackknife where it is optional

@@ -1,0 +1,5 @@
+//go:build race
+
+package eiv
+
+func init() { pbRace = true }
