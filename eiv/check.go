@@ -93,19 +93,22 @@ type moments struct {
 }
 
 // checkedMoments validates (x, y) as checkXY does and returns their
-// moments, in one pass over the data: the hot path of Deming and OLS.
-func checkedMoments(x, y []float64) (moments, error) {
+// moments, in one pass over the data for the usual case: the hot path of
+// Deming. A non-zero Scale (and no moments) says that the values lie
+// outside the band where squares and products of sums are safe: the caller
+// rescales the data by it and calls again.
+func checkedMoments(x, y []float64) (moments, Scale, error) {
 	if len(x) != len(y) {
-		return moments{}, ErrLengthMismatch
+		return moments{}, Scale{}, ErrLengthMismatch
 	}
 	n := len(x)
 	if n < 3 {
-		return moments{}, ErrTooFewPoints
+		return moments{}, Scale{}, ErrTooFewPoints
 	}
 	y = y[:n]
 	x0, y0 := x[0], y[0]
 	if !(x0-x0 == 0 && y0-y0 == 0) {
-		return moments{}, checkXY(x, y)
+		return moments{}, Scale{}, checkXY(x, y)
 	}
 	// NaN or ±Inf anywhere makes the sums non-finite, and constant x makes
 	// sxx zero: both send the rare bad case to checkXY for its precise error.
@@ -133,19 +136,36 @@ func checkedMoments(x, y []float64) (moments, error) {
 	}
 	mx := math.Max(math.Abs(xlo), math.Abs(xhi))
 	my := math.Max(math.Abs(ylo), math.Abs(yhi))
-	if !(allFinite(s1, s2, sxx, syy, sxy, mx, my) && sxx > 0) || outOfRange(mx) || outOfRange(my) {
-		return moments{}, checkXY(x, y)
+	if !(allFinite(s1, s2, sxx, syy, sxy, mx, my) && sxx > 0) || !inBand(mx) || !inBand(my) {
+		if err := checkXY(x, y); err != nil {
+			return moments{}, Scale{}, err
+		}
+		return moments{}, Scale{X: magnitude(x), Y: magnitude(y)}, nil
 	}
-	fn := float64(n)
-	ax, ay := s1/fn, s2/fn
-	return moments{n: fn, mx: x0 + ax, my: y0 + ay,
-		sxx: math.Max(0, sxx-s1*ax), syy: math.Max(0, syy-s2*ay), sxy: sxy - s1*ay}, nil
+	return shiftedResult(x, y, x0, y0, s1, s2, sxx, syy, sxy), Scale{}, nil
+}
+
+// shiftedResult turns sums of the values less (x0, y0) into moments. Their
+// rounding error relative to s_xx is about ε·(1 + n(x̄ − x₀)²/s_xx): a few
+// ulps while (x₀, y₀) lies within two standard deviations of the mean, and
+// up to n× more when it is far from the rest (a high standard first in the
+// file). Then the moments are recomputed about the mean in two passes, so
+// that no result depends on the order of the rows beyond rounding.
+func shiftedResult(x, y []float64, x0, y0, sx, sy, sxx, syy, sxy float64) moments {
+	fn := float64(len(x))
+	ax, ay := sx/fn, sy/fn
+	cx, cy := sx*ax, sy*ay // n·(x̄ − x₀)², the part the shift removes
+	m := moments{n: fn, mx: x0 + ax, my: y0 + ay,
+		sxx: math.Max(0, sxx-cx), syy: math.Max(0, syy-cy), sxy: sxy - sx*ay}
+	if cx > 4*m.sxx || cy > 4*m.syy {
+		return centredMoments(x, y)
+	}
+	return m
 }
 
 // shiftedMoments computes the same moments in one pass, from sums of the
-// values less the first point (a shift that leaves the sums small unless
-// the first point lies far outside the rest; the relative error of s_xx is
-// then about ε·(1 + n(x̄ − x₀)²/s_xx)).
+// values less the first point, and like checkedMoments in two passes when
+// that point lies far from the rest.
 func shiftedMoments(x, y []float64) moments {
 	n := len(x)
 	y = y[:n]
@@ -159,10 +179,22 @@ func shiftedMoments(x, y []float64) moments {
 		syy += dy * dy
 		sxy += dx * dy
 	}
-	fn := float64(n)
-	mx, my := sx/fn, sy/fn
-	return moments{n: fn, mx: x0 + mx, my: y0 + my,
-		sxx: math.Max(0, sxx-sx*mx), syy: math.Max(0, syy-sy*my), sxy: sxy - sx*my}
+	return shiftedResult(x, y, x0, y0, sx, sy, sxx, syy, sxy)
+}
+
+// residualSS returns Σ(e − ē)² of the residuals e = (y − ȳ) − b·(x − x̄)
+// about the centred data: a second pass that keeps its digits however close
+// the points lie to the line, where s_yy − 2b·s_xy + b²·s_xx from the
+// moments has a relative error of about ε/(1 − R²).
+func residualSS(x, y []float64, m moments, b float64) float64 {
+	y = y[:len(x)]
+	var se, see float64
+	for i := range x {
+		e := (y[i] - m.my) - b*(x[i]-m.mx)
+		se += e
+		see += e * e
+	}
+	return math.Max(0, see-se*se/m.n)
 }
 
 func centredMoments(x, y []float64) moments {
@@ -195,7 +227,10 @@ func centredMoments(x, y []float64) moments {
 
 // demingSlope returns the Deming slope for error-variance ratio lambda
 // (var(y error)/var(x error)) from centred sums, choosing the root formula
-// that avoids cancellation. lambda = +Inf gives the OLS slope.
+// that avoids cancellation. lambda = +Inf gives the OLS slope and lambda = 0
+// the inverse regression s_yy/s_xy. Every λ in [0, +Inf] is handled: when
+// λ·s_xx or 4λ·s_xy² would leave double precision the formula is evaluated
+// on the moments divided by s_xx.
 func demingSlope(sxx, syy, sxy, lambda float64) float64 {
 	if math.IsInf(lambda, 1) {
 		return sxy / sxx
@@ -205,10 +240,65 @@ func demingSlope(sxx, syy, sxy, lambda float64) float64 {
 	if e := 4 * lambda * sxy * sxy; math.Abs(d) < 1e150 && e < 1e300 {
 		root = math.Sqrt(d*d + e) // no overflow: the fast path
 	} else {
-		root = math.Hypot(d, 2*math.Sqrt(lambda)*sxy)
+		// b depends on the moments through their ratios only; for a large
+		// λ the formula is divided by λ as well.
+		r, c := syy/sxx, sxy/sxx
+		if lambda > 1 {
+			u := r/lambda - 1
+			root = math.Hypot(u, 2*c/math.Sqrt(lambda))
+			if u >= 0 {
+				return lambda * (u + root) / (2 * c)
+			}
+			return 2 * c / (root - u)
+		}
+		d = r - lambda
+		root = math.Hypot(d, 2*math.Sqrt(lambda)*c)
+		sxy = c
 	}
 	if d >= 0 {
 		return (d + root) / (2 * sxy)
 	}
 	return 2 * lambda * sxy / (root - d)
+}
+
+// demingStep returns δ = b_(i) − b, the change of the Deming slope b of
+// moments m when the point with centred coordinates (dx, dy) and weight
+// factor k (n/(n−1) unweighted; w_i·Σw/(Σw − w_i) weighted) is removed,
+// without the cancellation of b_(i) − b for points that move the line
+// little. With the downdated moments S_(i), the slope's quadratic
+//
+//	F(β) = s_xy·β² + (λ·s_xx − s_yy)·β − λ·s_xy
+//
+// has at the full-sample b the value F_(i)(b) = k·e·(b·dy + λ·dx), with
+// e = dy − b·dx the point's residual, so δ is the root of
+// F_(i)(b) + F′_(i)(b)·δ + s_xy,(i)·δ² = 0 nearest to 0, taken by the
+// stable quadratic formula. For OLS (λ = +Inf) it is −k·dx·e/s_xx,(i).
+// ok is false when the downdated moments have lost more than about four
+// digits to cancellation (a point that dominates the spread): the caller
+// then refits without the point.
+func demingStep(m moments, dx, dy, k, lambda, b float64) (sxx, syy, sxy, delta float64, ok bool) {
+	kxx, kyy := k*dx*dx, k*dy*dy
+	sxx, syy, sxy = m.sxx-kxx, m.syy-kyy, m.sxy-k*dx*dy
+	// The downdate's rounding error is about ε·(s_xx + k·dx²); at most
+	// one or two points can make that large against the remainder.
+	const lost = 1e4
+	if !(sxx*lost > m.sxx+kxx) || !(syy*lost > m.syy+kyy || (m.syy == 0 && kyy == 0)) {
+		return sxx, syy, sxy, 0, false
+	}
+	e := dy - b*dx
+	if math.IsInf(lambda, 1) {
+		return sxx, syy, sxy, -k * dx * e / sxx, true
+	}
+	f0 := k * e * (b*dy + lambda*dx)
+	f1 := 2*sxy*b + lambda*sxx - syy
+	disc := f1*f1 - 4*sxy*f0
+	direct := demingSlope(sxx, syy, sxy, lambda) - b
+	if !(disc >= 0) || !allFinite(f0, f1, disc) || math.Abs(direct) > math.Abs(b)/2 {
+		return sxx, syy, sxy, direct, true
+	}
+	q := f1 + math.Copysign(math.Sqrt(disc), f1)
+	if q == 0 {
+		return sxx, syy, sxy, direct, true
+	}
+	return sxx, syy, sxy, -2 * f0 / q, true
 }
