@@ -88,6 +88,7 @@ func checkCorrelation(r []float64, n int) error {
 type moments struct {
 	n        float64
 	mx, my   float64 // means
+	lx, ly   float64 // the parts of the means that mx and my cannot hold (x̄ = mx + lx)
 	sxx, syy float64 // Σ(x−x̄)², Σ(y−ȳ)²
 	sxy      float64 // Σ(x−x̄)(y−ȳ)
 }
@@ -112,10 +113,13 @@ func checkedMoments(x, y []float64) (moments, Scale, error) {
 	}
 	// NaN or ±Inf anywhere makes the sums non-finite, and constant x makes
 	// sxx zero: both send the rare bad case to checkXY for its precise error.
-	var s1, s2, sxx, syy, sxy float64
+	// Two interleaved sets of sums: the additions of one element do not
+	// wait for those of the previous one.
+	var s1, s2, sxx, syy, sxy, t1, t2, txx, tyy, txy float64
 	xlo, xhi, ylo, yhi := x0, x0, y0, y0
-	for i := range n {
-		xi, yi := x[i], y[i]
+	i := 0
+	for ; i+2 <= n; i += 2 {
+		xi, yi, xj, yj := x[i], y[i], x[i+1], y[i+1]
 		// Range by comparisons: predictable branches, cheaper than |v| and max.
 		if xi > xhi {
 			xhi = xi
@@ -127,13 +131,30 @@ func checkedMoments(x, y []float64) (moments, Scale, error) {
 		} else if yi < ylo {
 			ylo = yi
 		}
-		dx, dy := xi-x0, yi-y0
-		s1 += dx
-		s2 += dy
-		sxx += dx * dx
-		syy += dy * dy
-		sxy += dx * dy
+		if xj > xhi {
+			xhi = xj
+		} else if xj < xlo {
+			xlo = xj
+		}
+		if yj > yhi {
+			yhi = yj
+		} else if yj < ylo {
+			ylo = yj
+		}
+		dx, dy, ex, ey := xi-x0, yi-y0, xj-x0, yj-y0
+		s1, t1 = s1+dx, t1+ex
+		s2, t2 = s2+dy, t2+ey
+		sxx, txx = sxx+dx*dx, txx+ex*ex
+		syy, tyy = syy+dy*dy, tyy+ey*ey
+		sxy, txy = sxy+dx*dy, txy+ex*ey
 	}
+	if i < n {
+		xi, yi := x[i], y[i]
+		xlo, xhi, ylo, yhi = math.Min(xlo, xi), math.Max(xhi, xi), math.Min(ylo, yi), math.Max(yhi, yi)
+		dx, dy := xi-x0, yi-y0
+		s1, s2, sxx, syy, sxy = s1+dx, s2+dy, sxx+dx*dx, syy+dy*dy, sxy+dx*dy
+	}
+	s1, s2, sxx, syy, sxy = s1+t1, s2+t2, sxx+txx, syy+tyy, sxy+txy
 	mx := math.Max(math.Abs(xlo), math.Abs(xhi))
 	my := math.Max(math.Abs(ylo), math.Abs(yhi))
 	if !(allFinite(s1, s2, sxx, syy, sxy, mx, my) && sxx > 0) || !inBand(mx) || !inBand(my) {
@@ -155,8 +176,9 @@ func shiftedResult(x, y []float64, x0, y0, sx, sy, sxx, syy, sxy float64) moment
 	fn := float64(len(x))
 	ax, ay := sx/fn, sy/fn
 	cx, cy := sx*ax, sy*ay // n·(x̄ − x₀)², the part the shift removes
-	m := moments{n: fn, mx: x0 + ax, my: y0 + ay,
-		sxx: math.Max(0, sxx-cx), syy: math.Max(0, syy-cy), sxy: sxy - sx*ay}
+	m := moments{n: fn, sxx: math.Max(0, sxx-cx), syy: math.Max(0, syy-cy), sxy: sxy - sx*ay}
+	m.mx, m.lx = twoSum(x0, ax)
+	m.my, m.ly = twoSum(y0, ay)
 	if cx > 4*m.sxx || cy > 4*m.syy {
 		return centredMoments(x, y)
 	}
@@ -182,18 +204,44 @@ func shiftedMoments(x, y []float64) moments {
 	return shiftedResult(x, y, x0, y0, sx, sy, sxx, syy, sxy)
 }
 
+// twoSum returns s = fl(a + b) and the rounding error a + b − s, exactly
+// (Knuth's TwoSum).
+func twoSum(a, b float64) (s, e float64) {
+	s = a + b
+	bb := s - a
+	return s, (a - (s - bb)) + (b - bb)
+}
+
+// dev returns v − (m + l): the deviation from a mean held in two parts,
+// which keeps its digits when the mean is far from 0 (v ~ 1e9, spread 1).
+func dev(v, m, l float64) float64 { return (v - m) - l }
+
 // residualSS returns Σ(e − ē)² of the residuals e = (y − ȳ) − b·(x − x̄)
 // about the centred data: a second pass that keeps its digits however close
 // the points lie to the line, where s_yy − 2b·s_xy + b²·s_xx from the
 // moments has a relative error of about ε/(1 − R²).
 func residualSS(x, y []float64, m moments, b float64) float64 {
-	y = y[:len(x)]
-	var se, see float64
-	for i := range x {
-		e := (y[i] - m.my) - b*(x[i]-m.mx)
-		se += e
-		see += e * e
+	n := len(x)
+	y = y[:n]
+	mx, my, lx, ly := m.mx, m.my, m.lx, m.ly
+	// Four independent accumulators: no chain of dependent additions (and
+	// a smaller rounding error than one running sum).
+	var s0, s1, s2, s3, q0, q1, q2, q3 float64
+	i := 0
+	for ; i+4 <= n; i += 4 {
+		e0 := ((y[i] - my) - ly) - b*((x[i]-mx)-lx)
+		e1 := ((y[i+1] - my) - ly) - b*((x[i+1]-mx)-lx)
+		e2 := ((y[i+2] - my) - ly) - b*((x[i+2]-mx)-lx)
+		e3 := ((y[i+3] - my) - ly) - b*((x[i+3]-mx)-lx)
+		s0, s1, s2, s3 = s0+e0, s1+e1, s2+e2, s3+e3
+		q0, q1, q2, q3 = q0+e0*e0, q1+e1*e1, q2+e2*e2, q3+e3*e3
 	}
+	for ; i < n; i++ {
+		e := ((y[i] - my) - ly) - b*((x[i]-mx)-lx)
+		s0 += e
+		q0 += e * e
+	}
+	se, see := (s0+s1)+(s2+s3), (q0+q1)+(q2+q3)
 	return math.Max(0, see-se*se/m.n)
 }
 
@@ -217,8 +265,8 @@ func centredMoments(x, y []float64) moments {
 		yy += dy * dy
 		xy += dx * dy
 	}
-	m.mx += cx / m.n
-	m.my += cy / m.n
+	m.mx, m.lx = twoSum(m.mx, cx/m.n)
+	m.my, m.ly = twoSum(m.my, cy/m.n)
 	m.sxx = xx - cx*cx/m.n
 	m.syy = yy - cy*cy/m.n
 	m.sxy = xy - cx*cy/m.n

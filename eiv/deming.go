@@ -231,11 +231,12 @@ func demingJackknife(x, y []float64, m moments, lambda, a, b, t, conf float64) (
 	k := m.n / (m.n - 1)
 	g := 1 / (m.n - 1)
 	for i := range n {
-		dx, dy := x[i]-m.mx, y[i]-m.my
+		dx, dy := dev(x[i], m.mx, m.lx), dev(y[i], m.my, m.ly)
 		_, _, _, delta, ok := demingStep(m, dx, dy, k, lambda, b)
-		var c float64
+		var c, d float64
 		if ok {
 			c = g * (delta*dx - (dy - b*dx))
+			d = c - delta*m.mx
 		} else {
 			mi := momentsWithout(x, y, i)
 			if !(mi.sxx > 0) || (mi.sxy == 0 && !math.IsInf(lambda, 1)) {
@@ -243,10 +244,13 @@ func demingJackknife(x, y []float64, m moments, lambda, a, b, t, conf float64) (
 			}
 			bi := demingSlope(mi.sxx, mi.syy, mi.sxy, lambda)
 			delta = bi - b
-			c = (mi.my - m.my) + bi*(m.mx-mi.mx)
+			c = ((mi.my - m.my) + (mi.ly - m.ly)) + bi*((m.mx-mi.mx)+(m.lx-mi.lx))
+			// The intercept directly: c − δ·x̄ would cancel when x̄ is
+			// far from the other points' mean; the rounding of a is common
+			// to every point and leaves the spread alone.
+			d = (mi.my - bi*mi.mx) - a
 		}
-		db[i], dc[i] = delta, c
-		da[i] = c - delta*m.mx
+		db[i], dc[i], da[i] = delta, c, d
 	}
 	return jackknifeDeltas(a, b, &Centre{X: m.mx, Y: m.my}, da, db, dc, t, conf)
 }
@@ -275,8 +279,8 @@ func momentsWithout(x, y []float64, skip int) moments {
 		yy += dy * dy
 		xy += dx * dy
 	}
-	m.mx += cx / fn
-	m.my += cy / fn
+	m.mx, m.lx = twoSum(m.mx, cx/fn)
+	m.my, m.ly = twoSum(m.my, cy/fn)
 	m.sxx, m.syy, m.sxy = xx-cx*cx/fn, yy-cy*cy/fn, xy-cx*cy/fn
 	return m
 }
@@ -593,13 +597,13 @@ func (wd *wDeming) jackknife(x, y []float64, a, b float64, c Centre, t, conf flo
 		copy(bx[i:], x[i+1:])
 		copy(by, y[:i])
 		copy(by[i:], y[i+1:])
-		_, bi, ci, _, err := wd.line(bx, by, a, b)
+		ai, bi, ci, _, err := wd.line(bx, by, a, b)
 		if err != nil {
 			return nil, fmt.Errorf("eiv: weighted_deming jackknife without point %d: %w", i+1, err)
 		}
 		db[i] = bi - b
 		dc[i] = (ci.Y - c.Y) + bi*(c.X-ci.X)
-		da[i] = dc[i] - db[i]*c.X
+		da[i] = ai - a
 	}
 	return jackknifeDeltas(a, b, &c, da, db, dc, t, conf)
 }
@@ -628,21 +632,22 @@ func (wd *wDeming) jackknifeFixedWeights(x, y []float64, a, b float64, c Centre,
 		_, _, _, delta, ok := demingStep(m, inv[i]*dx, inv[i]*dy, k, wd.lambda, b)
 		if ok {
 			dc[i] = w / (m.n - w) * (delta*dx - (dy - b*dx))
+			da[i] = dc[i] - delta*c.X
 		} else {
 			bx := append(append([]float64{}, x[:i]...), x[i+1:]...)
 			by := append(append([]float64{}, y[:i]...), y[i+1:]...)
-			_, bi, ci, _, err := wd.line(bx, by, a, b)
+			ai, bi, ci, _, err := wd.line(bx, by, a, b)
 			if err != nil {
 				return nil, fmt.Errorf("eiv: weighted_deming jackknife without point %d: %w", i+1, err)
 			}
 			delta = bi - b
 			dc[i] = (ci.Y - c.Y) + bi*(c.X-ci.X)
+			da[i] = ai - a
 			if err := wd.reweight(x, y, a, b); err != nil {
 				return nil, err
 			}
 		}
 		db[i] = delta
-		da[i] = dc[i] - delta*c.X
 	}
 	return jackknifeDeltas(a, b, &c, da, db, dc, t, conf)
 }
