@@ -234,7 +234,7 @@ func TestIssue12Reproducers(t *testing.T) {
 	c = cs["dominant point 1e8"]
 	ols := must(t)(eiv.OLS(c.x, c.y, nil))
 	dem = must(t)(eiv.Deming(c.x, c.y, &eiv.DemingOptions{Lambda: 1, Jackknife: true}))
-	within(t, "defect 2: ols jackknife se(slope)", ols.Jackknife.Slope.SE, 0.0045000082000004691, 1e-9)   // ref_exact_lines.py
+	within(t, "defect 2: ols jackknife se(slope)", ols.Jackknife.Slope.SE, 0.0045000082000004691, 1e-9)    // ref_exact_lines.py
 	within(t, "defect 2: deming jackknife se(slope)", dem.Jackknife.Slope.SE, 0.0024923600022343563, 1e-9) // ref_exact_lines.py
 	c = cs["dominant point 1e10"]
 	if _, err := eiv.OLS(c.x, c.y, nil); err != nil {
