@@ -43,7 +43,7 @@ var invMethods = []invMethod{
 	// properties now and joins the scale sweep when `pending` is removed.
 	{name: "york", translates: true, pending: "York's rescaling (issue 12, defect 4) lands in eiv/york.go",
 		pendingCentre: "York's Fit.Centre (issue 12, defect 3) is set in eiv/york.go",
-		fit: func(x, y, sx, sy, r []float64) (*eiv.Fit, error) { return eiv.York(x, y, sx, sy, r, nil) }},
+		fit:           func(x, y, sx, sy, r []float64) (*eiv.Fit, error) { return eiv.York(x, y, sx, sy, r, nil) }},
 }
 
 // gridData is randomData with y moved above 0 (for weighted Deming) and
