@@ -59,16 +59,18 @@ func LambdaFromUncertainties(sx, sy []float64) (float64, error) {
 	if err := checkSigma(sy, len(sy), "sy"); err != nil {
 		return 0, err
 	}
-	var vx, vy float64
+	// Sums of squares kept as scale²·ssq: σ of any magnitude validation
+	// accepts gives its ratio without over- or underflow.
+	var vx, vy sumSquares
 	for i := range sx {
-		vx += sx[i] * sx[i]
-		vy += sy[i] * sy[i]
+		vx.add(sx[i])
+		vy.add(sy[i])
 	}
-	if vx == 0 || vy == 0 {
+	if vx.scale == 0 || vy.scale == 0 {
 		return 0, &OptionError{Option: "lambda", Reason: "σx and σy must not all be zero to derive λ"}
 	}
-	l := vy / vx
-	if !allFinite(l) || l == 0 {
+	l, ok := vy.ratio(vx)
+	if !ok {
 		return 0, &OptionError{Option: "lambda", Reason: "the uncertainties give no finite ratio"}
 	}
 	return l, nil
@@ -81,16 +83,16 @@ func RelativeLambdaFromUncertainties(x, y, sx, sy []float64) (float64, error) {
 	if len(sx) != len(x) || len(sy) != len(y) || len(x) != len(y) {
 		return 0, ErrLengthMismatch
 	}
-	var vx, vy float64
+	var vx, vy sumSquares
 	for i := range x {
 		if x[i] == 0 || y[i] == 0 {
 			return 0, &PointError{Index: i, Field: "x", Err: ErrNonPositiveLevel}
 		}
-		vx += (sx[i] / x[i]) * (sx[i] / x[i])
-		vy += (sy[i] / y[i]) * (sy[i] / y[i])
+		vx.add(sx[i] / x[i])
+		vy.add(sy[i] / y[i])
 	}
-	l := vy / vx
-	if !allFinite(l) || !(l > 0) {
+	l, ok := vy.ratio(vx)
+	if !ok {
 		return 0, &OptionError{Option: "lambda", Reason: "the uncertainties give no finite ratio of relative variances"}
 	}
 	return l, nil

@@ -230,3 +230,23 @@ func permute(v []float64, p []int) []float64 {
 	}
 	return out
 }
+
+// λ from stated uncertainties of any magnitude validation accepts: the
+// ratio of mean squares is scale-free (σ·10^k for both gives the same λ,
+// σx·10^k alone gives λ·10^-2k). Exact arithmetic: λ = Σσy²/Σσx².
+func TestLambdaFromUncertaintiesScale(t *testing.T) {
+	sx, sy := []float64{1, 2, 2}, []float64{3, 0, 4} // Σσx² = 9, Σσy² = 25
+	for _, k := range []float64{-150, -100, 0, 100, 150} {
+		c := math.Pow(10, k)
+		l, err := eiv.LambdaFromUncertainties(scale(sx, c), scale(sy, c))
+		if err != nil {
+			t.Fatalf("10^%g: %v", k, err)
+		}
+		closeRel(t, fmt.Sprintf("λ at 10^%g", k), l, 25.0/9, 1e-14)
+	}
+	l, err := eiv.LambdaFromUncertainties(scale(sx, 1e120), sy)
+	if err != nil {
+		t.Fatal(err)
+	}
+	closeRel(t, "λ with σx·1e120", l, 25.0/9*1e-240, 1e-13)
+}
