@@ -91,6 +91,12 @@ type moments struct {
 	lx, ly   float64 // the parts of the means that mx and my cannot hold (x̄ = mx + lx)
 	sxx, syy float64 // Σ(x−x̄)², Σ(y−ȳ)²
 	sxy      float64 // Σ(x−x̄)(y−ȳ)
+	// Sums of the residuals r about a pilot slope (checkedMoments only):
+	// S_rr = Σ(r−r̄)², S_rx = Σ(r−r̄)(x−x̄), with hasPilot set.
+	pilot, srr, srx float64
+	srrErr, srxErr  float64 // bounds on the rounding errors of S_rr and S_rx
+	hasPilot        bool
+	centred         bool // recomputed in two passes about the means
 }
 
 // checkedMoments validates (x, y) as checkXY does and returns their
@@ -98,7 +104,12 @@ type moments struct {
 // Deming. A non-zero Scale (and no moments) says that the values lie
 // outside the band where squares and products of sums are safe: the caller
 // rescales the data by it and calls again.
-func checkedMoments(x, y []float64) (moments, Scale, error) {
+//
+// The same pass sums the residuals r = dy − b₀·dx about a pilot slope b₀
+// (the Deming slope of the first few points, λ as given), so that the
+// residual sum of squares of the final slope b follows without the
+// cancellation of s_yy − 2b·s_xy + b²·s_xx (see ssr).
+func checkedMoments(x, y []float64, lambda float64) (moments, Scale, error) {
 	if len(x) != len(y) {
 		return moments{}, Scale{}, ErrLengthMismatch
 	}
@@ -113,57 +124,100 @@ func checkedMoments(x, y []float64) (moments, Scale, error) {
 	}
 	// NaN or ±Inf anywhere makes the sums non-finite, and constant x makes
 	// sxx zero: both send the rare bad case to checkXY for its precise error.
-	// Two interleaved sets of sums: the additions of one element do not
-	// wait for those of the previous one.
-	var s1, s2, sxx, syy, sxy, t1, t2, txx, tyy, txy float64
-	xlo, xhi, ylo, yhi := x0, x0, y0, y0
-	i := 0
-	for ; i+2 <= n; i += 2 {
-		xi, yi, xj, yj := x[i], y[i], x[i+1], y[i+1]
-		// Range by comparisons: predictable branches, cheaper than |v| and max.
-		if xi > xhi {
-			xhi = xi
-		} else if xi < xlo {
-			xlo = xi
-		}
-		if yi > yhi {
-			yhi = yi
-		} else if yi < ylo {
-			ylo = yi
-		}
-		if xj > xhi {
-			xhi = xj
-		} else if xj < xlo {
-			xlo = xj
-		}
-		if yj > yhi {
-			yhi = yj
-		} else if yj < ylo {
-			ylo = yj
-		}
-		dx, dy, ex, ey := xi-x0, yi-y0, xj-x0, yj-y0
-		s1, t1 = s1+dx, t1+ex
-		s2, t2 = s2+dy, t2+ey
-		sxx, txx = sxx+dx*dx, txx+ex*ex
-		syy, tyy = syy+dy*dy, tyy+ey*ey
-		sxy, txy = sxy+dx*dy, txy+ex*ey
+	// Six running sums and nothing else, so that they stay in registers.
+	b0 := pilotSlope(x, y, x0, y0, lambda)
+	var s1, s2, sxx, syy, sxy, srr float64
+	for i := range n {
+		dx, dy := x[i]-x0, y[i]-y0
+		s1 += dx
+		s2 += dy
+		sxx += dx * dx
+		syy += dy * dy
+		sxy += dx * dy
+		r := dy - b0*dx
+		srr += r * r
 	}
-	if i < n {
-		xi, yi := x[i], y[i]
-		xlo, xhi, ylo, yhi = math.Min(xlo, xi), math.Max(xhi, xi), math.Min(ylo, yi), math.Max(yhi, yi)
-		dx, dy := xi-x0, yi-y0
-		s1, s2, sxx, syy, sxy = s1+dx, s2+dy, sxx+dx*dx, syy+dy*dy, sxy+dx*dy
+	fn := float64(n)
+	// The magnitudes from the sums: max|x| lies between
+	// max(|x₀|, √(Σdx²/n)/2) and |x₀| + √Σdx². Only when that does not
+	// settle the band is the largest value looked up.
+	inside := func(v0, ss float64) bool {
+		return math.Max(math.Abs(v0), math.Sqrt(ss/fn)/2) >= 0x1p-100 && math.Abs(v0)+math.Sqrt(ss) <= 0x1p100
 	}
-	s1, s2, sxx, syy, sxy = s1+t1, s2+t2, sxx+txx, syy+tyy, sxy+txy
-	mx := math.Max(math.Abs(xlo), math.Abs(xhi))
-	my := math.Max(math.Abs(ylo), math.Abs(yhi))
-	if !(allFinite(s1, s2, sxx, syy, sxy, mx, my) && sxx > 0) || !inBand(mx) || !inBand(my) {
+	if !(allFinite(s1, s2, sxx, syy, sxy, srr) && sxx > 0) || !inside(x0, sxx) || !inside(y0, syy) {
 		if err := checkXY(x, y); err != nil {
 			return moments{}, Scale{}, err
 		}
-		return moments{}, Scale{X: magnitude(x), Y: magnitude(y)}, nil
+		if !inBand(maxAbs(x)) || !inBand(maxAbs(y)) {
+			return moments{}, Scale{X: magnitude(x), Y: magnitude(y)}, nil
+		}
+		return centredMoments(x, y), Scale{}, nil
 	}
-	return shiftedResult(x, y, x0, y0, s1, s2, sxx, syy, sxy), Scale{}, nil
+	m := shiftedResult(x, y, x0, y0, s1, s2, sxx, syy, sxy)
+	if !m.centred {
+		// S_rr = Σ(r − r̄)² with r̄ = ȳ′ − b₀·x̄′, and S_rx = Σ(r − r̄)(dx − d̄x)
+		// from the moments.
+		rs := s2 - b0*s1
+		m.pilot, m.hasPilot = b0, true
+		m.srr = math.Max(0, srr-rs*rs/fn)
+		m.srx = m.sxy - b0*m.sxx
+		// Each r is rounded by about ε·(|dy| + |b₀·dx|), so Σr² is off by at
+		// most 2ε·√Σr²·√(2(Σdy² + b₀²·Σdx²)) (Cauchy–Schwarz); S_rx by about
+		// 2ε·(|Σdxdy| + |b₀|·Σdx²).
+		m.srrErr = 2 * 0x1p-53 * math.Sqrt(srr) * math.Sqrt(2*(syy+b0*b0*sxx))
+		m.srxErr = 2 * 0x1p-53 * (math.Abs(sxy) + math.Abs(b0)*sxx)
+	}
+	return m, Scale{}, nil
+}
+
+// pilotSlope is the Deming slope (λ = +Inf: OLS) of the first points,
+// shifted by (x0, y0); 0 when they do not determine one.
+func pilotSlope(x, y []float64, x0, y0, lambda float64) float64 {
+	var sx, sy, sxx, syy, sxy float64
+	k := min(len(x), 16)
+	for i := range k {
+		dx, dy := x[i]-x0, y[i]-y0
+		sx += dx
+		sy += dy
+		sxx += dx * dx
+		syy += dy * dy
+		sxy += dx * dy
+	}
+	fk := float64(k)
+	sxx -= sx * sx / fk
+	syy -= sy * sy / fk
+	sxy -= sx * sy / fk
+	if !(sxx > 0) || sxy == 0 {
+		return 0
+	}
+	b := demingSlope(sxx, syy, sxy, lambda)
+	if !allFinite(b) {
+		return 0
+	}
+	return b
+}
+
+// ssr returns the residual sum of squares Σ(e − ē)² of the line through
+// the means with slope b. From the pilot sums it is
+//
+//	S_rr − 2δ·S_rx + δ²·s_xx,  δ = b − b₀
+//
+// whose terms are all of the size of the result when b₀ is near b; when
+// they cancel (by more than a factor 64, so the result would keep less
+// than the moments' own accuracy), when the rounding of the residuals
+// about the pilot line could exceed 2^-40 of the result (a point far from
+// the first row), or when there is no pilot, the residuals are summed in a
+// second pass about the means (residualSS).
+func (m moments) ssr(x, y []float64, b float64) float64 {
+	if m.hasPilot {
+		d := b - m.pilot
+		t1, t2, t3 := m.srr, 2*d*m.srx, d*d*m.sxx
+		err := m.srrErr + 2*math.Abs(d)*m.srxErr
+		if v := t1 - t2 + t3; v > 0 && math.Abs(t1)+math.Abs(t2)+math.Abs(t3) <= 64*v && err <= 0x1p-40*v {
+			return v
+		}
+	}
+	return residualSS(x, y, m, b)
 }
 
 // shiftedResult turns sums of the values less (x0, y0) into moments. Their
@@ -180,7 +234,8 @@ func shiftedResult(x, y []float64, x0, y0, sx, sy, sxx, syy, sxy float64) moment
 	m.mx, m.lx = twoSum(x0, ax)
 	m.my, m.ly = twoSum(y0, ay)
 	if cx > 4*m.sxx || cy > 4*m.syy {
-		return centredMoments(x, y)
+		m = centredMoments(x, y)
+		m.centred = true
 	}
 	return m
 }

@@ -117,7 +117,7 @@ func Deming(x, y []float64, opt *DemingOptions) (*Fit, error) {
 	if err != nil {
 		return nil, err
 	}
-	m, sc, err := checkedMoments(x, y)
+	m, sc, err := checkedMoments(x, y, lambda)
 	if err != nil {
 		return nil, err
 	}
@@ -159,7 +159,7 @@ func demingFit(x, y []float64, m moments, lambda, conf float64, jack bool) (*Fit
 	//	V(a) = σ_vv/n + x̄²·V(b)
 	// (the second form has no squares of moments, and λ = +Inf is OLS).
 	// ŷ(x̄) = ȳ has variance σ_vv/n and no covariance with b.
-	ssr := residualSS(x, y, m, b)
+	ssr := m.ssr(x, y, b)
 	svv := ssr / float64(df)
 	suu := svv / (lambda + b*b)
 	sxxTrue := m.sxx/float64(n-1) - float64(df)*suu/float64(n-1)
@@ -169,14 +169,19 @@ func demingFit(x, y []float64, m moments, lambda, conf float64, jack bool) (*Fit
 	varB := svv / (float64(n-1) * sxxTrue) * (1 + suu/(sxxTrue*(1+b*b/lambda)))
 	varA := svv/float64(n) + m.mx*m.mx*varB
 	t := tQuantile(conf, df)
-	f := &Fit{
+	fc := &struct { // the fit and its centre in one allocation
+		f Fit
+		c Centre
+	}{c: Centre{X: m.mx, Y: m.my, SE: math.Sqrt(svv / float64(n))}}
+	f := &fc.f
+	*f = Fit{
 		Method:            MethodDeming,
 		N:                 n,
 		Confidence:        conf,
 		Slope:             estimate(b, math.Sqrt(varB), t, conf, "t"),
 		Intercept:         estimate(a, math.Sqrt(varA), t, conf, "t"),
 		CovSlopeIntercept: -m.mx * varB,
-		Centre:            &Centre{X: m.mx, Y: m.my, SE: math.Sqrt(svv / float64(n))},
+		Centre:            &fc.c,
 		ResidualSD:        math.Sqrt(svv),
 		Lambda:            lambda,
 		DOF:               df,

@@ -184,19 +184,19 @@ func allFinite(v ...float64) bool {
 // infinity anywhere (slopes near the double limits, a degenerate
 // jackknife) is an error, never an answer.
 func (f *Fit) finite() error {
-	vals := []float64{f.Slope.Value, f.Slope.SE, f.Slope.SEScaled, f.Slope.CI.Lower, f.Slope.CI.Upper,
+	ok := allFinite(f.Slope.Value, f.Slope.SE, f.Slope.SEScaled, f.Slope.CI.Lower, f.Slope.CI.Upper,
 		f.Intercept.Value, f.Intercept.SE, f.Intercept.SEScaled, f.Intercept.CI.Lower, f.Intercept.CI.Upper,
-		f.CovSlopeIntercept, f.ResidualSD, f.RSquared, f.Lambda, f.Chi2, f.MSWD, f.PValue}
+		f.CovSlopeIntercept, f.ResidualSD, f.RSquared, f.Lambda, f.Chi2, f.MSWD, f.PValue)
 	if j := f.Jackknife; j != nil {
-		vals = append(vals, j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE, j.Intercept.CI.Lower, j.Intercept.CI.Upper, j.Cov)
+		ok = ok && allFinite(j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE, j.Intercept.CI.Lower, j.Intercept.CI.Upper, j.Cov)
 		if c := j.Centre; c != nil {
-			vals = append(vals, c.X, c.Y, c.SE, c.Cov)
+			ok = ok && allFinite(c.X, c.Y, c.SE, c.Cov)
 		}
 	}
 	if c := f.Centre; c != nil {
-		vals = append(vals, c.X, c.Y, c.SE, c.Cov)
+		ok = ok && allFinite(c.X, c.Y, c.SE, c.Cov)
 	}
-	if !allFinite(vals...) {
+	if !ok {
 		return fmt.Errorf("%w: %s's result leaves the double-precision range", ErrDegenerate, f.Method)
 	}
 	return nil

@@ -26,17 +26,24 @@ const safeExp = 100
 func magnitude(cols ...[]float64) int {
 	var m float64
 	for _, c := range cols {
-		for _, v := range c {
-			if a := math.Abs(v); a > m {
-				m = a
-			}
-		}
+		m = math.Max(m, maxAbs(c))
 	}
 	if m == 0 || math.IsInf(m, 0) || math.IsNaN(m) {
 		return 0
 	}
 	_, e := math.Frexp(m)
 	return e
+}
+
+// maxAbs returns the largest |v| (NaN and ±Inf are not expected here).
+func maxAbs(v []float64) float64 {
+	var m float64
+	for _, x := range v {
+		if a := math.Abs(x); a > m {
+			m = a
+		}
+	}
+	return m
 }
 
 // inBand says whether a column whose largest magnitude is m can be used
