@@ -108,8 +108,9 @@ func RelativeLambdaFromUncertainties(x, y, sx, sy []float64) (float64, error) {
 // Theorem 1.3.1) large-sample ones; with Jackknife set, Fit.Jackknife holds
 // the leave-one-out standard errors and intervals (Linnet 1990). Intervals
 // use t with n−2 df. The moments come from one pass over the data (two when
-// the first row lies far from the rest), the residual sum of squares from
-// a pass over the residuals. Values outside [2^-100, 2^100] in magnitude are
+// the first row lies far from the rest); the residual sum of squares from
+// the same pass, about a pilot slope, or from a pass over the residuals when
+// that would lose digits (see moments.ssr). Values outside [2^-100, 2^100] in magnitude are
 // fitted in units rescaled by powers of two (see Scale), so any data that
 // pass validation are fitted.
 func Deming(x, y []float64, opt *DemingOptions) (*Fit, error) {
