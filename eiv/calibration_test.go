@@ -488,16 +488,18 @@ func TestCalibrationReplicates(t *testing.T) {
 		if r.Basis != wantBasis[i] || r.YDOF != wantYDOF[i] {
 			t.Errorf("unknown %d: basis %s ν %g, want %s %g", i, r.Basis, r.YDOF, wantBasis[i], wantYDOF[i])
 		}
-		// Welch–Satterthwaite by hand from the budget.
-		var v, ws float64
-		for _, b := range r.Budget {
-			q := b.Contribution * b.Contribution
-			v += q
-			if !math.IsInf(b.DOF, 1) {
-				ws += q * q / b.DOF
-			}
+		// Welch–Satterthwaite by hand from the budget: the line's two lines
+		// (one pooled variance estimate, ν = 9) as one term, the reading's.
+		ql := r.Budget[0].Contribution*r.Budget[0].Contribution + r.Budget[1].Contribution*r.Budget[1].Contribution
+		qr := r.Budget[2].Contribution * r.Budget[2].Contribution
+		ws := ql * ql / float64(df)
+		if !math.IsInf(wantYDOF[i], 1) {
+			ws += qr * qr / wantYDOF[i]
 		}
-		nu := v * v / ws
+		nu := (ql + qr) * (ql + qr) / ws
+		if wantBasis[i] == eiv.BasisPooled {
+			nu = float64(df) // one pooled variance estimate behind line and reading
+		}
 		near(t, "ν_eff", r.DOF, nu, 1e-12)
 		k := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: math.Floor(nu)}.Quantile(0.975)
 		near(t, "k", r.K, k, 1e-12)

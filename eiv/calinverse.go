@@ -61,8 +61,11 @@ type InverseResult struct {
 	Budget []Contribution
 	// ULine and UReading split u(x₀): ULine² + UReading² = u²(x₀).
 	ULine, UReading float64
-	// DOF is ν_eff by the Welch–Satterthwaite formula (JCGM 100 G.4.1),
-	// +Inf when every input's ν is infinite.
+	// DOF is ν_eff by the Welch–Satterthwaite formula (JCGM 100 G.4.1)
+	// over the line (ULine, LineDOF) and the reading (UReading, YDOF), +Inf
+	// when both ν are infinite. The line's two budget lines share one
+	// variance estimate and so enter as one term; when the reading's u is
+	// the pooled SD that the line also rests on, ν_eff is the pooled ν.
 	DOF float64
 	// K is the coverage factor; CoverageProbability is p when K came from
 	// it, else zero.
@@ -140,22 +143,30 @@ func (c *Calibration) inverseOne(u Unknown, k, p float64) (InverseResult, error)
 	cb := Contribution{Source: "slope", Sensitivity: -dx / b, U: c.Slope.U, DOF: c.LineDOF}
 	cr := Contribution{Source: "reading", Sensitivity: 1 / b, U: r.Y.U, DOF: r.YDOF}
 	r.Budget = []Contribution{cl, cb, cr}
-	var v, ws float64
 	for i := range r.Budget {
 		ci := &r.Budget[i]
 		ci.Contribution = math.Abs(ci.Sensitivity) * ci.U
-		q := ci.Contribution * ci.Contribution
-		v += q
-		if !math.IsInf(ci.DOF, 1) {
-			ws += q * q / ci.DOF
-		}
 	}
-	ux := math.Sqrt(v)
-	r.X = UValue{x0, ux}
 	r.ULine = math.Hypot(r.Budget[0].Contribution, r.Budget[1].Contribution)
 	r.UReading = r.Budget[2].Contribution
+	ux := math.Hypot(r.ULine, r.UReading)
+	r.X = UValue{x0, ux}
+	// Welch–Satterthwaite over the two independent variance estimates: the
+	// line's two contributions come from one estimate (the same pooled SD or
+	// Birge ratio), so they enter as one term with the line's ν.
+	// When the reading's u is the standards' pooled SD and so is the
+	// line's, the whole variance is one scaled χ² on the pooled ν.
+	var ws float64
+	if q := r.ULine * r.ULine; !math.IsInf(c.LineDOF, 1) {
+		ws += q * q / c.LineDOF
+	}
+	if q := r.UReading * r.UReading; !math.IsInf(r.YDOF, 1) {
+		ws += q * q / r.YDOF
+	}
 	r.DOF = math.Inf(1)
-	if ws > 0 {
+	if v := ux * ux; r.Basis == BasisPooled && c.LineDOF == float64(c.PooledDOF) && c.Validation.Scale == 1 {
+		r.DOF = float64(c.PooledDOF)
+	} else if ws > 0 {
 		r.DOF = v * v / ws
 	}
 	r.K = k

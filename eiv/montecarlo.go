@@ -205,14 +205,29 @@ func (d *mcDraw) fill(rng *rand.Rand, out []float64) {
 // polar method (Bailey, R. W. (1994). Polar generation of random variates
 // with the t-distribution. Math. Comp. 62:779–781): (U, V) uniform in the
 // unit disc, W = U² + V², T = U·√(ν·(W^(−2/ν) − 1)/W).
+//
+// W^(−2/ν) − 1 is written without logarithms for the ν of two to five
+// readings: (1 − W²)/W² for ν = 1, (1 − W)/W for ν = 2, 1/√W − 1 for ν = 4.
 func studentT(rng *rand.Rand, nu float64) float64 {
 	for {
 		u := 2*rng.Float64() - 1
 		v := 2*rng.Float64() - 1
 		w := u*u + v*v
-		if w > 0 && w < 1 {
-			return u * math.Sqrt(nu*math.Expm1(-2/nu*math.Log(w))/w)
+		if !(w > 0 && w < 1) {
+			continue
 		}
+		var g float64 // W^(−2/ν) − 1
+		switch nu {
+		case 1:
+			g = (1 - w) * (1 + w) / (w * w)
+		case 2:
+			g = (1 - w) / w
+		case 4:
+			g = 1/math.Sqrt(w) - 1
+		default:
+			g = math.Expm1(-2 / nu * math.Log(w))
+		}
+		return u * math.Sqrt(nu*g/w)
 	}
 }
 
