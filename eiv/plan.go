@@ -225,9 +225,10 @@ type planConfig struct {
 // Bias intervals: Deming and weighted Deming use Fit.At (Fuller's
 // large-sample SEs; weighted Deming's jackknife), t on n−2 df.
 // Passing–Bablok has no slope–intercept covariance; its bias interval is
-// its intercept interval moved to X_c: the bias median{y − b·(x − X_c)} − X_c
-// at the two ends b_L, b_U of the slope interval (a design of ours; at
-// X_c = 0 it is the paper's intercept interval).
+// the jackknife's (JackknifeLines, JackknifeAt: t on n−2 df), as the
+// method-comparison study reports it, and its slope and intercept tests use
+// the paper's rank intervals. Each trial refits n leave-one-out samples,
+// so Passing–Bablok plans are bounded at n = 200.
 //
 // Trials run on Workers goroutines and honour ctx; cancellation returns
 // ctx's error.
@@ -416,7 +417,7 @@ func planValidate(opt *PlanOptions) (*planConfig, error) {
 		return nil, bad("estimator", "must be deming, weighted_deming or passing_bablok")
 	}
 	if o.Estimator == MethodPassingBablok {
-		maxN = 5000
+		maxN = 200
 	}
 	c.trials = o.Trials
 	if c.trials == 0 {
@@ -728,10 +729,18 @@ func (c *planConfig) trial(d Difference, x, y []float64, out *trialOut) {
 			return
 		}
 		a, b = r.Fit.Intercept, r.Fit.Slope
+		jl, err := JackknifeLines(Sample{X: x, Y: y}, []Estimator{PassingBablokEstimator{}})
+		if err != nil {
+			return
+		}
+		loo := make([]Line, len(jl))
+		for i, l := range jl {
+			loo[i] = l[0]
+		}
+		full := Line{Intercept: a.Value, Slope: b.Value}
 		at = func(x0 float64) (float64, float64) {
-			u := pbBiasAt(x, y, b.CI.Lower, x0)
-			v := pbBiasAt(x, y, b.CI.Upper, x0)
-			return math.Min(u, v), math.Max(u, v)
+			ci := JackknifeAt(full, loo, x0, c.conf).Bias.CI
+			return ci.Lower, ci.Upper
 		}
 	}
 	if !allFinite(a.CI.Lower, a.CI.Upper, b.CI.Lower, b.CI.Upper) {
@@ -758,16 +767,6 @@ func (c *planConfig) trial(d Difference, x, y []float64, out *trialOut) {
 		tbias := d.bias(lv.X)
 		out.cover[j] = lo <= tbias && tbias <= hi
 	}
-}
-
-// pbBiasAt is median{y − b·(x − x0)} − x0, the Passing–Bablok bias at x0
-// for slope b.
-func pbBiasAt(x, y []float64, b, x0 float64) float64 {
-	r := make([]float64, len(x))
-	for i := range x {
-		r[i] = y[i] - b*(x[i]-x0)
-	}
-	return median(r) - x0
 }
 
 // met says whether size n meets the target in every scenario it applies to.
