@@ -546,8 +546,7 @@ func (c *planConfig) spreadMoments() (m1, m2, inv2 float64) {
 // would state λ before knowing it). Weighted Deming: the same for the
 // squared relative errors, E[σ²/τ²] = CV² + SD²·E[1/τ²].
 func (c *planConfig) planLambda() float64 {
-	m1, m2, inv2 := c.spreadMoments()
-	_ = m1
+	_, m2, inv2 := c.spreadMoments()
 	kx, ky := float64(c.kx), float64(c.ky)
 	switch c.o.Estimator {
 	case MethodDeming:
