@@ -135,6 +135,12 @@ func TestCompareRecoversKnownBias(t *testing.T) {
 	if 0.97 < w.Slope.CI.Lower || 0.97 > w.Slope.CI.Upper {
 		t.Errorf("weighted Deming slope CI %+v misses 0.97", w.Slope.CI)
 	}
+	// Its residual SD is relative: means of duplicates with CV 3 % have
+	// CV 2.1 % on each axis, so the vertical relative residual is about
+	// √(0.021² + 0.97²·0.021²) ≈ 0.03 (generous bounds for n = 100).
+	if w.ResidualSD == nil || *w.ResidualSD < 0.02 || *w.ResidualSD > 0.045 {
+		t.Errorf("weighted Deming relative residual SD %v, want about 0.03", w.ResidualSD)
+	}
 }
 
 // syntheticStudy writes a JSON comparison request: true x log-uniform on

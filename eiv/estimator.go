@@ -47,12 +47,7 @@ func (OLSEstimator) TruePoints(s Sample, a, b float64, xh, yh []float64) {
 type olsFitter struct{}
 
 func (olsFitter) FitLine(s Sample) (float64, float64, error) {
-	m := shiftedMoments(s.X, s.Y)
-	if !(m.sxx > 0) {
-		return 0, 0, ErrConstantX
-	}
-	b := m.sxy / m.sxx
-	return m.my - b*m.mx, b, nil
+	return demingFitter{math.Inf(1)}.FitLine(s)
 }
 
 // DemingEstimator is Deming regression with error-variance ratio Lambda.
@@ -77,15 +72,42 @@ func adjustDeming(x, y []float64, a, b, lambda float64, xh, yh []float64) {
 
 type demingFitter struct{ lambda float64 }
 
+// FitLine fits the line from one-pass moments; when they over- or
+// underflow (values outside the safe band of Scale) it fits the sample
+// rescaled by powers of two instead, allocating the rescaled copy.
 func (f demingFitter) FitLine(s Sample) (float64, float64, error) {
 	m := shiftedMoments(s.X, s.Y)
+	if !allFinite(m.sxx, m.syy, m.sxy, m.mx, m.my) || m.sxx < 0x1p-800 || m.syy > 0x1p800 || m.sxx > 0x1p800 {
+		sc := Scale{X: magnitude(s.X), Y: magnitude(s.Y)}
+		if sc.IsZero() || !finiteColumns(s.X, s.Y) {
+			return lineFrom(m, f.lambda)
+		}
+		a, b, err := lineFrom(centredMoments(sc.ScaleX(s.X), sc.ScaleY(s.Y)), sc.Lambda(f.lambda))
+		return math.Ldexp(a, sc.Y), math.Ldexp(b, sc.Y-sc.X), err
+	}
+	return lineFrom(m, f.lambda)
+}
+
+func finiteColumns(cols ...[]float64) bool {
+	for _, c := range cols {
+		for _, v := range c {
+			if !(v-v == 0) {
+				return false
+			}
+		}
+	}
+	return true
+}
+
+// lineFrom returns the Deming line (λ = +Inf: OLS) of moments m.
+func lineFrom(m moments, lambda float64) (float64, float64, error) {
 	if !(m.sxx > 0) {
 		return 0, 0, ErrConstantX
 	}
-	if m.sxy == 0 {
+	if m.sxy == 0 && !math.IsInf(lambda, 1) {
 		return 0, 0, ErrDegenerate
 	}
-	b := demingSlope(m.sxx, m.syy, m.sxy, f.lambda)
+	b := demingSlope(m.sxx, m.syy, m.sxy, lambda)
 	a := m.my - b*m.mx
 	if !allFinite(a, b) {
 		return 0, 0, ErrDegenerate
@@ -119,7 +141,7 @@ func (f wdFitter) FitLine(s Sample) (float64, float64, error) {
 	if !(centredMoments(s.X, s.Y).sxx > 0) {
 		return 0, 0, ErrConstantX
 	}
-	a, b, _, err := f.wd.line(s.X, s.Y, 0, math.NaN())
+	a, b, _, _, err := f.wd.line(s.X, s.Y, 0, math.NaN())
 	return a, b, err
 }
 

@@ -57,13 +57,20 @@ type Fit struct {
 	Slope, Intercept Estimate
 	// CovSlopeIntercept is cov(slope, intercept) on the same basis as the SEs.
 	CovSlopeIntercept float64
+	// Centre is the line at a central abscissa with its uncertainty on the
+	// same basis as the SEs, from which predictions are formed without the
+	// cancellation of var(a) + x0²·var(b) + 2·x0·cov(a, b) far from the
+	// origin. Nil when the method states none (At then uses that form).
+	Centre *Centre
 	// Confidence is the nominal level of every interval in the fit.
 	Confidence float64
 
 	// ResidualSD is √(Σe²/(n−2)) of the vertical residuals e = y − a − b·x
-	// (ols, deming, weighted_deming; for weighted_deming the residuals are weighted).
+	// (ols, deming, weighted_deming). For weighted_deming the residuals are
+	// weighted by 1/level, e_i/((x̂_i + ŷ_i)/2), so ResidualSD is a relative
+	// SD (dimensionless, a coefficient of variation).
 	ResidualSD float64
-	// RSquared is the coefficient of determination (ols).
+	// RSquared is the coefficient of determination (ols), in [0, 1].
 	RSquared float64
 	// Lambda is the error-variance ratio var(y error)/var(x error) used
 	// (deming, weighted_deming; for weighted_deming the ratio of relative variances).
@@ -97,6 +104,23 @@ type Jackknife struct {
 	// Pseudo holds the leave-one-out slopes and intercepts (length N each),
 	// used for BCa acceleration. Nil when not kept.
 	SlopeLOO, InterceptLOO []float64
+	// Centre is the jackknife's uncertainty of the line at a central
+	// abscissa and its covariance with the slope (nil when not computed).
+	Centre *Centre
+}
+
+// Centre is a fitted line seen from a central abscissa X (the mean of x
+// for OLS and Deming, the weighted mean for weighted Deming):
+//
+//	ŷ(x0) = Y + b·(x0 − X)
+//	var ŷ(x0) = SE² + 2·(x0 − X)·Cov + (x0 − X)²·var(b)
+//
+// Every term is small where the data are, so the form keeps its digits
+// when x is far from 0 (x ~ 1e9 with a spread of 1).
+type Centre struct {
+	X, Y float64
+	SE   float64 // standard error of ŷ(X)
+	Cov  float64 // cov(ŷ(X), b); 0 for OLS and Deming at the mean of x
 }
 
 // DefaultConfidence is the confidence level used when an option leaves it zero.
@@ -163,13 +187,19 @@ func allFinite(v ...float64) bool {
 // infinity anywhere (slopes near the double limits, a degenerate
 // jackknife) is an error, never an answer.
 func (f *Fit) finite() error {
-	vals := []float64{f.Slope.Value, f.Slope.SE, f.Slope.SEScaled, f.Slope.CI.Lower, f.Slope.CI.Upper,
+	ok := allFinite(f.Slope.Value, f.Slope.SE, f.Slope.SEScaled, f.Slope.CI.Lower, f.Slope.CI.Upper,
 		f.Intercept.Value, f.Intercept.SE, f.Intercept.SEScaled, f.Intercept.CI.Lower, f.Intercept.CI.Upper,
-		f.CovSlopeIntercept, f.ResidualSD, f.RSquared, f.Lambda, f.Chi2, f.MSWD, f.PValue}
+		f.CovSlopeIntercept, f.ResidualSD, f.RSquared, f.Lambda, f.Chi2, f.MSWD, f.PValue)
 	if j := f.Jackknife; j != nil {
-		vals = append(vals, j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE, j.Intercept.CI.Lower, j.Intercept.CI.Upper, j.Cov)
+		ok = ok && allFinite(j.Slope.SE, j.Slope.CI.Lower, j.Slope.CI.Upper, j.Intercept.SE, j.Intercept.CI.Lower, j.Intercept.CI.Upper, j.Cov)
+		if c := j.Centre; c != nil {
+			ok = ok && allFinite(c.X, c.Y, c.SE, c.Cov)
+		}
 	}
-	if !allFinite(vals...) {
+	if c := f.Centre; c != nil {
+		ok = ok && allFinite(c.X, c.Y, c.SE, c.Cov)
+	}
+	if !ok {
 		return fmt.Errorf("%w: %s's result leaves the double-precision range", ErrDegenerate, f.Method)
 	}
 	return nil

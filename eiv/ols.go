@@ -1,6 +1,9 @@
 package eiv
 
-import "math"
+import (
+	"fmt"
+	"math"
+)
 
 // Options are the settings shared by every estimator. A nil *Options means
 // the defaults.
@@ -20,7 +23,8 @@ func (o *Options) confidence() (float64, error) {
 // OLS fits y = a + b·x by ordinary least squares of y on x, treating x as
 // exact. Standard errors are the classical ones, from the residual variance
 // with n−2 degrees of freedom; intervals use Student's t with n−2 df.
-// Fit.Jackknife holds the leave-one-out standard errors.
+// Fit.Jackknife holds the leave-one-out standard errors. Values outside
+// [2^-100, 2^100] in magnitude are fitted in rescaled units (see Scale).
 func OLS(x, y []float64, opt *Options) (*Fit, error) {
 	conf, err := opt.confidence()
 	if err != nil {
@@ -29,16 +33,14 @@ func OLS(x, y []float64, opt *Options) (*Fit, error) {
 	if err := checkXY(x, y); err != nil {
 		return nil, err
 	}
-	m := centredMoments(x, y)
+	sc := ScaleFor(x, y, nil, nil)
+	xs, ys := sc.ScaleX(x), sc.ScaleY(y)
+	m := centredMoments(xs, ys)
 	b := m.sxy / m.sxx
 	a := m.my - b*m.mx
 	// Residual sum of squares, summed directly from the residuals rather than
 	// as syy − b·sxy, which cancels badly for a near-perfect fit.
-	var ssr float64
-	for i := range x {
-		e := y[i] - m.my - b*(x[i]-m.mx)
-		ssr += e * e
-	}
+	ssr := residualSS(xs, ys, m, b)
 	df := len(x) - 2
 	s2 := ssr / float64(df)
 	varB := s2 / m.sxx
@@ -49,25 +51,30 @@ func OLS(x, y []float64, opt *Options) (*Fit, error) {
 		Confidence:        conf,
 		ResidualSD:        math.Sqrt(s2),
 		CovSlopeIntercept: -m.mx * varB,
+		Centre:            &Centre{X: m.mx, Y: m.my, SE: math.Sqrt(s2 / m.n)},
 		DOF:               df,
 		Converged:         true,
+		RSquared:          1,
 	}
 	if m.syy > 0 {
-		f.RSquared = 1 - ssr/m.syy
-	} else {
-		f.RSquared = 1
+		// In [0, 1]: the rounding of 1 − ssr/s_yy can otherwise give −2e-16.
+		f.RSquared = math.Min(1, math.Max(0, 1-ssr/m.syy))
 	}
 	t := tQuantile(conf, df)
 	f.Slope = estimate(b, math.Sqrt(varB), t, conf, "t")
 	f.Intercept = estimate(a, math.Sqrt(varA), t, conf, "t")
 	if !allFinite(a, b, varA, varB, f.CovSlopeIntercept) {
-		return nil, ErrDegenerate
+		return nil, fmt.Errorf("%w: the line's slope or its variance leaves the double-precision range", ErrDegenerate)
 	}
-	f.Jackknife = demingJackknife(x, y, m, math.Inf(1), a, b, t, conf)
-	if ssr == 0 {
-		f.Warnings = append(f.Warnings, &Warning{Code: WarnPerfectFit,
-			Message: "the points lie exactly on a line: standard errors are zero"})
+	if jk, err := demingJackknife(xs, ys, m, math.Inf(1), a, b, t, conf); err != nil {
+		f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: "ols: no jackknife: " + trimPrefix(err.Error())})
+	} else {
+		f.Jackknife = jk
 	}
+	if w := perfectFit(ssr, m, b); w != nil {
+		f.Warnings = append(f.Warnings, w)
+	}
+	sc.Unscale(f, false)
 	if err := f.finite(); err != nil {
 		return nil, err
 	}

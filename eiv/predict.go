@@ -8,8 +8,10 @@ import (
 // Prediction is the fitted value and the bias against identity at one x.
 type Prediction struct {
 	X float64
-	// Y is ŷ(x0) = a + b·x0 with
-	//	se² = var(a) + x0²·var(b) + 2·x0·cov(a, b)
+	// Y is ŷ(x0) = a + b·x0, with its SE formed about the fit's centre X
+	// (Centre):
+	//	se² = SE_c² + 2·(x0 − X)·cov(ŷ(X), b) + (x0 − X)²·var(b)
+	// (var(a) + x0²·var(b) + 2·x0·cov(a, b) when the fit states no centre)
 	// and an interval with the fit's own critical value.
 	Y Estimate
 	// Bias is D(x0) = a + (b − 1)·x0 = ŷ(x0) − x0, the systematic
@@ -18,21 +20,26 @@ type Prediction struct {
 }
 
 // At returns the prediction and bias at x0 from the fit's analytic
-// covariance (the jackknife's for weighted_deming).
+// covariance (the jackknife's for weighted_deming), in the centred form
+// that keeps its digits far from the origin.
 func (f *Fit) At(x0 float64) Prediction {
-	a, b := f.Intercept.Value, f.Slope.Value
-	v := f.Intercept.SE*f.Intercept.SE + x0*x0*f.Slope.SE*f.Slope.SE + 2*x0*f.CovSlopeIntercept
+	b, vb := f.Slope.Value, f.Slope.SE*f.Slope.SE
+	c := f.Centre
+	if c == nil {
+		c = &Centre{Y: f.Intercept.Value, SE: f.Intercept.SE, Cov: f.CovSlopeIntercept}
+	}
+	h := x0 - c.X
+	v := c.SE*c.SE + h*(2*c.Cov+h*vb)
 	se := math.Sqrt(math.Max(v, 0))
 	crit := 0.0
 	if f.Slope.SE > 0 {
 		crit = (f.Slope.CI.Upper - f.Slope.CI.Lower) / (2 * f.Slope.SE)
 	}
-	y := a + b*x0
-	p := Prediction{X: x0,
+	y := c.Y + b*h
+	return Prediction{X: x0,
 		Y:    Estimate{Value: y, SE: se, CI: symmetric(y, crit*se, f.Confidence, f.Slope.CI.Method)},
 		Bias: Estimate{Value: y - x0, SE: se, CI: symmetric(y-x0, crit*se, f.Confidence, f.Slope.CI.Method)},
 	}
-	return p
 }
 
 // Band returns the lower and upper confidence limits of the fitted line at

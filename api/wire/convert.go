@@ -133,7 +133,7 @@ func methodFit(m *study.MethodResult) *MethodFit {
 	case eiv.MethodDeming:
 		out.ResidualSD = ptr(f.ResidualSD)
 	case eiv.MethodWeightedDeming:
-		out.Iterations = ptr(f.Iterations)
+		out.ResidualSD, out.Iterations = ptr(f.ResidualSD), ptr(f.Iterations)
 	case eiv.MethodYork:
 		out.Slope.SEScaled, out.Intercept.SEScaled = ptr(f.Slope.SEScaled), ptr(f.Intercept.SEScaled)
 		out.Chi2, out.MSWD, out.PValue = ptr(f.Chi2), ptr(f.MSWD), ptr(f.PValue)

@@ -1,0 +1,305 @@
+package eiv
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"math/bits"
+	"math/rand/v2"
+	"runtime"
+	"slices"
+	"sync"
+	"sync/atomic"
+)
+
+// MonteCarloOptions are the settings of Calibration.MonteCarlo. A nil
+// pointer means the defaults.
+type MonteCarloOptions struct {
+	// Trials is the number of Monte Carlo trials M. Zero means 10⁶ (JCGM
+	// 101:2008 §7.2.1: often adequate for a 95 % coverage interval correct to
+	// one or two significant digits). At most 10⁸.
+	Trials int
+	// Seed fixes the random streams: block j of MonteCarloBlock trials draws
+	// only from PCG(Seed, j), so the result is the same bit for bit for any
+	// number of workers.
+	Seed uint64
+	// CoverageProbability p of the coverage interval. Zero means 0.95.
+	CoverageProbability float64
+	// Digits is the number of significant digits of u(x₀) that the
+	// validation holds the linear result to (JCGM 101 §8.2, n_dig). Zero
+	// means 2.
+	Digits int
+	// Workers is the number of goroutines. Zero means GOMAXPROCS.
+	Workers int
+}
+
+// MonteCarloBlock is the number of trials drawn from one random stream.
+const MonteCarloBlock = 1 << 14
+
+// MonteCarloResult is the distribution of x₀ by Monte Carlo (JCGM 101:2008).
+type MonteCarloResult struct {
+	Trials int
+	Seed   uint64
+	// Mean and SD of the M values of x₀ (the estimate and its standard
+	// uncertainty, JCGM 101 §7.6).
+	Mean, SD float64
+	// CoverageProbability p and the shortest coverage interval [Lower,
+	// Upper] holding a fraction p of the values (JCGM 101 §7.7.2).
+	CoverageProbability float64
+	Lower, Upper        float64
+	// LinearLower and LinearUpper are the law-of-propagation interval at the
+	// same p, x₀ ∓ k_p·u(x₀) with k_p from ν_eff (JCGM 101 §8.1).
+	LinearLower, LinearUpper float64
+	// Tolerance is δ = ½·10^l with u(x₀) written as c·10^l, c an integer of
+	// Digits digits; DLow = |LinearLower − Lower|, DHigh = |LinearUpper −
+	// Upper|. Validated says both are at most δ (JCGM 101 §8.2): the linear
+	// result is then valid at that numerical tolerance.
+	Tolerance   float64
+	DLow, DHigh float64
+	Validated   bool
+	// Warnings: WarnMonteCarloDiff when not validated.
+	Warnings []error
+}
+
+// MonteCarlo propagates the distributions of the line and of the unknown's
+// mean reading to x₀ = XRef + (ȳ₀ − YRef)/b (JCGM 101:2008 §5–7):
+//
+//   - (YRef, b), the line in its centred form, bivariate normal with the
+//     line's covariance (uncorrelated in that form);
+//   - ȳ₀ normal with u(ȳ₀) when its u is stated (ν infinite), else the
+//     scaled and shifted t distribution t_ν(ȳ₀, u²(ȳ₀)) with the
+//     reading's ν (JCGM 101 §6.4.9.7, for the mean of few readings),
+//     drawn by Bailey's (1994) polar method.
+//
+// inv is the unknown's linear result from Inverse, against which the Monte
+// Carlo interval is compared. Cancelling ctx stops the workers and returns
+// ctx's error.
+func (c *Calibration) MonteCarlo(ctx context.Context, inv *InverseResult, opt *MonteCarloOptions) (*MonteCarloResult, error) {
+	if opt == nil {
+		opt = &MonteCarloOptions{}
+	}
+	M := opt.Trials
+	if M == 0 {
+		M = 1_000_000
+	}
+	if M < 100 || M > 100_000_000 {
+		return nil, &OptionError{Option: "trials", Reason: "must lie between 100 and 10⁸"}
+	}
+	p := opt.CoverageProbability
+	if p == 0 {
+		p = 0.95
+	}
+	if !(p > 0 && p < 1) {
+		return nil, &OptionError{Option: "coverage_probability", Reason: "must lie strictly between 0 and 1"}
+	}
+	digits := opt.Digits
+	if digits == 0 {
+		digits = 2
+	}
+	if digits < 1 || digits > 6 {
+		return nil, &OptionError{Option: "digits", Reason: "must lie between 1 and 6"}
+	}
+	if inv == nil {
+		return nil, &OptionError{Option: "unknown", Reason: "the linear result of the unknown is needed"}
+	}
+	vals := make([]float64, M)
+	draw := mcDraw{xr: c.XRef, yr: c.YRef.Value, uyr: c.YRef.U, b: c.Slope.Value, ub: c.Slope.U,
+		y0: inv.Y.Value, uy0: inv.Y.U, nu: inv.YDOF}
+	workers := opt.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	blocks := (M + MonteCarloBlock - 1) / MonteCarloBlock
+	workers = min(workers, blocks)
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			var pcg rand.PCG
+			rng := rand.New(&pcg)
+			for ctx.Err() == nil {
+				j := int(next.Add(1)) - 1
+				if j >= blocks {
+					return
+				}
+				pcg.Seed(opt.Seed, uint64(j))
+				draw.fill(rng, vals[j*MonteCarloBlock:min((j+1)*MonteCarloBlock, M)])
+			}
+		}()
+	}
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	var sum float64
+	for _, v := range vals {
+		sum += v
+	}
+	mean := sum / float64(M)
+	var ss float64
+	for _, v := range vals {
+		ss += (v - mean) * (v - mean)
+	}
+	if !allFinite(mean, ss) {
+		return nil, fmt.Errorf("%w: a Monte Carlo trial drew a slope of zero", ErrDegenerate)
+	}
+	lo, hi := shortestInterval(vals, p)
+	res := &MonteCarloResult{Trials: M, Seed: opt.Seed, Mean: mean, SD: math.Sqrt(ss / float64(M-1)),
+		CoverageProbability: p, Lower: lo, Upper: hi}
+	up := coverageK(p, inv.DOF) * inv.X.U
+	res.LinearLower, res.LinearUpper = inv.X.Value-up, inv.X.Value+up
+	res.Tolerance = NumericalTolerance(inv.X.U, digits)
+	res.DLow, res.DHigh = math.Abs(res.LinearLower-lo), math.Abs(res.LinearUpper-hi)
+	res.Validated = res.DLow <= res.Tolerance && res.DHigh <= res.Tolerance
+	if !res.Validated {
+		res.Warnings = append(res.Warnings, &Warning{Code: WarnMonteCarloDiff, Message: fmt.Sprintf(
+			"the Monte Carlo %g %% interval [%.6g, %.6g] differs from the linear one [%.6g, %.6g] by more than δ = %.2g (JCGM 101 §8): the linear result is not validated; prefer the Monte Carlo one",
+			100*p, lo, hi, res.LinearLower, res.LinearUpper, res.Tolerance)})
+	}
+	return res, nil
+}
+
+// NumericalTolerance is JCGM 101:2008 §7.9.2's δ for a standard
+// uncertainty u stated to n significant digits: with u = c·10^l, c an
+// n-digit integer, δ = ½·10^l.
+func NumericalTolerance(u float64, n int) float64 {
+	if !(u > 0) {
+		return 0
+	}
+	l := math.Floor(math.Log10(u)) - float64(n-1)
+	// Rounding u to n digits can carry into one more digit (9.96 → 10).
+	if math.Round(u/math.Pow(10, l)) >= math.Pow(10, float64(n)) {
+		l++
+	}
+	return 0.5 * math.Pow(10, l)
+}
+
+// mcDraw holds what one Monte Carlo trial draws from.
+type mcDraw struct {
+	xr, yr, uyr, b, ub float64
+	y0, uy0, nu        float64
+}
+
+// fill writes one x₀ per element of out.
+func (d *mcDraw) fill(rng *rand.Rand, out []float64) {
+	if math.IsInf(d.nu, 1) {
+		for i := range out {
+			c := d.yr + d.uyr*rng.NormFloat64()
+			b := d.b + d.ub*rng.NormFloat64()
+			y := d.y0 + d.uy0*rng.NormFloat64()
+			out[i] = d.xr + (y-c)/b
+		}
+		return
+	}
+	for i := range out {
+		c := d.yr + d.uyr*rng.NormFloat64()
+		b := d.b + d.ub*rng.NormFloat64()
+		y := d.y0 + d.uy0*studentT(rng, d.nu)
+		out[i] = d.xr + (y-c)/b
+	}
+}
+
+// studentT draws from Student's t with nu degrees of freedom by Bailey's
+// polar method (Bailey, R. W. (1994). Polar generation of random variates
+// with the t-distribution. Math. Comp. 62:779–781): (U, V) uniform in the
+// unit disc, W = U² + V², T = U·√(ν·(W^(−2/ν) − 1)/W).
+//
+// W^(−2/ν) − 1 is written without logarithms for the ν of two to five
+// readings: (1 − W²)/W² for ν = 1, (1 − W)/W for ν = 2, 1/√W − 1 for ν = 4.
+func studentT(rng *rand.Rand, nu float64) float64 {
+	for {
+		u := 2*rng.Float64() - 1
+		v := 2*rng.Float64() - 1
+		w := u*u + v*v
+		if !(w > 0 && w < 1) {
+			continue
+		}
+		var g float64 // W^(−2/ν) − 1
+		switch nu {
+		case 1:
+			g = (1 - w) * (1 + w) / (w * w)
+		case 2:
+			g = (1 - w) / w
+		case 4:
+			g = 1/math.Sqrt(w) - 1
+		default:
+			g = math.Expm1(-2 / nu * math.Log(w))
+		}
+		return u * math.Sqrt(nu*g/w)
+	}
+}
+
+// shortestInterval returns the shortest interval holding q = ⌊pM + ½⌋ of
+// the M values (JCGM 101 §7.7.2): [y₍ᵣ₎, y₍ᵣ₊q₋₁₎] over r. Only the M − q + 1
+// smallest and largest values need to be in order; they are separated by
+// selection and sorted, so the cost is O(M) plus O((M − q)·log(M − q)).
+// vals is reordered.
+func shortestInterval(vals []float64, p float64) (lo, hi float64) {
+	M := len(vals)
+	q := int(p*float64(M) + 0.5)
+	q = max(1, min(q, M))
+	L := M - q + 1 // candidate lower ends: ranks 0..L−1; upper ends: ranks q−1..M−1
+	if 2*L >= M {
+		slices.Sort(vals)
+	} else {
+		selectK(vals, L)
+		selectK(vals[L:], q-1-L)
+		slices.Sort(vals[:L])
+		slices.Sort(vals[q-1:])
+	}
+	best := math.Inf(1)
+	for r := range L {
+		if w := vals[r+q-1] - vals[r]; w < best {
+			best, lo, hi = w, vals[r], vals[r+q-1]
+		}
+	}
+	return lo, hi
+}
+
+// selectK reorders a so that a[:k] ≤ a[k] ≤ a[k+1:] (Hoare's selection with
+// a median-of-three pivot; sorting when the ranges stop shrinking).
+func selectK(a []float64, k int) {
+	lo, hi := 0, len(a)-1
+	budget := 4 * bits.Len(uint(len(a)))
+	for hi > lo {
+		if budget--; budget < 0 {
+			slices.Sort(a[lo : hi+1])
+			return
+		}
+		mid := lo + (hi-lo)/2
+		if a[mid] < a[lo] {
+			a[mid], a[lo] = a[lo], a[mid]
+		}
+		if a[hi] < a[lo] {
+			a[hi], a[lo] = a[lo], a[hi]
+		}
+		if a[hi] < a[mid] {
+			a[hi], a[mid] = a[mid], a[hi]
+		}
+		pivot := a[mid]
+		i, j := lo, hi
+		for i <= j {
+			for a[i] < pivot {
+				i++
+			}
+			for a[j] > pivot {
+				j--
+			}
+			if i <= j {
+				a[i], a[j] = a[j], a[i]
+				i++
+				j--
+			}
+		}
+		switch {
+		case k <= j:
+			hi = j
+		case k >= i:
+			lo = i
+		default:
+			return
+		}
+	}
+}

@@ -1,0 +1,202 @@
+package eiv_test
+
+import (
+	"context"
+	"errors"
+	"math"
+	"math/rand/v2"
+	"runtime"
+	"slices"
+	"testing"
+
+	"gonum.org/v1/gonum/stat/distuv"
+
+	"eivfit/eiv"
+)
+
+// lineCal fits a WLS calibration to x = 1..m on y = 1 + b·x with readings
+// perturbed by a fixed pattern scaled by uy (so the line is not exact).
+func lineCal(t testing.TB, m int, b, uy float64) *eiv.Calibration {
+	t.Helper()
+	pattern := []float64{0.3, -0.5, 0.1, 0.6, -0.2, -0.4, 0.5, -0.1, 0.2, -0.3}
+	s := make([]eiv.Standard, m)
+	for i := range m {
+		x := float64(i + 1)
+		s[i] = eiv.Standard{X: x, Y: []float64{1 + b*x + uy*pattern[i%len(pattern)]}, UY: uy}
+	}
+	return mustCalibrate(t, s, nil)
+}
+
+// The Monte Carlo distribution of x₀ (JCGM 101:2008) on a well-conditioned
+// line, u(b)/b ≈ 0.3 %: the linear result must agree within Monte Carlo
+// error — the mean within 4 standard errors SD/√M, the SD within 4
+// standard errors SD/√(2M) (normal approximation of the SD's spread; the
+// second-order terms of 1/b are ~1e-5 relative here, far below) — and be
+// validated at two significant digits (JCGM 101 §8.2).
+func TestMonteCarloAgreesWhenWellConditioned(t *testing.T) {
+	c := lineCal(t, 10, 2, 0.05)
+	if rel := c.Slope.U / c.Slope.Value; rel > 0.005 {
+		t.Fatalf("u(b)/b = %g: not well conditioned", rel)
+	}
+	inv := mustInverse(t, c, eiv.Unknown{Y: []float64{10.3}, UY: 0.05}, nil)
+	const M = 1_000_000
+	mc, err := c.MonteCarlo(context.Background(), &inv, &eiv.MonteCarloOptions{Trials: M, Seed: 7})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d := math.Abs(mc.Mean - inv.X.Value); d > 4*mc.SD/math.Sqrt(M) {
+		t.Errorf("mean %.8g, linear %.8g: differ by %.3g > 4 SE", mc.Mean, inv.X.Value, d)
+	}
+	if d := math.Abs(mc.SD - inv.X.U); d > 4*inv.X.U/math.Sqrt(2*M) {
+		t.Errorf("SD %.8g, linear u %.8g: differ by %.3g > 4 SE", mc.SD, inv.X.U, d)
+	}
+	if !mc.Validated || len(mc.Warnings) != 0 {
+		t.Errorf("not validated: δ = %.3g, d_low %.3g, d_high %.3g", mc.Tolerance, mc.DLow, mc.DHigh)
+	}
+	t.Logf("x0 = %.6g ± %.4g; Monte Carlo %.6g ± %.4g, [%.6g, %.6g] vs linear [%.6g, %.6g], δ = %.2g",
+		inv.X.Value, inv.X.U, mc.Mean, mc.SD, mc.Lower, mc.Upper, mc.LinearLower, mc.LinearUpper, mc.Tolerance)
+}
+
+// A line whose slope uncertainty is 30 % of the slope: 1/b is far from
+// linear over its spread, the distribution of x₀ is skewed, and the Monte
+// Carlo interval must differ visibly from the linear one (by more than
+// ten times δ at one end) and say so.
+func TestMonteCarloDisagreesWhenSlopeUncertain(t *testing.T) {
+	c := lineCal(t, 5, 0.5, 0.5)
+	rel := c.Slope.U / c.Slope.Value
+	if math.Abs(rel-0.3) > 0.03 {
+		t.Fatalf("u(b)/b = %.3g, want about 0.3", rel)
+	}
+	inv := mustInverse(t, c, eiv.Unknown{Y: []float64{c.Intercept.Value + c.Slope.Value*5.5}, UY: 0.2}, nil)
+	if !hasCode(inv.Warnings, eiv.WarnSlopeUncertain) {
+		t.Errorf("no slope warning: %v", inv.Warnings)
+	}
+	mc, err := c.MonteCarlo(context.Background(), &inv, &eiv.MonteCarloOptions{Trials: 1_000_000, Seed: 7})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if mc.Validated || !hasCode(mc.Warnings, eiv.WarnMonteCarloDiff) || math.Max(mc.DLow, mc.DHigh) < 10*mc.Tolerance {
+		t.Errorf("validated %v, warnings %v: d_low %.3g, d_high %.3g, δ %.3g", mc.Validated, mc.Warnings, mc.DLow, mc.DHigh, mc.Tolerance)
+	}
+	t.Logf("u(b)/b = %.3f: x0 = %.4g ± %.3g; Monte Carlo %.4g ± %.3g, [%.4g, %.4g] vs linear [%.4g, %.4g], δ = %.2g",
+		rel, inv.X.Value, inv.X.U, mc.Mean, mc.SD, mc.Lower, mc.Upper, mc.LinearLower, mc.LinearUpper, mc.Tolerance)
+}
+
+// Bit-identical results for any number of workers and GOMAXPROCS (block j
+// of the trials draws from PCG(seed, j)), with t-distributed readings.
+func TestMonteCarloReproducible(t *testing.T) {
+	c := lineCal(t, 6, 1.5, 0.2)
+	inv := mustInverse(t, c, eiv.Unknown{Y: []float64{6.1, 6.4, 6.2}}, nil) // ν = 2: t draws
+	var first *eiv.MonteCarloResult
+	for _, procs := range []int{1, 4} {
+		old := runtime.GOMAXPROCS(procs)
+		for _, w := range []int{0, 1, 3, 7} {
+			mc, err := c.MonteCarlo(context.Background(), &inv, &eiv.MonteCarloOptions{Trials: 100_003, Seed: 11, Workers: w})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if first == nil {
+				first = mc
+				continue
+			}
+			if mc.Mean != first.Mean || mc.SD != first.SD || mc.Lower != first.Lower || mc.Upper != first.Upper {
+				t.Errorf("GOMAXPROCS %d, workers %d: %+v differs from %+v", procs, w, mc, first)
+			}
+		}
+		runtime.GOMAXPROCS(old)
+	}
+	other, _ := c.MonteCarlo(context.Background(), &inv, &eiv.MonteCarloOptions{Trials: 100_003, Seed: 12})
+	if other.Mean == first.Mean {
+		t.Error("another seed gave the same mean")
+	}
+}
+
+func TestMonteCarloCancel(t *testing.T) {
+	c := lineCal(t, 6, 1.5, 0.2)
+	inv := mustInverse(t, c, eiv.Unknown{Y: []float64{6.1}, UY: 0.2}, nil)
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := c.MonteCarlo(ctx, &inv, &eiv.MonteCarloOptions{Trials: 10_000_000}); !errors.Is(err, context.Canceled) {
+		t.Errorf("got %v, want context.Canceled", err)
+	}
+	for _, o := range []eiv.MonteCarloOptions{{Trials: 10}, {CoverageProbability: 1}, {Digits: 9}} {
+		var oe *eiv.OptionError
+		if _, err := c.MonteCarlo(context.Background(), &inv, &o); !errors.As(err, &oe) {
+			t.Errorf("%+v: got %v, want an *OptionError", o, err)
+		}
+	}
+}
+
+// The t draws (Bailey's polar method) against Student's t: the
+// Kolmogorov–Smirnov distance of 50,000 draws from gonum's t CDF must stay
+// below 1.95/√n (the 0.1 % critical value, Kolmogorov's limit law).
+func TestStudentTDraws(t *testing.T) {
+	for _, nu := range []float64{1, 2, 3, 4, 5, 30} {
+		const n = 50_000
+		rng := rand.New(rand.NewPCG(3, uint64(nu)))
+		vals := make([]float64, n)
+		for i := range vals {
+			vals[i] = eiv.StudentT(rng, nu)
+		}
+		slices.Sort(vals)
+		dist := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: nu}
+		var ks float64
+		for i, v := range vals {
+			f := dist.CDF(v)
+			ks = math.Max(ks, math.Max(math.Abs(f-float64(i)/n), math.Abs(f-float64(i+1)/n)))
+		}
+		if ks > 1.95/math.Sqrt(n) {
+			t.Errorf("ν = %g: KS distance %.4g > %.4g", nu, ks, 1.95/math.Sqrt(n))
+		}
+	}
+}
+
+// The shortest coverage interval by selection against a full sort and a
+// scan of every window (JCGM 101 §7.7.2).
+func TestShortestInterval(t *testing.T) {
+	r := rand.New(rand.NewPCG(5, 5))
+	for _, tc := range []struct {
+		name string
+		n    int
+		p    float64
+	}{{"n=1000 p=0.95", 1000, 0.95}, {"n=12345 p=0.99", 12345, 0.99}, {"n=500 p=0.5", 500, 0.5}, {"n=777 p=0.3", 777, 0.3}} {
+		t.Run(tc.name, func(t *testing.T) {
+			v := make([]float64, tc.n)
+			for i := range v {
+				v[i] = math.Exp(r.NormFloat64()) // skewed
+				if i%50 == 0 {
+					v[i] = v[i-i%50] // ties
+				}
+			}
+			s := slices.Clone(v)
+			slices.Sort(s)
+			q := int(tc.p*float64(tc.n) + 0.5)
+			best, lo, hi := math.Inf(1), 0.0, 0.0
+			for i := 0; i+q-1 < tc.n; i++ {
+				if w := s[i+q-1] - s[i]; w < best {
+					best, lo, hi = w, s[i], s[i+q-1]
+				}
+			}
+			glo, ghi := eiv.ShortestInterval(v, tc.p)
+			if glo != lo || ghi != hi {
+				t.Errorf("[%g, %g], want [%g, %g]", glo, ghi, lo, hi)
+			}
+		})
+	}
+}
+
+// JCGM 101:2008 §7.9.2: u written with n significant digits as c·10^l
+// gives δ = ½·10^l (values worked by hand).
+func TestNumericalTolerance(t *testing.T) {
+	for _, tc := range []struct {
+		u    float64
+		n    int
+		want float64
+	}{
+		{0.322, 2, 0.005}, {0.322, 1, 0.05}, {1.5, 2, 0.05}, {0.0996, 2, 0.005}, {36, 2, 0.5}, {0.00123, 3, 0.000005},
+	} {
+		if got := eiv.NumericalTolerance(tc.u, tc.n); math.Abs(got-tc.want) > 1e-15*tc.want {
+			t.Errorf("u = %g, %d digits: δ = %g, want %g", tc.u, tc.n, got, tc.want)
+		}
+	}
+}
