@@ -176,6 +176,8 @@ type SizedReader struct {
 func readBody(r io.Reader) ([]byte, error) {
 	var n int64 = -1
 	switch v := r.(type) {
+	case *Body:
+		return v.take(), nil
 	case SizedReader:
 		n = v.N
 	case *SizedReader:

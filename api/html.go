@@ -610,10 +610,6 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		s.formError(c, http.StatusBadRequest, "The form could not be read: "+err.Error())
 		return
 	}
-	if len(s.keys.hashes) > 0 && !s.keys.valid(c.Request.FormValue("api_key")) {
-		s.formError(c, http.StatusUnauthorized, "A valid API key is required.")
-		return
-	}
 	var data []byte
 	if fh, err := c.FormFile("file"); err == nil && fh.Size > 0 {
 		f, err := fh.Open()

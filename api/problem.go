@@ -59,6 +59,8 @@ var (
 	kindMethod        = kind{"method-not-allowed", "Method not allowed", http.StatusMethodNotAllowed}
 	kindNotFound      = kind{"not-found", "Not found", http.StatusNotFound}
 	kindBusy          = kind{"busy", "All compute slots are busy", http.StatusServiceUnavailable}
+	kindBodyBudget    = kind{"body-budget-full", "The server's memory budget for request bodies is full", http.StatusServiceUnavailable}
+	kindBodyTimeout   = kind{"body-timeout", "The request body did not arrive in time", http.StatusRequestTimeout}
 	kindDeadline      = kind{"deadline-exceeded", "The computation ran past the request deadline", http.StatusServiceUnavailable}
 	kindUnauthorized  = kind{"unauthorized", "Missing or invalid API key", http.StatusUnauthorized}
 	kindInternal      = kind{"internal", "Internal error", http.StatusInternalServerError}

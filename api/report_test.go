@@ -3,6 +3,7 @@ package api
 import (
 	"bytes"
 	"crypto/sha256"
+	"encoding/base64"
 	"encoding/hex"
 	"encoding/xml"
 	"io"
@@ -163,8 +164,8 @@ func TestFormPage(t *testing.T) {
 	if rec := keyed.do("POST", "/report", "application/x-www-form-urlencoded", form.Encode()); rec.Code != 401 {
 		t.Errorf("keyless form with keys configured: %d", rec.Code)
 	}
-	form.Set("api_key", "k1")
-	if rec := keyed.do("POST", "/report", "application/x-www-form-urlencoded", form.Encode()); rec.Code != 200 {
+	basic := "Basic " + base64.StdEncoding.EncodeToString([]byte("any:k1"))
+	if rec := keyed.do("POST", "/report", "application/x-www-form-urlencoded", form.Encode(), "Authorization", basic); rec.Code != 200 {
 		t.Errorf("keyed form: %d %s", rec.Code, truncate(rec.Body.String()))
 	}
 }

@@ -3,6 +3,7 @@ package api
 import (
 	"context"
 	"crypto/rand"
+	"crypto/sha256"
 	"encoding/hex"
 	"errors"
 	"fmt"
@@ -12,7 +13,9 @@ import (
 	"net"
 	"net/http"
 	"net/url"
+	"os"
 	"runtime"
+	"slices"
 	"strconv"
 	"strings"
 	"sync/atomic"
@@ -43,15 +46,20 @@ type Config struct {
 	SlotWait time.Duration
 	// MaxBatch bounds the datasets of one batch request; default 1000.
 	MaxBatch int
-	// MaxInFlightBytes bounds the request bodies being read or held at
-	// once (each counted at its Content-Length, or MaxBodyBytes when it
-	// declares none), so that memory stays bounded however many large
-	// requests arrive: past it a request waits SlotWait, then gets 503.
+	// MaxInFlightBytes bounds the request-body bytes held in memory at
+	// once, so that memory stays bounded however many large requests
+	// arrive. A body is charged as its bytes arrive (in 256 KiB steps),
+	// not for its declared length, so idle uploads hold next to nothing;
+	// a body that cannot get budget within SlotWait gets 503.
 	// Default 4 × MaxBodyBytes.
 	MaxInFlightBytes int64
 	// ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout protect
-	// against slow clients; defaults 5 s, 60 s, 120 s, 120 s.
+	// against slow clients; defaults 5 s, 60 s, 120 s, 120 s. A body not
+	// complete within ReadTimeout is answered 408.
 	ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout time.Duration
+	// BodyIdleTimeout answers 408 to a body from which no byte arrives for
+	// this long; default 10 s.
+	BodyIdleTimeout time.Duration
 	// ShutdownTimeout bounds the drain on SIGTERM; default 90 s.
 	ShutdownTimeout time.Duration
 	// APIKeys, when not empty, are required as "Authorization: Bearer KEY"
@@ -77,6 +85,7 @@ var DefaultConfig = Config{
 	ReadTimeout:       60 * time.Second,
 	WriteTimeout:      120 * time.Second,
 	IdleTimeout:       120 * time.Second,
+	BodyIdleTimeout:   10 * time.Second,
 	ShutdownTimeout:   90 * time.Second,
 }
 
@@ -114,6 +123,7 @@ func (c Config) withDefaults() Config {
 	}
 	for _, p := range []struct{ v, d *time.Duration }{{&c.ReadHeaderTimeout, &d.ReadHeaderTimeout},
 		{&c.ReadTimeout, &d.ReadTimeout}, {&c.WriteTimeout, &d.WriteTimeout}, {&c.IdleTimeout, &d.IdleTimeout},
+		{&c.BodyIdleTimeout, &d.BodyIdleTimeout},
 		{&c.ShutdownTimeout, &d.ShutdownTimeout}} {
 		if *p.v <= 0 {
 			*p.v = *p.d
@@ -163,7 +173,7 @@ func NewServer(cfg Config) (*Server, error) {
 	v1.POST("/method-comparison", s.handleCompare)
 	v1.POST("/plots/:kind", s.handlePlot)
 	e.GET("/", s.handleIndex)
-	e.POST("/report", s.handleFormReport)
+	e.POST("/report", s.authorizeForm, s.handleFormReport)
 	e.GET("/healthz", s.handleHealthz)
 	e.GET("/readyz", s.handleReadyz)
 	e.GET("/openapi.yaml", handleOpenAPI)
@@ -342,38 +352,142 @@ func (s *Server) acquire(ctx context.Context) (release func(), p *Problem) {
 	return func() { <-s.slots; s.metrics.slotsInUse.Dec() }, nil
 }
 
-// body wraps the request body with the size limit and reserves its bytes
-// in the intake budget; the caller must call release when done with the
-// request. A declared length above the limit is refused before anything is
-// read.
+// bodyChunk is the step in which a body is charged to the intake budget
+// as it arrives: a request holds at most one chunk more than it has
+// received, so that idle or slow uploads hold next to nothing.
+const bodyChunk = 256 << 10
+
+// body reads the whole request body into memory within the size limit,
+// the intake budget and the body timeouts, and returns it; the caller must
+// call release when done with the request. A declared length above the
+// limit is refused before anything is read. The budget is charged in
+// bodyChunk steps as bytes arrive, never for a declared length up front.
+// A body that stalls for BodyIdleTimeout, or is not complete within
+// ReadTimeout, is answered 408; a body that cannot get budget within
+// SlotWait is answered 503 naming the memory budget.
 func (s *Server) body(c *gin.Context) (io.Reader, func(), *Problem) {
 	n := c.Request.ContentLength
 	if n > s.cfg.MaxBodyBytes {
 		return nil, nil, newProblem(kindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
 			n, s.cfg.MaxBodyBytes))
 	}
-	want := n
-	if want < 0 {
-		want = s.cfg.MaxBodyBytes
-	}
-	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
-	defer cancel()
-	if !s.intake.acquire(ctx, want) {
-		s.metrics.slotRejected.Inc()
-		p := newProblem(kindBusy, fmt.Sprintf("the server is reading as many request bodies as its memory budget (%d bytes) allows; retry later", s.cfg.MaxInFlightBytes))
-		p.RetryAfter = 1
-		return nil, nil, p
-	}
-	s.metrics.intakeBytes.Add(float64(want))
+	var held int64
 	release := func() {
-		s.intake.release(want)
-		s.metrics.intakeBytes.Sub(float64(want))
+		s.intake.release(held)
+		s.metrics.intakeBytes.Sub(float64(held))
+		held = 0
 	}
-	r := http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes)
-	if n > 0 {
-		return SizedReader{Reader: r, N: n}, release, nil
+	charge := func(upTo int64) bool {
+		if upTo <= held {
+			return true
+		}
+		ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
+		defer cancel()
+		if !s.intake.acquire(ctx, upTo-held) {
+			return false
+		}
+		s.metrics.intakeBytes.Add(float64(upTo - held))
+		held = upTo
+		return true
 	}
-	return r, release, nil
+	rc := http.NewResponseController(c.Writer)
+	start := time.Now()
+	whole := start.Add(s.cfg.ReadTimeout)
+	limit := s.cfg.MaxBodyBytes
+	var buf []byte
+	if n >= 0 {
+		buf = make([]byte, 0, n) // pages become resident only as bytes arrive
+	}
+	r := c.Request.Body
+	for {
+		if len(buf) == cap(buf) {
+			if int64(len(buf)) > limit {
+				release()
+				return nil, nil, newProblem(kindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", limit))
+			}
+			// A declared length is read to its end (then EOF); an
+			// undeclared one grows, within the limit plus one byte to
+			// detect an overrun.
+			grow := max(int64(cap(buf)), bodyChunk)
+			buf = slices.Grow(buf, int(min(grow, limit+1-int64(len(buf)))))
+		}
+		// Charge the next chunk before its pages are touched.
+		if !charge(min(int64(len(buf))+bodyChunk, int64(cap(buf)))) {
+			release()
+			p := newProblem(kindBodyBudget, fmt.Sprintf("the server is holding as many request-body bytes as its memory budget (%d bytes) allows, and none were freed within %v; retry later",
+				s.cfg.MaxInFlightBytes, s.cfg.SlotWait))
+			p.RetryAfter = 1
+			return nil, nil, p
+		}
+		_ = rc.SetReadDeadline(earliest(whole, time.Now().Add(s.cfg.BodyIdleTimeout)))
+		end := min(int64(len(buf))+bodyChunk, int64(cap(buf)))
+		k, err := r.Read(buf[len(buf):end])
+		buf = buf[:len(buf)+k]
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			release()
+			// The deadline stays in the past: the server then drops the
+			// rest of the body with the connection instead of reading it.
+			_ = rc.SetReadDeadline(time.Now())
+			return nil, nil, s.bodyReadProblem(c, err, time.Since(start))
+		}
+	}
+	_ = rc.SetReadDeadline(time.Time{})
+	if int64(len(buf)) > limit {
+		release()
+		return nil, nil, newProblem(kindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", limit))
+	}
+	return &Body{b: buf}, release, nil
+}
+
+func earliest(a, b time.Time) time.Time {
+	if a.Before(b) {
+		return a
+	}
+	return b
+}
+
+// bodyReadProblem maps a failed body read: a timeout is 408 (and the
+// connection is closed), anything else 400.
+func (s *Server) bodyReadProblem(c *gin.Context, err error, took time.Duration) *Problem {
+	var ne net.Error
+	if errors.Is(err, os.ErrDeadlineExceeded) || (errors.As(err, &ne) && ne.Timeout()) {
+		c.Header("Connection", "close")
+		return newProblem(kindBodyTimeout, fmt.Sprintf("the body did not arrive in time (no byte for %v, or not complete within %v; %v elapsed)",
+			s.cfg.BodyIdleTimeout, s.cfg.ReadTimeout, took.Round(time.Millisecond)))
+	}
+	return invalid("", "the body could not be read: the connection failed or the body ended early")
+}
+
+// Body is a request body held in memory. Decoders take its bytes without
+// copying them (readBody).
+type Body struct {
+	b   []byte
+	off int
+}
+
+// NewBody wraps b.
+func NewBody(b []byte) *Body { return &Body{b: b} }
+
+func (b *Body) Read(p []byte) (int, error) {
+	if b.off >= len(b.b) {
+		return 0, io.EOF
+	}
+	k := copy(p, b.b[b.off:])
+	b.off += k
+	return k, nil
+}
+
+// Len is the number of unread bytes.
+func (b *Body) Len() int { return len(b.b) - b.off }
+
+// take returns the unread bytes and marks them read.
+func (b *Body) take() []byte {
+	r := b.b[b.off:]
+	b.off = len(b.b)
+	return r
 }
 
 // mediaType returns the request's media type: "json", "csv", or "" after
@@ -431,7 +545,7 @@ func serveAnalysis[T validator, R any](s *Server, c *gin.Context,
 		return
 	}
 	defer release()
-	body, sum := hashingBody(body)
+	raw := body.(*Body).b
 	req, err := decodeRequest(s, c, kind, body, fromCSV, fromJSON)
 	if err != nil {
 		s.problem(c, s.toProblem(c, err))
@@ -443,7 +557,8 @@ func serveAnalysis[T validator, R any](s *Server, c *gin.Context,
 		return
 	}
 	if wantsHTML(c) {
-		pg, err := page(resp, req, hexSum(sum))
+		sum := sha256.Sum256(raw)
+		pg, err := page(resp, req, hex.EncodeToString(sum[:]))
 		if err != nil {
 			s.problem(c, s.toProblem(c, err))
 			return
@@ -506,10 +621,19 @@ func (s *Server) handleHealthz(c *gin.Context) {
 	s.writeJSON(c, http.StatusOK, map[string]string{"status": "ok", "version": s.cfg.Version})
 }
 
+// handleReadyz answers 503 while draining, and while the intake budget
+// could not take one more maximum-size body (the pod is then saturated
+// with uploads and a load balancer should prefer another); it reports the
+// compute slots and the body budget in use.
 func (s *Server) handleReadyz(c *gin.Context) {
-	if s.draining.Load() {
-		s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "draining"})
-		return
+	status, code := "ready", http.StatusOK
+	free := s.intake.available()
+	switch {
+	case s.draining.Load():
+		status, code = "draining", http.StatusServiceUnavailable
+	case free < min(s.cfg.MaxBodyBytes, s.cfg.MaxInFlightBytes):
+		status, code = "body budget full", http.StatusServiceUnavailable
 	}
-	s.writeJSON(c, http.StatusOK, map[string]any{"status": "ready", "slots": cap(s.slots), "slots_in_use": len(s.slots)})
+	s.writeJSON(c, code, map[string]any{"status": status, "slots": cap(s.slots), "slots_in_use": len(s.slots),
+		"body_budget_bytes": s.cfg.MaxInFlightBytes, "body_bytes_in_use": s.cfg.MaxInFlightBytes - free})
 }
