@@ -41,56 +41,40 @@ type BootstrapOptions struct {
 	Scheme    string  `json:"scheme,omitempty"` // "pairs" (default) or "parametric"
 }
 
-// UnmarshalJSON decodes strictly, so that a misspelt option inside
-// "bootstrap" is named.
-func (b *BootstrapOptions) UnmarshalJSON(data []byte) error {
-	type plain BootstrapOptions
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
-	var p plain
-	if err := dec.Decode(&p); err != nil {
-		return jsonProblem(err, "/bootstrap")
-	}
-	*b = BootstrapOptions(p)
-	return nil
-}
-
 // Limits bound what one request may ask for.
 type Limits struct {
 	MaxPoints    int // points per dataset
 	MaxResamples int // bootstrap resamples per fit
-	MaxAt        int // entries in "at"
+	MaxAt        int // entries in "at", decision levels
+	// MaxBatch bounds the datasets of one batch request; the server sets
+	// it from Config.MaxBatch.
+	MaxBatch int
 }
 
 // DefaultLimits serve real studies.
-var DefaultLimits = Limits{MaxPoints: 1_000_000, MaxResamples: 100_000, MaxAt: 1000}
+var DefaultLimits = Limits{MaxPoints: 1_000_000, MaxResamples: 100_000, MaxAt: 1000, MaxBatch: 1000}
 
 // Method names, in the order fits are reported.
 var methodNames = []string{"ols", "deming", "weighted_deming", "passing_bablok", "york"}
-
-// DecodeFitJSON reads a FitRequest from JSON, strictly: unknown fields,
-// trailing data, non-numbers and numbers outside the double range are
-// errors naming the field.
-func DecodeFitJSON(r io.Reader) (*FitRequest, error) {
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	if req, ok, err := decodeFitFast(body); ok {
-		return req, err
-	}
-	// Not a well-formed object: the general decoder finds and names the fault.
-	var req FitRequest
-	if err := decodeStrict(bytes.NewReader(body), &req); err != nil {
-		return nil, err
-	}
-	return &req, nil
-}
 
 // decodeStrict reads one JSON value into v: unknown fields and trailing
 // data are errors, and a syntax error is reported at the pointer of the
 // value where it occurred.
 func decodeStrict(r io.Reader, v any) error {
+	switch v := v.(type) {
+	case *BatchRequest: // read by the strict reader, counting datasets
+		body, err := readBody(r)
+		if err != nil {
+			return err
+		}
+		return decodeBatch(body, v, limitsOf(r).MaxBatch)
+	case *BatchEntry:
+		body, err := readBody(r)
+		if err != nil {
+			return err
+		}
+		return decodeBatchEntry(body, v, limitsOf(r))
+	}
 	body, err := io.ReadAll(r)
 	if err != nil {
 		var mbe *http.MaxBytesError

@@ -118,6 +118,7 @@ func (c Config) withDefaults() Config {
 	if c.MaxBatch <= 0 {
 		c.MaxBatch = d.MaxBatch
 	}
+	c.Limits.MaxBatch = c.MaxBatch
 	if c.MaxInFlightBytes <= 0 {
 		c.MaxInFlightBytes = 4 * c.MaxBodyBytes
 	}
@@ -439,7 +440,7 @@ func (s *Server) body(c *gin.Context) (io.Reader, func(), *Problem) {
 		release()
 		return nil, nil, newProblem(kindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", limit))
 	}
-	return &Body{b: buf}, release, nil
+	return &Body{b: buf, lim: &s.cfg.Limits}, release, nil
 }
 
 func earliest(a, b time.Time) time.Time {
@@ -466,6 +467,7 @@ func (s *Server) bodyReadProblem(c *gin.Context, err error, took time.Duration) 
 type Body struct {
 	b   []byte
 	off int
+	lim *Limits // the limits its decoders count lists against
 }
 
 // NewBody wraps b.
