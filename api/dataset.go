@@ -430,7 +430,7 @@ func (p *pointParser) num() (v float64, ok bool, err error) {
 	p.pos = j
 	v, ok = parseFloat(s)
 	if !ok {
-		return 0, true, fmt.Errorf("%s is outside the double-precision range", truncate(string(s)))
+		return 0, true, numberError(s)
 	}
 	return v, true, nil
 }

@@ -385,10 +385,7 @@ func (p *pointParser) text(ptr string, nullable bool) (string, error) {
 		if !ok {
 			return "", p.syntax("a well-formed UTF-8 string")
 		}
-		if len(s) > maxNameBytes {
-			return "", invalid(ptr, fmt.Sprintf("at most %d bytes, not %d", maxNameBytes, len(s)))
-		}
-		return s, nil
+		return s, nameLength(ptr, s)
 	}
 	if _, err := p.skip(0); err == nil {
 		return "", invalid(ptr, "must be a string")
@@ -571,4 +568,13 @@ func readErr(err error) error {
 		return mbe
 	}
 	return invalid("", fmt.Sprintf("the body could not be read: %v", err))
+}
+
+// prefixedErr moves the pointers of a problem under prefix.
+func prefixedErr(err error, prefix string) error {
+	var p *Problem
+	if errors.As(err, &p) {
+		return prefixed(p, prefix)
+	}
+	return err
 }

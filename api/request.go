@@ -230,9 +230,9 @@ func queryFloats(q url.Values, name string) ([]float64, error) {
 }
 
 func finiteQuery(name, s string) (float64, error) {
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, invalid("query parameter "+name, fmt.Sprintf("%q is not a finite number", truncate(s)))
+	v, err := parseCell(s)
+	if err != nil {
+		return 0, invalid("query parameter "+name, err.Error())
 	}
 	return v, nil
 }
