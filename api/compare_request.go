@@ -279,11 +279,11 @@ func (p *pointParser) sample(i int) (Sample, error) {
 			case 2:
 				s.Y, err = p.values(fp)
 			case 3:
-				err = p.optNumber(fp.String(), &s.SX)
+				s.SX, err = p.optLazyNumber(fp.String)
 			case 4:
-				err = p.optNumber(fp.String(), &s.SY)
+				s.SY, err = p.optLazyNumber(fp.String)
 			case 5:
-				err = p.optNumber(fp.String(), &s.Order)
+				s.Order, err = p.optLazyNumber(fp.String)
 			}
 			if err != nil {
 				return s, err
@@ -341,7 +341,7 @@ func (p *pointParser) values(fp samplePtr) ([]float64, error) {
 		var buf [maxReplicates]float64
 		out := buf[:0]
 		err := p.array(fp.String(), maxReplicates, kindInvalid, "replicate values", func(k int) error {
-			v, err := p.number(fmt.Sprintf("%v/%d", fp, k))
+			v, err := p.lazyNumber(func() string { return fmt.Sprintf("%v/%d", fp, k) })
 			out = append(out, v)
 			return err
 		})
@@ -353,7 +353,7 @@ func (p *pointParser) values(fp samplePtr) ([]float64, error) {
 		}
 		return slices.Clone(out), nil
 	}
-	v, err := p.number(fp.String())
+	v, err := p.lazyNumber(fp.String)
 	if err != nil {
 		return nil, err
 	}
@@ -565,4 +565,14 @@ func nameLength(ptr, s string) error {
 		return invalid(ptr, fmt.Sprintf("at most %d bytes, not %d", maxNameBytes, len(s)))
 	}
 	return nil
+}
+
+// optLazyNumber reads a number or null, formatting the pointer only on an
+// error.
+func (p *pointParser) optLazyNumber(ptr func() string) (*float64, error) {
+	if p.null() {
+		return nil, nil
+	}
+	v, err := p.lazyNumber(ptr)
+	return &v, err
 }

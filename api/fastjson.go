@@ -326,6 +326,16 @@ func (p *pointParser) number(ptr string) (float64, error) {
 	return v, nil
 }
 
+// lazyNumber is number with the pointer formatted only on an error.
+func (p *pointParser) lazyNumber(ptr func() string) (float64, error) {
+	start := p.pos
+	if v, ok, err := p.num(); ok && err == nil {
+		return v, nil
+	}
+	p.pos = start
+	return p.number(ptr())
+}
+
 // optNumber reads a number or null.
 func (p *pointParser) optNumber(ptr string, dst **float64) error {
 	if p.null() {
