@@ -6,7 +6,6 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"fmt"
-	"hash"
 	"io"
 	"math"
 	"net/http"
@@ -485,14 +484,6 @@ func (s *Server) writeHTML(c *gin.Context, status int, write func(io.Writer) err
 	c.Header("Cache-Control", "no-store")
 	c.Data(status, "text/html; charset=utf-8", b.Bytes())
 }
-
-// hashingBody reads the body through SHA-256 for the report's record.
-func hashingBody(r io.Reader) (io.Reader, hash.Hash) {
-	h := sha256.New()
-	return io.TeeReader(r, h), h
-}
-
-func hexSum(h hash.Hash) string { return hex.EncodeToString(h.Sum(nil)) }
 
 // handlePlot serves POST /v1/plots/{kind}: a fit request (JSON, or CSV with
 // the options in the query) drawn as one SVG plot; "method" in the query
