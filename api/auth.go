@@ -1,15 +1,17 @@
 package api
 
 import (
-	"eivfit/api/wire"
-
 	"bufio"
 	"crypto/sha256"
 	"crypto/subtle"
 	"encoding/hex"
 	"fmt"
 	"io"
+	"net/http"
 	"strings"
+
+	"eivfit/api/report"
+	"eivfit/api/wire"
 
 	"github.com/gin-gonic/gin"
 )
@@ -65,15 +67,43 @@ func (k *keyring) valid(token string) bool {
 	return ok == 1
 }
 
+// presentedKey is the key in the Authorization header: "Bearer KEY", or
+// "Basic" with the key as the password (the user name is ignored), which a
+// browser sends for the page's form after asking for it.
+func presentedKey(r *http.Request) string {
+	h := r.Header.Get("Authorization")
+	if token, ok := strings.CutPrefix(h, "Bearer "); ok {
+		return strings.TrimSpace(token)
+	}
+	if _, pass, ok := r.BasicAuth(); ok {
+		return pass
+	}
+	return ""
+}
+
 // authorize requires "Authorization: Bearer KEY" when keys are configured.
+// It runs before the handler, so no byte of an unauthorized body is read.
 func (s *Server) authorize(c *gin.Context) {
-	if len(s.keys.hashes) == 0 {
+	if len(s.keys.hashes) == 0 || s.keys.valid(presentedKey(c.Request)) {
 		return
 	}
-	token, ok := strings.CutPrefix(c.GetHeader("Authorization"), "Bearer ")
-	if !ok || !s.keys.valid(strings.TrimSpace(token)) {
-		s.problem(c, wire.NewProblem(wire.KindUnauthorized, "send a valid API key as \"Authorization: Bearer KEY\""))
+	c.Header("Connection", "close") // the body is left unread
+	s.problem(c, wire.NewProblem(wire.KindUnauthorized, "send a valid API key as \"Authorization: Bearer KEY\""))
+}
+
+// authorizeForm guards POST /report as authorize guards /v1/*, before the
+// body is read: a browser without the key is asked for it (HTTP Basic, the
+// key as the password) and gets the form page with the reason.
+func (s *Server) authorizeForm(c *gin.Context) {
+	if len(s.keys.hashes) == 0 || s.keys.valid(presentedKey(c.Request)) {
+		return
 	}
+	c.Header("WWW-Authenticate", `Basic realm="eivfit", charset="UTF-8"`)
+	c.Header("Connection", "close")
+	s.writeHTML(c, http.StatusUnauthorized, func(w io.Writer) error {
+		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, Error: "A valid API key is required: enter it as the password when the browser asks (any user name)."})
+	})
+	c.Abort()
 }
 
 func sha256Sum(s string) [sha256.Size]byte { return sha256.Sum256([]byte(s)) }

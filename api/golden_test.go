@@ -6,6 +6,8 @@ import (
 	"path/filepath"
 	"regexp"
 	"testing"
+
+	"eivfit/api/wire"
 )
 
 // update rewrites the golden files from the current output:
@@ -36,7 +38,7 @@ func TestGoldenHTMLReport(t *testing.T) {
 			}
 			rec := h.do("POST", c.path, "text/csv", string(body), "Accept", "text/html")
 			if rec.Code != 200 {
-				t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
+				t.Fatalf("status %d: %s", rec.Code, wire.Truncate(rec.Body.String()))
 			}
 			got := produced.ReplaceAll(rec.Body.Bytes(), []byte("2000-01-01T00:00:00Z"))
 			path := filepath.Join("testdata", "golden", c.golden)

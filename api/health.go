@@ -38,11 +38,19 @@ func (s *Server) handleHealthz(c *gin.Context) {
 	s.writeJSON(c, http.StatusOK, map[string]string{"status": "ok", "version": s.cfg.Version})
 }
 
-// handleReadyz serves GET /readyz: 503 while draining.
+// handleReadyz serves GET /readyz: 503 while draining, and while the
+// intake budget could not take one more maximum-size body (the pod is then
+// saturated with uploads and a load balancer should prefer another); it
+// reports the compute slots and the body budget in use.
 func (s *Server) handleReadyz(c *gin.Context) {
-	if s.draining.Load() {
-		s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "draining"})
-		return
+	status, code := "ready", http.StatusOK
+	free := s.intake.available()
+	switch {
+	case s.draining.Load():
+		status, code = "draining", http.StatusServiceUnavailable
+	case free < min(s.cfg.MaxBodyBytes, s.cfg.MaxInFlightBytes):
+		status, code = "body budget full", http.StatusServiceUnavailable
 	}
-	s.writeJSON(c, http.StatusOK, map[string]any{"status": "ready", "slots": cap(s.slots), "slots_in_use": len(s.slots)})
+	s.writeJSON(c, code, map[string]any{"status": status, "slots": cap(s.slots), "slots_in_use": len(s.slots),
+		"body_budget_bytes": s.cfg.MaxInFlightBytes, "body_bytes_in_use": s.cfg.MaxInFlightBytes - free})
 }

@@ -19,7 +19,7 @@ import (
 func (s *Server) handlePlot(c *gin.Context) {
 	kind := c.Param("kind")
 	if !slices.Contains(report.PlotKinds, kind) {
-		s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("no plot %q; plots: %s", truncate(kind), strings.Join(report.PlotKinds, ", "))))
+		s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("no plot %q; plots: %s", wire.Truncate(kind), strings.Join(report.PlotKinds, ", "))))
 		return
 	}
 	mt, body, release := s.open(c, true)
@@ -52,12 +52,4 @@ func (s *Server) handlePlot(c *gin.Context) {
 		c.Header("Content-Security-Policy", report.ContentSecurityPolicy)
 		c.Data(http.StatusOK, "image/svg+xml", b)
 	}
-}
-
-// truncate shortens a client's string for a message.
-func truncate(s string) string {
-	if len(s) > 40 {
-		return s[:37] + "..."
-	}
-	return s
 }

@@ -116,7 +116,7 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 	pm := res.Primary()
 	if method != "" {
 		if pm = res.Get(method); pm == nil {
-			return nil, wire.Invalid("query parameter method", fmt.Sprintf("%q was not fitted; choose one of the fitted methods", truncate(method)))
+			return nil, wire.Invalid("query parameter method", fmt.Sprintf("%q was not fitted; choose one of the fitted methods", wire.Truncate(method)))
 		}
 	}
 	ag, err := study.AgreementOf(d.X, d.Y, res.Confidence, false)
@@ -144,14 +144,6 @@ func comparePlots(resp *wire.CompareResponse, c *study.Comparison) *plotSet {
 		fit: resp.Fits.Get(pm.Method.Name), res: pm, ols: resp.Fits.OLS,
 		diag: resp.Diagnostics, agreement: &resp.Agreement,
 		axes: Axes{X: resp.XName + " (x)", Y: resp.YName + " (y)", Unit: resp.Unit}}
-}
-
-// truncate shortens a client's string for a message.
-func truncate(s string) string {
-	if len(s) > 40 {
-		return s[:37] + "..."
-	}
-	return s
 }
 
 func g(v float64) string {
