@@ -5,6 +5,7 @@ import (
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
+	"errors"
 	"fmt"
 	"hash"
 	"io"
@@ -64,8 +65,9 @@ func (ps *plotSet) line() report.Line {
 	if ps.fit.band != nil && len(ps.x) > 1 {
 		lo, hi := slices.Min(ps.x), slices.Max(ps.x)
 		for k := range 41 {
-			x0 := lo + (hi-lo)*float64(k)/40
-			if a, b, ok := ps.fit.band(x0); ok {
+			t := float64(k) / 40
+			x0 := lo*(1-t) + hi*t // never overflows, unlike lo + (hi−lo)·t
+			if a, b, ok := ps.fit.band(x0); ok && !math.IsInf(a, 0) && !math.IsInf(b, 0) && !math.IsNaN(a) && !math.IsNaN(b) {
 				l.BandX, l.BandLo, l.BandHi = append(l.BandX, x0), append(l.BandLo, a), append(l.BandHi, b)
 			}
 		}
@@ -75,7 +77,10 @@ func (ps *plotSet) line() report.Line {
 
 // plot renders one kind; ok is false when the kind does not apply (no
 // bootstrap ran).
-func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
+func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) {
+	if err := ctx.Err(); err != nil {
+		return nil, false, err
+	}
 	d := ps.diag
 	level := make([]float64, len(d.Residuals))
 	resid := make([]float64, len(d.Residuals))
@@ -89,28 +94,28 @@ func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
 		if ps.ols != nil && ps.fitName != "ols" {
 			ols = &report.Line{Name: "OLS", Intercept: ps.ols.Intercept.Estimate, Slope: ps.ols.Slope.Estimate}
 		}
-		b, err := report.DataPlot(ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes)
+		b, err := report.DataPlot(ctx, ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes)
 		return b, true, err
 	case "residuals":
-		b, err := report.ResidualPlot(level, resid, ps.axes, d.Scale)
+		b, err := report.ResidualPlot(ctx, level, resid, ps.axes, d.Scale)
 		return b, true, err
 	case "run-order":
-		b, err := report.RunOrderPlot(order, resid, ps.axes, d.Scale)
+		b, err := report.RunOrderPlot(ctx, order, resid, ps.axes, d.Scale)
 		return b, true, err
 	case "qq":
 		th, sm := make([]float64, len(d.Normality.QQ)), make([]float64, len(d.Normality.QQ))
 		for i, q := range d.Normality.QQ {
 			th[i], sm[i] = q.Theoretical, q.Sample
 		}
-		b, err := report.QQPlot(th, sm)
+		b, err := report.QQPlot(ctx, th, sm)
 		return b, true, err
 	case "difference":
 		a := ps.agreement
 		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
 		for i := range ps.x {
-			mean[i], diff[i] = (ps.x[i]+ps.y[i])/2, ps.y[i]-ps.x[i]
+			mean[i], diff[i] = ps.x[i]/2+ps.y[i]/2, ps.y[i]-ps.x[i]
 		}
-		b, err := report.DifferencePlot(mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
+		b, err := report.DifferencePlot(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
 		return b, true, err
 	case "bootstrap":
 		bs := ps.fit.Bootstrap
@@ -124,7 +129,7 @@ func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
 		if iv == nil {
 			return nil, false, nil
 		}
-		b, err := report.BootstrapPlot(ps.fit.bootSlopes, ps.fit.Slope.Estimate, iv.Lower, iv.Upper, name)
+		b, err := report.BootstrapPlot(ctx, ps.fit.bootSlopes, ps.fit.Slope.Estimate, iv.Lower, iv.Upper, name)
 		return b, true, err
 	}
 	return nil, false, fmt.Errorf("unknown plot %q", kind)
@@ -306,15 +311,33 @@ func diagSection(d DiagnosticsOut) report.Section {
 	return s
 }
 
-func (ps *plotSet) figures() ([]report.Figure, error) {
+// caption is the report's caption of one plot of n points; it says when
+// the points are binned.
+func caption(kind string, n int) string {
+	c := plotCaptions[kind]
+	if kind == "bootstrap" || !report.Binned(n) {
+		return c
+	}
+	c += fmt.Sprintf(" The %d points are more than the %d drawn one by one, so they are shown as a density: counts in %d × %d bins, darker for more (log scale).",
+		n, report.MaxMarkers, report.DensityCols, report.DensityRows)
+	switch kind {
+	case "data":
+		c += " Error bars are left out."
+	case "run-order":
+		c += " The line joins the mean residual of each column."
+	}
+	return c
+}
+
+func (ps *plotSet) figures(ctx context.Context) ([]report.Figure, error) {
 	var out []report.Figure
 	for _, k := range plotKinds {
-		b, ok, err := ps.plot(k)
+		b, ok, err := ps.plot(ctx, k)
 		if err != nil {
 			return nil, err
 		}
 		if ok {
-			out = append(out, report.Figure{Caption: plotCaptions[k], SVG: report.SVG(b)})
+			out = append(out, report.Figure{Caption: caption(k, len(ps.x)), SVG: report.SVG(b)})
 		}
 	}
 	return out, nil
@@ -332,8 +355,9 @@ func warningTexts(ws []Warning) []string {
 	return out
 }
 
-// FitReport builds the HTML report of a line fit.
-func FitReport(resp *FitResponse, d *Dataset, sha, version string) (*report.Page, error) {
+// FitReport builds the HTML report of a line fit; drawing its plots stops
+// when ctx is done.
+func FitReport(ctx context.Context, resp *FitResponse, d *Dataset, sha, version string) (*report.Page, error) {
 	ps, err := fitPlots(resp, d, "")
 	if err != nil {
 		return nil, err
@@ -384,7 +408,7 @@ func FitReport(resp *FitResponse, d *Dataset, sha, version string) (*report.Page
 		p.Sections = append(p.Sections, *s)
 	}
 	p.Sections = append(p.Sections, diagSection(ps.diag))
-	figs, err := ps.figures()
+	figs, err := ps.figures(ctx)
 	if err != nil {
 		return nil, err
 	}
@@ -392,8 +416,9 @@ func FitReport(resp *FitResponse, d *Dataset, sha, version string) (*report.Page
 	return p, nil
 }
 
-// CompareReport builds the HTML report of a method-comparison study.
-func CompareReport(resp *CompareResponse, req *CompareRequest, sha, version string) (*report.Page, error) {
+// CompareReport builds the HTML report of a method-comparison study;
+// drawing its plots stops when ctx is done.
+func CompareReport(ctx context.Context, resp *CompareResponse, req *CompareRequest, sha, version string) (*report.Page, error) {
 	ps := comparePlots(resp, req)
 	c := &resp.Comparison
 	unit := ""
@@ -456,7 +481,7 @@ func CompareReport(resp *CompareResponse, req *CompareRequest, sha, version stri
 		p.Sections = append(p.Sections, *s)
 	}
 	p.Sections = append(p.Sections, diagSection(c.Diagnostics))
-	figs, err := ps.figures()
+	figs, err := ps.figures(ctx)
 	if err != nil {
 		return nil, err
 	}
@@ -544,10 +569,18 @@ func (s *Server) handlePlot(c *gin.Context) {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	b, ok, err := ps.plot(kind)
+	type drawnPlot struct {
+		b  []byte
+		ok bool
+	}
+	out, err := render(s, c, func(ctx context.Context) (drawnPlot, error) {
+		b, ok, err := ps.plot(ctx, kind)
+		return drawnPlot{b, ok}, err
+	})
+	b, ok := out.b, out.ok
 	switch {
 	case err != nil:
-		s.problem(c, newProblem(kindUnfittable, "the plot could not be drawn: "+err.Error()))
+		s.problem(c, s.toProblem(c, err))
 	case !ok:
 		s.problem(c, invalid("/bootstrap/resamples", "the bootstrap plot needs a bootstrap: ask for resamples"))
 	default:
@@ -567,6 +600,43 @@ func inSlot[T any](s *Server, c *gin.Context, compute func(context.Context) (T, 
 	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
 	defer cancel()
 	return compute(ctx)
+}
+
+// render runs a drawing step (plots, a report's page) in a compute slot
+// under the request deadline, like a fit. Errors of the drawing become a
+// 422 problem; a panic that escapes the report package's own guard is
+// recovered into the same problem (and logged without its value, which may
+// hold the client's data).
+func render[T any](s *Server, c *gin.Context, draw func(context.Context) (T, error)) (T, error) {
+	return inSlot(s, c, func(ctx context.Context) (out T, err error) {
+		defer func() {
+			if r := recover(); r != nil {
+				s.cfg.Logger.Error("panic while drawing", "route", c.FullPath())
+				var zero T
+				out, err = zero, newProblem(kindUnfittable, report.ErrDraw.Error())
+			}
+		}()
+		out, err = draw(ctx)
+		var p *Problem
+		if err != nil && !errors.As(err, &p) && !errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
+			err = newProblem(kindUnfittable, "the plot could not be drawn: "+err.Error())
+		}
+		return out, err
+	})
+}
+
+// fitReport builds a line fit's report in a compute slot (see render).
+func (s *Server) fitReport(c *gin.Context, resp *FitResponse, d *Dataset, sha string) (*report.Page, error) {
+	return render(s, c, func(ctx context.Context) (*report.Page, error) {
+		return FitReport(ctx, resp, d, sha, s.cfg.Version)
+	})
+}
+
+// compareReport builds a study's report in a compute slot (see render).
+func (s *Server) compareReport(c *gin.Context, resp *CompareResponse, req *CompareRequest, sha string) (*report.Page, error) {
+	return render(s, c, func(ctx context.Context) (*report.Page, error) {
+		return CompareReport(ctx, resp, req, sha, s.cfg.Version)
+	})
 }
 
 // computeFit runs Fit in a compute slot under the deadline.
@@ -670,7 +740,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 			resp, err = s.computeCompare(c, req)
 		}
 		if err == nil {
-			page, err = CompareReport(resp, req, sha, s.cfg.Version)
+			page, err = s.compareReport(c, resp, req, sha)
 		}
 		if err != nil {
 			s.formProblem(c, err)
@@ -692,7 +762,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 			resp, err = s.computeFit(c, req)
 		}
 		if err == nil {
-			page, err = FitReport(resp, d, sha, s.cfg.Version)
+			page, err = s.fitReport(c, resp, d, sha)
 		}
 		if err != nil {
 			s.formProblem(c, err)

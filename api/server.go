@@ -411,7 +411,7 @@ func (s *Server) settings(workers int) Settings {
 func (s *Server) handleFit(c *gin.Context) {
 	serveAnalysis(s, c, fitFromCSV, DecodeFitJSON, s.computeFit,
 		func(resp *FitResponse, req *FitRequest, sha string) (*report.Page, error) {
-			return FitReport(resp, &req.Points, sha, s.cfg.Version)
+			return s.fitReport(c, resp, &req.Points, sha)
 		})
 }
 

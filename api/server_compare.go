@@ -24,6 +24,6 @@ func CompareCSV(ctx context.Context, body io.Reader, q url.Values, set Settings)
 func (s *Server) handleCompare(c *gin.Context) {
 	serveAnalysis(s, c, compareFromCSV, DecodeCompareJSON, s.computeCompare,
 		func(resp *CompareResponse, req *CompareRequest, sha string) (*report.Page, error) {
-			return CompareReport(resp, req, sha, s.cfg.Version)
+			return s.compareReport(c, resp, req, sha)
 		})
 }
