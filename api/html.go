@@ -564,16 +564,15 @@ func (s *Server) handlePlot(c *gin.Context) {
 		s.problem(c, s.toProblem(c, err))
 		return
 	}
-	ps, err := fitPlots(resp, &req.Points, method)
-	if err != nil {
-		s.problem(c, s.toProblem(c, err))
-		return
-	}
 	type drawnPlot struct {
 		b  []byte
 		ok bool
 	}
 	out, err := render(s, c, func(ctx context.Context) (drawnPlot, error) {
+		ps, err := fitPlots(resp, &req.Points, method)
+		if err != nil {
+			return drawnPlot{}, err
+		}
 		b, ok, err := ps.plot(ctx, kind)
 		return drawnPlot{b, ok}, err
 	})

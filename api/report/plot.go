@@ -587,12 +587,17 @@ func clip(p, q [2]float64) (a, b [2]float64, ok bool) {
 	if t0 > t1 {
 		return a, b, false
 	}
+	// A cut end lies on the square's edge up to rounding (of order 1e−7
+	// for ends 1e9 away): clamp it onto the square.
+	in := func(x [2]float64) [2]float64 {
+		return [2]float64{math.Min(1, math.Max(0, x[0])), math.Min(1, math.Max(0, x[1]))}
+	}
 	a, b = p, q
 	if t0 > 0 {
-		a = [2]float64{p[0] + t0*d[0], p[1] + t0*d[1]}
+		a = in([2]float64{p[0] + t0*d[0], p[1] + t0*d[1]})
 	}
 	if t1 < 1 {
-		b = [2]float64{p[0] + t1*d[0], p[1] + t1*d[1]}
+		b = in([2]float64{p[0] + t1*d[0], p[1] + t1*d[1]})
 	}
 	return a, b, true
 }
