@@ -234,3 +234,19 @@ func TestRenderInSlot(t *testing.T) {
 		t.Errorf("with every slot busy: %v, want a 503 problem", err)
 	}
 }
+
+// TestRenderRecoversPanic: a panic while drawing is answered as a 422
+// problem, not by the router's 500.
+func TestRenderRecoversPanic(t *testing.T) {
+	srv, err := NewServer(Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c, _ := gin.CreateTestContext(httptest.NewRecorder())
+	c.Request = httptest.NewRequest("POST", "/v1/plots/data", nil)
+	_, err = render(srv, c, func(context.Context) (int, error) { panic("illegal range") })
+	var p *Problem
+	if !errors.As(err, &p) || p.Status != http.StatusUnprocessableEntity {
+		t.Errorf("a panic while drawing gave %v, want a 422 problem", err)
+	}
+}
