@@ -66,7 +66,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		}
 		a, err := analyse(s, c, compareEndpoint, "csv", bytes.NewReader(data), q)
 		if err == nil {
-			page, err = s.comparePage(a, sha)
+			page, err = drawPage(s, c, a, sha, s.comparePage)
 		}
 		if err != nil {
 			s.formProblem(c, err)
@@ -77,7 +77,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		field("methods", "methods")
 		a, err := analyse(s, c, fitEndpoint, "csv", bytes.NewReader(data), q)
 		if err == nil {
-			page, err = s.fitPage(a, sha)
+			page, err = drawPage(s, c, a, sha, s.fitPage)
 		}
 		if err != nil {
 			s.formProblem(c, err)

@@ -77,7 +77,7 @@ func analyse[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], kin
 // serve is the handler of an analysis endpoint: the media type, the body
 // within its limits and the memory budget, analyse, then JSON or (for
 // Accept: text/html) the HTML report.
-func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page func(*answer[Req, Res], string) (*report.Page, error)) {
+func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page pageOf[Req, Res]) {
 	kind, body, release := s.open(c, true)
 	if kind == "" {
 		return
@@ -95,7 +95,7 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 	}
 	if wantsHTML(c) {
 		sum := sha256.Sum256(raw)
-		pg, err := page(a, hex.EncodeToString(sum[:]))
+		pg, err := drawPage(s, c, a, hex.EncodeToString(sum[:]), page)
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))
 			return
@@ -147,6 +147,38 @@ func (s *Server) problemFor(c *gin.Context, err error) *wire.Problem {
 	}
 	s.cfg.Logger.Error("internal error", "route", c.FullPath(), "error", err.Error())
 	return wire.NewProblem(wire.KindInternal, "the server met an internal error; it has been logged")
+}
+
+// pageOf builds the HTML report of an answer; drawing stops when ctx is
+// done.
+type pageOf[Req, Res any] func(ctx context.Context, a *answer[Req, Res], sha string) (*report.Page, error)
+
+// drawPage builds a's report in a compute slot under the deadline (render).
+func drawPage[Req, Res any](s *Server, c *gin.Context, a *answer[Req, Res], sha string, page pageOf[Req, Res]) (*report.Page, error) {
+	return render(s, c, func(ctx context.Context) (*report.Page, error) { return page(ctx, a, sha) })
+}
+
+// render runs a drawing step (a plot, a report's page) in a compute slot
+// under the request deadline, like a fit. A drawing error that is not
+// already a problem becomes a 422; a panic that escapes the report
+// package's own guard is recovered into the same problem (and logged
+// without its value, which may hold the client's data).
+func render[T any](s *Server, c *gin.Context, draw func(context.Context) (T, error)) (T, error) {
+	return inSlot(s, c, func(ctx context.Context) (out T, err error) {
+		defer func() {
+			if r := recover(); r != nil {
+				s.cfg.Logger.Error("panic while drawing", "route", c.FullPath())
+				var zero T
+				out, err = zero, wire.NewProblem(wire.KindUnfittable, report.ErrDraw.Error())
+			}
+		}()
+		out, err = draw(ctx)
+		var p *wire.Problem
+		if err != nil && !errors.As(err, &p) && !errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
+			err = wire.NewProblem(wire.KindUnfittable, "the plot could not be drawn: "+err.Error())
+		}
+		return out, err
+	})
 }
 
 // inSlot runs compute in a compute slot under the request deadline.

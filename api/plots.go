@@ -1,7 +1,7 @@
 package api
 
 import (
-	"errors"
+	"context"
 	"fmt"
 	"net/http"
 	"slices"
@@ -39,13 +39,18 @@ func (s *Server) handlePlot(c *gin.Context) {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	b, ok, err := report.FitPlot(kind, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, method)
-	var wp *wire.Problem
+	type drawn struct {
+		b  []byte
+		ok bool
+	}
+	out, err := render(s, c, func(ctx context.Context) (drawn, error) {
+		b, ok, err := report.FitPlot(ctx, kind, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, method)
+		return drawn{b, ok}, err
+	})
+	b, ok := out.b, out.ok
 	switch {
-	case errors.As(err, &wp):
-		s.problem(c, wp)
 	case err != nil:
-		s.problem(c, wire.NewProblem(wire.KindUnfittable, "the plot could not be drawn: "+err.Error()))
+		s.problem(c, s.problemFor(c, err))
 	case !ok:
 		s.problem(c, wire.Invalid("/bootstrap/resamples", "the bootstrap plot needs a bootstrap: ask for resamples"))
 	default:
