@@ -89,7 +89,7 @@ func York(x, y, sx, sy, r []float64, opt *YorkOptions) (*Fit, error) {
 	res := closing(xs, ys, sxs, sys, r, ln)
 	if !(res.curv > 0) && !ln.scanned {
 		// A stationary point that is not a minimum: search globally.
-		if g, err := yk.scan(xs, ys, sxs, sys, r, st.cx, st.cy); err == nil {
+		if g, err := yk.scan(xs, ys, sxs, sys, r, st); err == nil {
 			g.iter += ln.iter
 			ln, res = g, closing(xs, ys, sxs, sys, r, g)
 		}
@@ -149,7 +149,7 @@ func York(x, y, sx, sy, r []float64, opt *YorkOptions) (*Fit, error) {
 		} else if n < 4 {
 			f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped,
 				Message: "york: the jackknife needs at least 4 points"})
-		} else if as, bs, err := yk.jackknife(xs, ys, sxs, sys, r, res.b, st.hard); err != nil {
+		} else if as, bs, err := yk.jackknife(xs, ys, sxs, sys, r, res.b, st); err != nil {
 			f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: "york: no jackknife: " + trimPrefix(err.Error())})
 		} else {
 			for i := range as {
@@ -328,6 +328,9 @@ type yorkStartInfo struct {
 	// (Σσ² ≥ yorkHardRatio·Σ(v − v̄)²): S may then have several local minima
 	// over the slope, and York's line is found by the global search.
 	hard bool
+	// kappa = √(Σσy²/Σσx²) is the slope of the scan's unit angle: the
+	// global search works in units where the typical error is round.
+	kappa float64
 }
 
 // yorkHardRatio is the share Σσ²/Σ(v − v̄)² of an axis from which the data
@@ -372,6 +375,10 @@ func yorkStart(x, y, sx, sy []float64) (st yorkStartInfo) {
 	st = yorkStartInfo{cx: x0 + mx, cy: y0 + my, b: b}
 	st.ordinary = ordinaryScale(vx, sxx, fn) && ordinaryScale(vy, syy, fn)
 	st.hard = vx > 0 && vy > 0 && (vx >= yorkHardRatio*sxx || vy >= yorkHardRatio*syy)
+	st.kappa = 1
+	if k := math.Sqrt(vy / vx); k > 0 && allFinite(k) {
+		st.kappa = k
+	}
 	return st
 }
 
@@ -457,7 +464,7 @@ func (yk *york) solve(x, y, sx, sy, r []float64, st yorkStartInfo) (yorkLine, er
 	if _, ok := err.(*PointError); ok {
 		return ln, err
 	}
-	g, serr := yk.scan(x, y, sx, sy, r, st.cx, st.cy)
+	g, serr := yk.scan(x, y, sx, sy, r, st)
 	if serr != nil {
 		return ln, err
 	}
@@ -638,28 +645,28 @@ func yorkPassR(x, y, sx, sy, r []float64, cx, cy, b float64) (s yorkSums, err er
 }
 
 // yorkScanAngles is the number of slope angles at which the global search
-// evaluates S and dS/dθ. A local minimum is found when dS/dθ changes sign
+// evaluates S and dS/dφ. A local minimum is found when dS/dφ changes sign
 // between neighbouring angles, so only a minimum with a maximum closer
 // than π/yorkScanAngles beside it can be missed; the property test of the
 // global minimum checks this against a scan of 20,000 angles.
-const yorkScanAngles = 96
+const yorkScanAngles = 256
 
-// scan is York's global search: S(θ) and dS/dθ over the slope angle
-// θ ∈ (−π/2, π/2) (b = tan θ, S is π-periodic in θ) at yorkScanAngles
-// angles; in every interval where dS/dθ goes from negative to positive a
-// local minimum, located by regula falsi (Illinois) on dS/dθ and polished
-// by York's iteration. It returns the lowest, and lists them all in
-// yk.minima.
-func (yk *york) scan(x, y, sx, sy, r []float64, cx, cy float64) (yorkLine, error) {
+// scan is York's global search: S and dS/dφ over the slope angle
+// φ ∈ (−π/2, π/2), b = κ·tan φ with κ = st.kappa (S is π-periodic in φ) at
+// yorkScanAngles angles; in every interval where dS/dφ goes from negative
+// to positive a local minimum, located by regula falsi (Illinois) on dS/dφ
+// and polished by York's iteration. It returns the lowest, and lists them
+// all in yk.minima.
+func (yk *york) scan(x, y, sx, sy, r []float64, st yorkStartInfo) (yorkLine, error) {
 	const m = yorkScanAngles
 	h := math.Pi / m
+	cx, cy, kappa := st.cx, st.cy, st.kappa
 	if cap(yk.grid) < m {
 		yk.grid = make([]float64, m)
 	}
 	ds := yk.grid[:m]
 	for k := range ds {
-		p := yk.profile(x, y, sx, sy, r, cx, cy, -math.Pi/2+(float64(k)+0.5)*h)
-		ds[k] = p.ds
+		ds[k] = yk.profile(x, y, sx, sy, r, cx, cy, kappa, -math.Pi/2+(float64(k)+0.5)*h).ds
 	}
 	yk.minima = yk.minima[:0]
 	best, bestS := yorkLine{}, math.Inf(1)
@@ -670,16 +677,16 @@ func (yk *york) scan(x, y, sx, sy, r []float64, cx, cy float64) (yorkLine, error
 		if !(ds[k] < 0 && ds[j] >= 0) {
 			continue
 		}
-		th, n := yk.rootAngle(x, y, sx, sy, r, cx, cy, lo, lo+h, ds[k], ds[j])
+		phi, n := yk.rootAngle(x, y, sx, sy, r, cx, cy, kappa, lo, lo+h, ds[k], ds[j])
 		iter += n
-		ln, err := yk.iterate(x, y, sx, sy, r, cx, cy, math.Tan(th))
+		ln, err := yk.iterate(x, y, sx, sy, r, cx, cy, kappa*math.Tan(phi))
 		iter += ln.iter
-		if err != nil || angleDist(math.Atan(ln.b), th) > h {
+		if err != nil || angleDist(math.Atan(ln.b/kappa), phi) > h {
 			// York's iteration left the interval: keep the located minimum.
-			p := yk.profile(x, y, sx, sy, r, cx, cy, th)
-			ln = yorkLine{b: math.Tan(th), cx: cx + p.mx, cy: cy + p.my}
+			p := yk.profile(x, y, sx, sy, r, cx, cy, kappa, phi)
+			ln = yorkLine{b: kappa * math.Tan(phi), cx: cx + p.mx, cy: cy + p.my}
 		}
-		s := yk.profile(x, y, sx, sy, r, ln.cx, ln.cy, math.Atan(ln.b)).s
+		s := yk.profile(x, y, sx, sy, r, ln.cx, ln.cy, kappa, math.Atan(ln.b/kappa)).s
 		if !allFinite(ln.b, s) {
 			continue
 		}
@@ -700,10 +707,10 @@ func angleDist(a, b float64) float64 {
 	return math.Abs(math.Remainder(a-b, math.Pi))
 }
 
-// rootAngle locates a zero of dS/dθ in [lo, hi], where it is fl < 0 at lo
+// rootAngle locates a zero of dS/dφ in [lo, hi], where it is fl < 0 at lo
 // and fh ≥ 0 at hi, by regula falsi with the Illinois modification, to the
 // resolution of the angle; it returns the angle and the passes it took.
-func (yk *york) rootAngle(x, y, sx, sy, r []float64, cx, cy, lo, hi, fl, fh float64) (float64, int) {
+func (yk *york) rootAngle(x, y, sx, sy, r []float64, cx, cy, kappa, lo, hi, fl, fh float64) (float64, int) {
 	side := 0
 	for it := 1; it <= 100; it++ {
 		m := lo - fl*(hi-lo)/(fh-fl)
@@ -713,7 +720,7 @@ func (yk *york) rootAngle(x, y, sx, sy, r []float64, cx, cy, lo, hi, fl, fh floa
 		if !(m > lo && m < hi) {
 			return m, it
 		}
-		fm := yk.profile(x, y, sx, sy, r, cx, cy, m).ds
+		fm := yk.profile(x, y, sx, sy, r, cx, cy, kappa, m).ds
 		switch {
 		case fm == 0:
 			return m, it
@@ -739,35 +746,40 @@ func (yk *york) rootAngle(x, y, sx, sy, r []float64, cx, cy, lo, hi, fl, fh floa
 	return lo + (hi-lo)/2, 100
 }
 
-// yorkProfile is S at one slope angle, its derivative in θ, and the
-// weighted centroid (mx, my) relative to the reference point.
+// yorkProfile is S at one slope angle, its derivative in the angle, and
+// the weighted centroid (mx, my) relative to the reference point.
 type yorkProfile struct{ s, ds, mx, my float64 }
 
 // profileSums are the sums of one profile pass (see profile).
 type profileSums struct{ w, wx, wy, we, wee, a, b, c, d, e float64 }
 
-// profile evaluates S and dS/dθ at the line angle θ in one pass, with the
-// points relative to (cx, cy). With c = cos θ, s = sin θ, the residual
-// e = c·y − s·x, its variance d = c²σy² + s²σx² − 2cs·ρ and W = 1/d (York's
-// terms multiplied through by c²),
+func (p profileSums) plus(q profileSums) profileSums {
+	return profileSums{p.w + q.w, p.wx + q.wx, p.wy + q.wy, p.we + q.we, p.wee + q.wee,
+		p.a + q.a, p.b + q.b, p.c + q.c, p.d + q.d, p.e + q.e}
+}
+
+// profile evaluates S and dS/dφ at the slope b = κ·tan φ in one pass, with
+// the points relative to (cx, cy). With the line's direction (c, s) =
+// (cos φ, κ·sin φ), the residual e = c·y − s·x, its variance
+// d = c²σy² + s²σx² − 2cs·ρ and W = 1/d (York's terms multiplied through by
+// c², so that S is finite at vertical lines),
 //
 //	S = ΣWe² − (ΣWe)²/ΣW = min over k of ΣW(e − k)²
-//	dS/dθ = Σ[−d′W²(e − k)² + 2W(e − k)e′],  k = ΣWe/ΣW
+//	dS/dφ = Σ[−d′W²(e − k)² + 2W(e − k)e′],  k = ΣWe/ΣW
 //
-// (the envelope theorem), e′ = −s·y − c·x, d′ = 2cs(σx² − σy²) − 2(c² − s²)ρ.
-// A point with d ≤ 0 (a vertical line through a point with σx = 0) makes S
-// infinite there.
-func (yk *york) profile(x, y, sx, sy, r []float64, cx, cy, th float64) yorkProfile {
-	c, s := math.Cos(th), math.Sin(th)
+// (the envelope theorem), with c′ = −sin φ, s′ = κ·cos φ, e′ = c′y − s′x,
+// d′ = 2cc′σy² + 2ss′σx² − 2(c′s + cs′)ρ. A point with d ≤ 0 (a vertical
+// line through a point with σx = 0) makes S infinite there.
+func (yk *york) profile(x, y, sx, sy, r []float64, cx, cy, kappa, phi float64) yorkProfile {
+	sn, cs := math.Sincos(phi)
+	dir := yorkDir{c: cs, s: kappa * sn, dc: -sn, ds: kappa * cs}
 	var p profileSums
 	if yk.skipping {
 		k := yk.skip
-		p = profilePart(x[:k], y[:k], sx[:k], sy[:k], rPart(r, 0, k), cx, cy, c, s)
-		q := profilePart(x[k+1:], y[k+1:], sx[k+1:], sy[k+1:], rPart(r, k+1, len(x)), cx, cy, c, s)
-		p = profileSums{p.w + q.w, p.wx + q.wx, p.wy + q.wy, p.we + q.we, p.wee + q.wee,
-			p.a + q.a, p.b + q.b, p.c + q.c, p.d + q.d, p.e + q.e}
+		p = profilePart(x[:k], y[:k], sx[:k], sy[:k], rPart(r, 0, k), cx, cy, dir).
+			plus(profilePart(x[k+1:], y[k+1:], sx[k+1:], sy[k+1:], rPart(r, k+1, len(x)), cx, cy, dir))
 	} else {
-		p = profilePart(x, y, sx, sy, r, cx, cy, c, s)
+		p = profilePart(x, y, sx, sy, r, cx, cy, dir)
 	}
 	if !(p.w > 0) || math.IsInf(p.w, 0) {
 		return yorkProfile{s: math.Inf(1), ds: math.NaN()}
@@ -780,6 +792,9 @@ func (yk *york) profile(x, y, sx, sy, r []float64, cx, cy, th float64) yorkProfi
 	}
 }
 
+// yorkDir is a line direction (c, s) and its derivative in the scan angle.
+type yorkDir struct{ c, s, dc, ds float64 }
+
 func rPart(r []float64, lo, hi int) []float64 {
 	if r == nil {
 		return nil
@@ -787,17 +802,17 @@ func rPart(r []float64, lo, hi int) []float64 {
 	return r[lo:hi]
 }
 
-func profilePart(x, y, sx, sy, r []float64, cx, cy, c, s float64) (p profileSums) {
+func profilePart(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) (p profileSums) {
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
-	cc, ss, cs := c*c, s*s, c*s
+	c, s, dc, ds := dir.c, dir.s, dir.dc, dir.ds
 	for i := range x {
 		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
-		d := cc*vy + ss*vx
-		dd := 2 * cs * (vx - vy)
+		d := c*c*vy + s*s*vx
+		dd := 2 * (c*dc*vy + s*ds*vx)
 		if r != nil {
 			rho := r[i] * sx[i] * sy[i]
-			d -= 2 * cs * rho
-			dd -= 2 * (cc - ss) * rho
+			d -= 2 * c * s * rho
+			dd -= 2 * (dc*s + c*ds) * rho
 		}
 		if !(d > 0) {
 			return profileSums{w: math.Inf(1)}
@@ -805,7 +820,7 @@ func profilePart(x, y, sx, sy, r []float64, cx, cy, c, s float64) (p profileSums
 		w := 1 / d
 		xp, yp := x[i]-cx, y[i]-cy
 		e := c*yp - s*xp
-		de := -s*yp - c*xp
+		de := dc*yp - ds*xp
 		we := w * e
 		dw2 := dd * w * w
 		p.w += w
@@ -887,12 +902,12 @@ func rAt(r []float64, i int) float64 {
 //
 // The leave-one-out fits stop at a relative slope change of 1e-12: the
 // jackknife's spread is of the order of the SE, many orders above that.
-func (yk *york) jackknife(x, y, sx, sy, r []float64, b float64, hard bool) (as, bs []float64, err error) {
+func (yk *york) jackknife(x, y, sx, sy, r []float64, b float64, st0 yorkStartInfo) (as, bs []float64, err error) {
 	jk := &york{tol: max(yk.tol, 1e-12), maxIter: yk.maxIter, skipping: true}
 	n := len(x)
 	as = make([]float64, n)
 	bs = make([]float64, n)
-	st := yorkStartInfo{cx: yk.cx, cy: yk.cy, b: b, hard: hard}
+	st := yorkStartInfo{cx: yk.cx, cy: yk.cy, b: b, hard: st0.hard, kappa: st0.kappa}
 	for i := range n {
 		jk.skip = i
 		ai, bi, _, err := jk.slopeLine(x, y, sx, sy, r, st)
