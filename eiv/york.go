@@ -86,14 +86,14 @@ func York(x, y, sx, sy, r []float64, opt *YorkOptions) (*Fit, error) {
 	if err != nil {
 		return nil, err
 	}
-	res := closing(xs, ys, sxs, sys, r, ln)
-	if !(res.curv > 0) && !ln.scanned {
+	if !ln.scanned && (ln.minimum < 0 || ln.minimum == 0 && !(curvature(xs, ys, sxs, sys, r, ln) > 0)) {
 		// A stationary point that is not a minimum: search globally.
 		if g, err := yk.scan(xs, ys, sxs, sys, r, st); err == nil {
 			g.iter += ln.iter
-			ln, res = g, closing(xs, ys, sxs, sys, r, g)
+			ln = g
 		}
 	}
+	res := closing(xs, ys, sxs, sys, r, ln)
 	yk.cx, yk.cy = ln.cx, ln.cy
 	// Back to the data's units: x = x′/kx, y = y′/ky (exact powers of two).
 	bk, ak := kx/ky, 1/ky
@@ -257,12 +257,14 @@ type yorkLine struct {
 	b, cx, cy float64
 	iter      int
 	scanned   bool
+	// minimum is +1 when the iteration's last secant slope shows the
+	// fixed point to be a minimum of S, −1 when it shows a maximum, and 0
+	// when the iteration had no secant step long enough to tell.
+	minimum int
 }
 
 type yorkResult struct {
 	a, b, seA, seB, cov, s float64
-	// curv is d²S/db² at b: positive at a minimum of S.
-	curv float64
 }
 
 func newYork(opt *YorkOptions, n int) *york {
@@ -506,6 +508,7 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 	prev2 := math.NaN()
 	var pb, pg float64 // the previous slope and its image g(pb)
 	change, prevChange := math.Inf(1), math.Inf(1)
+	minimum := 0
 	for iter := 1; iter <= yk.maxIter; iter++ {
 		var s yorkSums
 		var err error
@@ -532,12 +535,22 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 			change /= math.Abs(nb)
 		}
 		if change <= yk.tol || nb == prev2 || (change < 1e-12 && change >= prevChange) {
-			return yorkLine{b: nb, cx: cx, cy: cy, iter: iter}, nil
+			return yorkLine{b: nb, cx: cx, cy: cy, iter: iter, minimum: minimum}, nil
 		}
 		next := nb
 		if iter > 1 {
 			f0, f1 := pg-pb, nb-b
-			if d := f1 - f0; d != 0 && (d/(b-pb))*den < 0 {
+			d := f1 - f0
+			if math.Abs(b-pb) >= 1e-8*math.Abs(b) {
+				// Steps this long measure f′ far above rounding.
+				minimum = 0
+				if s := d / (b - pb) * den; s < 0 {
+					minimum = 1
+				} else if s > 0 {
+					minimum = -1
+				}
+			}
+			if d != 0 && (d/(b-pb))*den < 0 {
 				if sb := b - f1*(b-pb)/d; math.Abs(sb-nb) <= 2*math.Abs(nb-b) && allFinite(sb) {
 					next = sb
 				}
@@ -837,20 +850,16 @@ func profilePart(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) (p prof
 	return p
 }
 
-// closing evaluates at York's slope, in one pass, the standard errors, S
-// and d²S/db². Relative to the converged centroid c (U = X − c_x,
-// V = Y − c_y, with weighted means δu, δv that are zero up to rounding):
+// closing evaluates at York's slope, in one pass, the standard errors and
+// S. Relative to the converged centroid c (U = X − c_x, V = Y − c_y, with
+// weighted means δu, δv that are zero up to rounding):
 //
 //	S = ΣW(V − bU)² − ΣW·(δv − b·δu)²
 //	Σ W(x_adj − x̄_adj)² = ΣWβ² − (ΣWβ)²/ΣW,  x̄_adj = c_x + δu + ΣWβ/ΣW
-//	d²S/db² = Σ(8W³γ² − 2W²σx²)e² + 8ΣW²γeU + 2ΣWU² − 8(ΣW²γe)²/ΣW
-//
-// with e = V − bU and γ = b·σx² − ρ (the Schur complement of the Hessian
-// of ΣW(Y − a − bX)² in (a, b), W′ = −2W²γ, W″ = 8W³γ² − 2W²σx²).
 func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 	b, cx, cy := ln.b, ln.cx, ln.cy
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
-	var sw, su, sv, sb, sbb, sr, suu, c2, cu, ce float64
+	var sw, su, sv, sb, sbb, sr float64
 	for i := range x {
 		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
 		rho := 0.0
@@ -861,17 +870,12 @@ func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 		u, v := x[i]-cx, y[i]-cy
 		beta := w * (u*(vy-b*rho) + v*(b*vx-rho))
 		e := v - b*u
-		g := w * w * (b*vx - rho) // W²γ
 		sw += w
 		su += w * u
 		sv += w * v
 		sb += w * beta
 		sbb += w * beta * beta
 		sr += w * e * e
-		suu += w * u * u
-		c2 += (8*w*g*(b*vx-rho) - 2*w*w*vx) * e * e
-		cu += g * e * u
-		ce += g * e
 	}
 	du, dv := su/sw, sv/sw
 	mx, my := cx+du, cy+dv
@@ -881,8 +885,40 @@ func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 	varB := 1 / swuu
 	varA := 1/sw + xbar*xbar*varB
 	return yorkResult{a: my - b*mx, b: b, seA: math.Sqrt(varA), seB: math.Sqrt(varB),
-		cov: -xbar * varB, s: math.Max(s, 0),
-		curv: c2 + 8*cu + 2*(suu-sw*du*du) - 8*ce*ce/sw}
+		cov: -xbar * varB, s: math.Max(s, 0)}
+}
+
+// curvature is d²S/db² at York's slope, from one pass: the Schur
+// complement of the Hessian of ΣW(Y − a − bX)² in (a, b), with W′ = −2W²γ
+// and W″ = 8W³γ² − 2W²σx², γ = b·σx² − ρ,
+//
+//	d²S/db² = Σ(8W³γ² − 2W²σx²)e² + 8ΣW²γeU + 2ΣWU² − 8(ΣW²γe)²/ΣW
+//
+// with U = X − X̄, e = V − bU relative to the weighted centroid (taken as
+// (cx, cy), York's last pass's, whose remaining shift is negligible for a sign).
+func curvature(x, y, sx, sy, r []float64, ln yorkLine) float64 {
+	b, cx, cy := ln.b, ln.cx, ln.cy
+	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
+	var sw, su, suu, c2, cu, ce float64
+	for i := range x {
+		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
+		rho := 0.0
+		if r != nil {
+			rho = r[i] * sx[i] * sy[i]
+		}
+		w := 1 / (vy + b*b*vx - 2*b*rho)
+		u := x[i] - cx
+		e := y[i] - cy - b*u
+		gam := b*vx - rho
+		g := w * w * gam
+		sw += w
+		su += w * u
+		suu += w * u * u
+		c2 += (8*w*g*gam - 2*w*w*vx) * e * e
+		cu += g * e * u
+		ce += g * e
+	}
+	return c2 + 8*cu + 2*(suu-su*su/sw) - 8*ce*ce/sw
 }
 
 func yorkBeta(u, v, b, sx, sy, r float64) float64 {
