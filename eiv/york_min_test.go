@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"eivfit/eiv"
@@ -197,8 +198,8 @@ func TestYorkIssue12GlobalMinimum(t *testing.T) {
 }
 
 // York returns the global minimum of S on 500 random hard datasets
-// (hardYork), and on 300 with σx from 1/50 to 1/3 of the spread of x,
-// where the search's threshold (Σσ² ≥ Σ(v − v̄)²/64) lies, checked against a brute-force scan of 20,000 slope angles written in the
+// (hardYork), and on 300 with σx from 0.02 to 0.3 of the spread of x,
+// where the search's threshold (Σσ² ≥ Σ(v − v̄)²/16) lies, checked against a brute-force scan of 20,000 slope angles written in the
 // test (scanMinS). Both sides compute S in double precision at a minimum,
 // where it is flat: they agree to rounding (~1e-14 relative) when they
 // find the same minimum and differ by O(1) when not; 1e-9 separates the two.
@@ -379,5 +380,30 @@ func TestYorkJackknifeHard(t *testing.T) {
 				near(t, fmt.Sprintf("loo slope %d", i), f.Jackknife.SlopeLOO[i], g.Slope.Value, 1e-10)
 			}
 		})
+	}
+}
+
+// With one axis's σ all zero (weighted least squares in y, or in x) York
+// rescales by the axis's spread instead, across the accepted range; when x
+// and y differ so much in scale that the covariance of slope and intercept
+// leaves double precision (x ~ 1e-140 and y ~ 1e140: b ~ 1e280,
+// cov ~ 1e420), the error says so instead of speaking of overflowing values.
+func TestYorkScaleEdges(t *testing.T) {
+	c := yorkIssue12
+	zero := make([]float64, len(c.X))
+	for _, tc := range []struct {
+		name   string
+		sx, sy []float64
+	}{{"sx=0", zero, c.SY}, {"sy=0", c.SX, zero}} {
+		ref := must(t)(eiv.York(c.X, c.Y, tc.sx, tc.sy, nil, nil))
+		for _, k := range []float64{1e-149, 1e-100, 1e100, 1e140} {
+			f := must(t)(eiv.York(scale(c.X, k), scale(c.Y, k), scale(tc.sx, k), scale(tc.sy, k), nil, nil))
+			// 10^k rounds every value once: 1e-12 as in TestYorkScaleInvariance.
+			near(t, fmt.Sprintf("%s slope at %g", tc.name, k), f.Slope.Value, ref.Slope.Value, 1e-12)
+		}
+	}
+	_, err := eiv.York(scale(c.X, 1e-140), scale(c.Y, 1e140), scale(c.SX, 1e-140), scale(c.SY, 1e140), c.R, nil)
+	if !errors.Is(err, eiv.ErrDegenerate) || !strings.Contains(err.Error(), "differ too much in scale") {
+		t.Errorf("x ~ 1e-140, y ~ 1e140: error %v", err)
 	}
 }
