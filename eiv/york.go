@@ -567,7 +567,7 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 	return yorkLine{iter: yk.maxIter}, &ConvergenceError{Method: MethodYork, Iterations: yk.maxIter, Change: change}
 }
 
-// yorkSums are the sums of one York pass (see slopeLine).
+// yorkSums are the sums of one York pass (see iterate).
 type yorkSums struct {
 	w, wx, wy float64
 	num, den  float64 // ΣW²(αX′Y′ + γY′²), ΣW²(αX′² + γX′Y′)
@@ -662,7 +662,7 @@ func yorkPassR(x, y, sx, sy, r []float64, cx, cy, b float64) (s yorkSums, err er
 	return s, nil
 }
 
-// yorkScanAngles is the range of the number of slope angles at which the
+// yorkScanMin and yorkScanMax bound of the number of slope angles at which the
 // global search evaluates S and dS/dφ. A local minimum is found when dS/dφ
 // changes sign between neighbouring angles, so only a minimum with a
 // maximum closer than the angle step beside it can be missed. The dips of
