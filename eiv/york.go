@@ -662,7 +662,7 @@ func yorkPassR(x, y, sx, sy, r []float64, cx, cy, b float64) (s yorkSums, err er
 	return s, nil
 }
 
-// yorkScanMin and yorkScanMax bound of the number of slope angles at which the
+// yorkScanMin and yorkScanMax bound the number of slope angles at which the
 // global search evaluates S and dS/dφ. A local minimum is found when dS/dφ
 // changes sign between neighbouring angles, so only a minimum with a
 // maximum closer than the angle step beside it can be missed. The dips of
