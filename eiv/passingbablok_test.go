@@ -208,7 +208,7 @@ func TestPassingBablokDegenerateInterval(t *testing.T) {
 	if r.Fit.Slope.CI.Method != "" || r.Fit.Slope.SE != 0 || r.Fit.Intercept.CI.Method != "" {
 		t.Errorf("slope %+v, intercept %+v: want no interval", r.Fit.Slope, r.Fit.Intercept)
 	}
-	if !hasWarning(r.Fit.Warnings, "interval_degenerate") {
+	if !hasWarning(r.Fit, "interval_degenerate") {
 		t.Errorf("warnings %v: want interval_degenerate", r.Fit.Warnings)
 	}
 	for i := range n {
@@ -221,13 +221,4 @@ func TestPassingBablokDegenerateInterval(t *testing.T) {
 	if s := r.Fit.Slope; s.CI.Method == "" || s.CI.Lower != 0.5 || s.CI.Upper != 0.5 || s.SE != 0 {
 		t.Errorf("exact line: slope %+v, want the interval [0.5, 0.5]", s)
 	}
-}
-
-func hasWarning(ws []error, code string) bool {
-	for _, w := range ws {
-		if ww, ok := w.(*eiv.Warning); ok && ww.Code == code {
-			return true
-		}
-	}
-	return false
 }
