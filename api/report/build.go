@@ -73,6 +73,9 @@ func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
 		b, err := QQPlot(th, sm)
 		return b, true, err
 	case "difference":
+		if !ps.axes.SameScale() {
+			return nil, false, wire.Invalid("y_unit", "x and y are in different units: a difference y − x has no meaning, so there is no difference plot")
+		}
 		a := ps.agreement
 		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
 		for i := range ps.x {
@@ -123,9 +126,13 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 	if err != nil {
 		return nil, err
 	}
+	ax := Axes{X: "x", Y: "y", Unit: resp.XUnit, YUnit: resp.YUnit}
+	if resp.SameScale() {
+		ax = Axes{X: "x", Y: "y"}
+	}
 	return &plotSet{x: d.X, y: d.Y, sx: d.SX, sy: d.SY, fitName: pm.Method.Name, fit: resp.Fits.Get(pm.Method.Name), res: pm,
 		ols: resp.Fits.OLS, diag: wire.DiagnosticsOutOf(study.DiagnoseFit(d, pm)), agreement: wire.AgreementOutOf(ag),
-		axes: Axes{X: "x", Y: "y"}}, nil
+		axes: ax}, nil
 }
 
 // FitPlot draws one plot of a line fit; method "" means the primary fit.
@@ -285,12 +292,19 @@ func diagSection(d wire.DiagnosticsOut) Section {
 func (ps *plotSet) figures() ([]Figure, error) {
 	var out []Figure
 	for _, k := range PlotKinds {
+		if k == "difference" && !ps.axes.SameScale() {
+			continue
+		}
 		b, ok, err := ps.plot(k)
 		if err != nil {
 			return nil, err
 		}
 		if ok {
-			out = append(out, Figure{Caption: plotCaptions[k], SVG: SVG(b)})
+			c := plotCaptions[k]
+			if k == "data" && !ps.axes.SameScale() {
+				c = strings.Replace(c, ", the OLS line and the identity line.", " and the OLS line (x and y are in different units: no identity line).", 1)
+			}
+			out = append(out, Figure{Caption: c, SVG: SVG(b)})
 		}
 	}
 	return out, nil
@@ -345,7 +359,13 @@ func FitReport(resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha,
 		fits.Tables = append(fits.Tables, t)
 	}
 	p.Sections = append(p.Sections, fits)
-	if len(m.At) > 0 {
+	if len(m.At) > 0 && !resp.SameScale() {
+		t := Table{Caption: "Fitted y at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "wire.CI"}, Numeric: []int{0, 1, 2}}
+		for _, a := range m.At {
+			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI)}})
+		}
+		p.Sections = append(p.Sections, Section{Heading: "Predictions", Tables: []Table{t}})
+	} else if len(m.At) > 0 {
 		t := Table{Caption: "Fitted y and bias y − x at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "wire.CI", "bias", "wire.CI", "bootstrap wire.CI of bias"}, Numeric: []int{0, 1, 2, 3, 4, 5}}
 		for _, a := range m.At {
 			bb := "-"

@@ -46,9 +46,12 @@ const (
 	plotH = 4.0 * vg.Inch
 )
 
-// Axes names the quantities on the axes, with their unit.
+// Axes names the quantities on the axes, with their unit. YUnit, when set
+// and not Unit, is y's own unit: x and y are then on different scales,
+// and nothing compares them with each other (no identity line).
 type Axes struct {
 	X, Y, Unit string
+	YUnit      string
 }
 
 func (a Axes) label(s string) string {
@@ -57,6 +60,18 @@ func (a Axes) label(s string) string {
 	}
 	return s + " (" + a.Unit + ")"
 }
+
+// labelY labels the y axis with y's unit.
+func (a Axes) labelY(s string) string {
+	if a.YUnit == "" {
+		return a.label(s)
+	}
+	return s + " (" + a.YUnit + ")"
+}
+
+// SameScale says whether x and y are in one unit, so that y = x means
+// agreement.
+func (a Axes) SameScale() bool { return a.YUnit == "" || a.YUnit == a.Unit }
 
 // Line is a fitted straight line, with its pointwise confidence band when
 // BandX is set.
@@ -195,26 +210,14 @@ func DataPlot(x, y, sx, sy []float64, fit Line, ols *Line, ax Axes) ([]byte, err
 	if err := finite(x, y, sx, sy, fit.BandLo, fit.BandHi); err != nil {
 		return nil, err
 	}
-	p := newPlot("Data and fitted lines", ax.label(ax.X), ax.label(ax.Y))
+	p := newPlot("Data and fitted lines", ax.label(ax.X), ax.labelY(ax.Y))
 	x0, x1 := span(x)
-	if len(fit.BandX) > 1 {
-		poly := make(plotter.XYs, 0, 2*len(fit.BandX))
-		for i := range fit.BandX {
-			poly = append(poly, plotter.XY{X: fit.BandX[i], Y: fit.BandHi[i]})
-		}
-		for i := len(fit.BandX) - 1; i >= 0; i-- {
-			poly = append(poly, plotter.XY{X: fit.BandX[i], Y: fit.BandLo[i]})
-		}
-		band, err := plotter.NewPolygon(poly)
-		if err == nil {
-			band.Color = inkBand
-			band.LineStyle.Width = 0
-			p.Add(band)
-		}
+	addBand(p, fit)
+	if ax.SameScale() {
+		id := straight(Line{Slope: 1}, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)})
+		p.Add(id)
+		p.Legend.Add("identity y = x", id)
 	}
-	id := straight(Line{Slope: 1}, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)})
-	p.Add(id)
-	p.Legend.Add("identity y = x", id)
 	if ols != nil {
 		l := straight(*ols, x0, x1, inkOLS, []vg.Length{vg.Points(6), vg.Points(3)})
 		p.Add(l)
@@ -223,34 +226,7 @@ func DataPlot(x, y, sx, sy []float64, fit Line, ols *Line, ax Axes) ([]byte, err
 	fl := straight(fit, x0, x1, inkFit, nil)
 	p.Add(fl)
 	p.Legend.Add(fmt.Sprintf("%s: y = %.4g + %.4g x", fit.Name, fit.Intercept, fit.Slope), fl)
-	if sy != nil {
-		yb := make(plotter.YErrors, len(x))
-		for i := range yb {
-			yb[i].Low, yb[i].High = -sy[i], sy[i]
-		}
-		if eb, err := plotter.NewYErrorBars(struct {
-			plotter.XYs
-			plotter.YErrors
-		}{xys(x, y), yb}); err == nil {
-			eb.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.8)}
-			eb.CapWidth = vg.Points(3)
-			p.Add(eb)
-		}
-	}
-	if sx != nil {
-		xb := make(plotter.XErrors, len(x))
-		for i := range xb {
-			xb[i].Low, xb[i].High = -sx[i], sx[i]
-		}
-		if eb, err := plotter.NewXErrorBars(struct {
-			plotter.XYs
-			plotter.XErrors
-		}{xys(x, y), xb}); err == nil {
-			eb.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.8)}
-			eb.CapWidth = vg.Points(3)
-			p.Add(eb)
-		}
-	}
+	addErrorBars(p, x, y, sx, sy)
 	s, err := points(x, y)
 	if err != nil {
 		return nil, err
@@ -413,4 +389,55 @@ func BootstrapPlot(slopes []float64, estimate, lower, upper float64, method stri
 	p.Legend.Add(fmt.Sprintf("estimate %.4g", estimate), e)
 	p.Legend.Add(fmt.Sprintf("%s interval %.4g to %.4g", method, lower, upper), l)
 	return render(p)
+}
+
+// addBand draws the line's pointwise band, when it has one.
+func addBand(p *plot.Plot, fit Line) {
+	if len(fit.BandX) < 2 {
+		return
+	}
+	poly := make(plotter.XYs, 0, 2*len(fit.BandX))
+	for i := range fit.BandX {
+		poly = append(poly, plotter.XY{X: fit.BandX[i], Y: fit.BandHi[i]})
+	}
+	for i := len(fit.BandX) - 1; i >= 0; i-- {
+		poly = append(poly, plotter.XY{X: fit.BandX[i], Y: fit.BandLo[i]})
+	}
+	if band, err := plotter.NewPolygon(poly); err == nil {
+		band.Color = inkBand
+		band.LineStyle.Width = 0
+		p.Add(band)
+	}
+}
+
+// addErrorBars draws ±sy and ±sx bars at the points (either may be nil).
+func addErrorBars(p *plot.Plot, x, y, sx, sy []float64) {
+	if sy != nil {
+		yb := make(plotter.YErrors, len(x))
+		for i := range yb {
+			yb[i].Low, yb[i].High = -sy[i], sy[i]
+		}
+		if eb, err := plotter.NewYErrorBars(struct {
+			plotter.XYs
+			plotter.YErrors
+		}{xys(x, y), yb}); err == nil {
+			eb.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.8)}
+			eb.CapWidth = vg.Points(3)
+			p.Add(eb)
+		}
+	}
+	if sx != nil {
+		xb := make(plotter.XErrors, len(x))
+		for i := range xb {
+			xb[i].Low, xb[i].High = -sx[i], sx[i]
+		}
+		if eb, err := plotter.NewXErrorBars(struct {
+			plotter.XYs
+			plotter.XErrors
+		}{xys(x, y), xb}); err == nil {
+			eb.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.8)}
+			eb.CapWidth = vg.Points(3)
+			p.Add(eb)
+		}
+	}
 }

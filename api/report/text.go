@@ -60,6 +60,16 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 		if len(f.At) == 0 || ferr != nil {
 			return
 		}
+		if !r.SameScale() {
+			fmt.Fprintf(&b, "\n%s at the requested x values:\n", name)
+			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+			fmt.Fprintln(tw, "  x\tfitted y\tCI")
+			for _, a := range f.At {
+				fmt.Fprintf(tw, "  %g\t%.6g\t%s\n", a.X, a.Y.Estimate, textCI(a.Y.CI, "%.6g"))
+			}
+			ferr = tw.Flush()
+			return
+		}
 		fmt.Fprintf(&b, "\n%s at decision levels:\n", name)
 		tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 		fmt.Fprintln(tw, "  x\tfitted y\tCI\tbias y − x\tCI")

@@ -17,6 +17,8 @@ type fitOptions struct {
 	Confidence *float64          `json:"confidence,omitempty"`
 	Bootstrap  *BootstrapOptions `json:"bootstrap,omitempty"`
 	At         []float64         `json:"at,omitempty"`
+	XUnit      string            `json:"x_unit,omitempty"`
+	YUnit      string            `json:"y_unit,omitempty"`
 }
 
 // decodeFitFast reads a FitRequest in one scan of the body: the points
@@ -111,6 +113,7 @@ func decodeFitFast(body []byte) (req *FitRequest, ok bool, err error) {
 		return nil, true, err
 	}
 	req.Methods, req.Lambda, req.Confidence, req.Bootstrap, req.At = o.Methods, o.Lambda, o.Confidence, o.Bootstrap, o.At
+	req.XUnit, req.YUnit = o.XUnit, o.YUnit
 	return req, true, nil
 }
 

@@ -5,7 +5,12 @@ package wire
 type FitResponse struct {
 	N          int     `json:"n"`
 	Confidence float64 `json:"confidence"`
-	Fits       Fits    `json:"fits"`
+	// XUnit and YUnit are the units the caller stated. When they differ,
+	// x and y are different quantities: the bias y − x (at[].bias), the
+	// identity line and the difference plot are left out.
+	XUnit string `json:"x_unit,omitempty"`
+	YUnit string `json:"y_unit,omitempty"`
+	Fits  Fits   `json:"fits"`
 	// OLSBias shows how far ordinary least squares is from each
 	// errors-in-variables fit (present when OLS and another fit ran).
 	OLSBias []OLSBias `json:"ols_bias,omitempty"`
@@ -166,11 +171,12 @@ type Bounds struct {
 	Upper float64 `json:"upper"`
 }
 
-// AtOut is the prediction and the bias against identity at one x value.
+// AtOut is the prediction and the bias against identity at one x value;
+// Bias is absent when x and y are in different units.
 type AtOut struct {
-	X    float64  `json:"x"`
-	Y    Interval `json:"y"`
-	Bias Interval `json:"bias"`
+	X    float64   `json:"x"`
+	Y    Interval  `json:"y"`
+	Bias *Interval `json:"bias,omitempty"`
 }
 
 // Interval is an estimate with its confidence interval and, when the
