@@ -89,9 +89,10 @@ func StandardizedResidualPlot(x, z []float64, ax Axes) ([]byte, error) {
 	lim := hline(2, x0, x1, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)})
 	p.Add(lim, hline(-2, x0, x1, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)}))
 	p.Legend.Add("±2", lim)
-	top := 2.5
+	p.Legend.Top, p.Legend.Left = false, false
+	top := 3.0 // whole ticks, ±2 inside
 	for _, v := range z {
-		top = math.Max(top, math.Abs(v)*1.1)
+		top = math.Max(top, math.Ceil(math.Abs(v)*1.1))
 	}
 	p.Y.Min, p.Y.Max = -top, top
 	s, err := points(x, z)
@@ -117,7 +118,7 @@ func unitSuffix(u string) string {
 	if u == "" {
 		return ""
 	}
-	return " " + u
+	return " (" + u + ")"
 }
 
 func dofText(v *float64) string {
@@ -253,8 +254,8 @@ func CalibrationReport(r *wire.CalibrationResponse, res *study.CalibrationResult
 					c = "bad"
 				}
 				mt.Rows = append(mt.Rows, Row{Class: c, Cells: []string{u.ID, strconv.Itoa(m.Trials), g(m.Mean), g(m.SD),
-					fmt.Sprintf("%s to %s", g(m.Interval.Lower), g(m.Interval.Upper)),
-					fmt.Sprintf("%s to %s", g(m.LinearInterval.Lower), g(m.LinearInterval.Upper)), g(m.Tolerance), yesNo(m.Validated)}})
+					fmt.Sprintf("%.7g to %.7g", m.Interval.Lower, m.Interval.Upper),
+					fmt.Sprintf("%.7g to %.7g", m.LinearInterval.Lower, m.LinearInterval.Upper), g(m.Tolerance), yesNo(m.Validated)}})
 			}
 		}
 		sec := Section{Heading: "Unknowns", Tables: []Table{ut, bt}}
