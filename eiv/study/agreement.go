@@ -112,8 +112,7 @@ func (a *Agreement) reading(unit string) string {
 		s = fmt.Sprintf("The limits of agreement (%.4g to %.4g%s) describe single measurements.", a.Lower.Value, a.Upper.Value, u)
 	}
 	if f := a.Form; f != nil {
-		s += " The data call for " + map[eiv.LimitsForm]string{eiv.FormConstant: "constant limits", eiv.FormRatio: "limits as ratios",
-			eiv.FormRegression: "regression-based limits"}[f.Form] + ": " + f.Reason + "."
+		s += " Form of the limits: " + f.Reason + "."
 		switch {
 		case f.Form == eiv.FormRatio && a.Ratio != nil:
 			s += fmt.Sprintf(" y/x = %.4g, limits %.4g to %.4g.", a.Ratio.Ratio.Value, a.Ratio.Lower.Value, a.Ratio.Upper.Value)

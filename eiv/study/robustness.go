@@ -96,6 +96,8 @@ func outcome(c *Comparison, unit string) *Outcome {
 		case len(ls) == 0:
 		case k == 0 && len(ls) == out.Levels && out.Levels == 1:
 			parts = append(parts, fmt.Sprintf("%s at the one level (%s)", v, levelList(ls, unit)))
+		case k == 0 && len(ls) == out.Levels && out.Levels == 2:
+			parts = append(parts, fmt.Sprintf("%s at both levels", v))
 		case k == 0 && len(ls) == out.Levels:
 			parts = append(parts, fmt.Sprintf("%s at all %d levels", v, out.Levels))
 		case k == 0 && len(ls) > 1:
