@@ -102,7 +102,6 @@ func DecodePlanJSON(r io.Reader) (*PlanRequest, error) {
 	return &req, nil
 }
 
-
 // Options are the plan's options with the server's settings.
 func (req *PlanRequest) Options(set study.Settings) *study.PlanOptions {
 	o := &study.PlanOptions{Low: req.Low, High: req.High, Spread: req.Spread, Levels: req.Levels, Lambda: req.Lambda,

@@ -94,8 +94,8 @@ type Comparison struct {
 	// Robustness says whether each level's verdict holds under every fit
 	// the data allow and without the flagged outliers (nil when no level
 	// has an allowable bias).
-	Robustness  *Robustness
-	Diagnostics *Diagnostics
+	Robustness     *Robustness
+	Diagnostics    *Diagnostics
 	Recommendation Recommendation
 	Warnings       []Warning
 	// WithoutExcluded is the same analysis without the samples named in
