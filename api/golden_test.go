@@ -6,6 +6,8 @@ import (
 	"path/filepath"
 	"regexp"
 	"testing"
+
+	"eivfit/api/wire/wiretest"
 )
 
 // update rewrites the golden files from the current output:
@@ -24,9 +26,9 @@ func TestGoldenHTMLReport(t *testing.T) {
 	for _, c := range []struct {
 		name, path, demo, golden string
 	}{
-		{"fit glucose", "/v1/fit?at=7,11.1", "demo-glucose.csv", "report-fit-glucose.html"},
+		{"fit glucose", "/v1/fit?at=7,11.1", "demo-glucose.csv", "report-fit-glucose.html.golden"},
 		{"compare glucose duplicates", "/v1/method-comparison?decision_levels=7,11.1&allowable_absolute=0.3&allowable_percent=5&unit=mmol/L",
-			"demo-glucose-duplicates.csv", "report-compare-glucose-duplicates.html"},
+			"demo-glucose-duplicates.csv", "report-compare-glucose-duplicates.html.golden"},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			h.t = t
@@ -39,23 +41,7 @@ func TestGoldenHTMLReport(t *testing.T) {
 				t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
 			}
 			got := produced.ReplaceAll(rec.Body.Bytes(), []byte("2000-01-01T00:00:00Z"))
-			path := filepath.Join("testdata", "golden", c.golden)
-			if *update {
-				if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
-					t.Fatal(err)
-				}
-				if err := os.WriteFile(path, got, 0o644); err != nil {
-					t.Fatal(err)
-				}
-				return
-			}
-			want, err := os.ReadFile(path)
-			if err != nil {
-				t.Fatalf("%v (run with -update to create it)", err)
-			}
-			if string(got) != string(want) {
-				t.Errorf("the report differs from %s (run with -update and read the diff)", path)
-			}
+			wiretest.CheckGolden(t, filepath.Join("testdata", "golden", c.golden), got, *update)
 		})
 	}
 }

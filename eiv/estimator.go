@@ -177,6 +177,5 @@ type yorkFitter struct{ yk *york }
 // FitLine needs no separate check for constant x: the starting slope is
 // then not finite and the iteration reports ErrDegenerate.
 func (f yorkFitter) FitLine(s Sample) (float64, float64, error) {
-	a, b, _, err := f.yk.slopeLine(s.X, s.Y, s.SX, s.SY, s.R, math.NaN())
-	return a, b, err
+	return f.yk.fitLine(s.X, s.Y, s.SX, s.SY, s.R)
 }

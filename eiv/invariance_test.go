@@ -38,12 +38,8 @@ var invMethods = []invMethod{
 	{name: "weighted_deming", fit: func(x, y, _, _, _ []float64) (*eiv.Fit, error) {
 		return eiv.WeightedDeming(x, y, &eiv.DemingOptions{Lambda: 1.3})
 	}},
-	// YORK ENTRY: York is fitted in eiv/york.go, whose scaling is the York
-	// work of issue 12 (defect 4); it is in the translation and row-order
-	// properties now and joins the scale sweep when `pending` is removed.
-	{name: "york", translates: true, pending: "York's rescaling (issue 12, defect 4) lands in eiv/york.go",
-		pendingCentre: "York's Fit.Centre (issue 12, defect 3) is set in eiv/york.go",
-		fit:           func(x, y, sx, sy, r []float64) (*eiv.Fit, error) { return eiv.York(x, y, sx, sy, r, nil) }},
+	{name: "york", translates: true,
+		fit: func(x, y, sx, sy, r []float64) (*eiv.Fit, error) { return eiv.York(x, y, sx, sy, r, nil) }},
 }
 
 // gridData is randomData with y moved above 0 (for weighted Deming) and

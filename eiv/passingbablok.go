@@ -123,13 +123,32 @@ func PassingBablokContext(ctx context.Context, x, y []float64, opt *Options) (*P
 	f := &Fit{Method: MethodPassingBablok, N: n, Confidence: conf, DOF: n - 2, Converged: true}
 	a := medianOf(y, x, b)
 	f.Slope.Value, f.Intercept.Value = b, a
-	if okl && oku && !math.IsInf(bl, 0) && !math.IsInf(bu, 0) {
+	// The data lie on one line exactly when every pairwise slope is the same.
+	onLine := false
+	if okl && oku && bl == bu {
+		first, _, err := at(1)
+		if err != nil {
+			return nil, err
+		}
+		last, _, err := at(N)
+		if err != nil {
+			return nil, err
+		}
+		onLine = first == last
+	}
+	switch {
+	case okl && oku && bl == bu && !onLine:
+		// Many tied pairwise slopes (rounded data) can make both rank
+		// bounds the same slope. A zero-width interval would claim an
+		// exact slope the scatter does not support, so none is given.
+		f.Warnings = append(f.Warnings, &Warning{Code: "interval_degenerate", Message: "passing_bablok: many pairwise slopes are tied (rounded data), so the rank interval has zero width and would understate the uncertainty; it is left out: ask for a bootstrap (resamples) for an interval"})
+	case okl && oku && !math.IsInf(bl, 0) && !math.IsInf(bu, 0):
 		al, au := medianOf(y, x, bu), medianOf(y, x, bl)
 		f.Slope.CI = Interval{Lower: bl, Upper: bu, Level: conf, Method: "Passing-Bablok rank interval"}
 		f.Intercept.CI = Interval{Lower: al, Upper: au, Level: conf, Method: "Passing-Bablok rank interval"}
 		f.Slope.SE = (bu - bl) / (2 * z)
 		f.Intercept.SE = (au - al) / (2 * z)
-	} else {
+	default:
 		// No interval and no SE: both stay unset (CI.Method empty).
 		f.Warnings = append(f.Warnings, &Warning{Code: "interval_unavailable", Message: "passing_bablok: too few slopes for a confidence interval at this level"})
 	}

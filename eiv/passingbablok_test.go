@@ -183,3 +183,42 @@ func TestPassingBablokEstimatorMatches(t *testing.T) {
 		}
 	}
 }
+
+// Rounded (integer) data along a line can tie so many pairwise slopes that both rank
+// bounds are the same slope. The brute force written from Passing & Bablok
+// (1983) in this file shows the zero width; the estimator then gives no
+// interval (and no SE of 0) with a warning, while data exactly on a line
+// keep their zero-width interval.
+func TestPassingBablokDegenerateInterval(t *testing.T) {
+	n := 40
+	x, y := make([]float64, n), make([]float64, n)
+	for i := range n {
+		x[i] = float64(i + 1)
+		y[i] = 2*x[i] + float64(i%2) // integer readings, alternately 0 and 1 above the line
+	}
+	z := 1.959963984540054 // the 0.975 normal quantile (scipy.stats.norm.ppf)
+	_, _, bl, bu, _, _ := pbBrute(x, y, z)
+	if bl != bu {
+		t.Fatalf("brute force: rank bounds %v, %v differ; the case no longer tests a zero-width interval", bl, bu)
+	}
+	r, err := eiv.PassingBablok(x, y, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Fit.Slope.CI.Method != "" || r.Fit.Slope.SE != 0 || r.Fit.Intercept.CI.Method != "" {
+		t.Errorf("slope %+v, intercept %+v: want no interval", r.Fit.Slope, r.Fit.Intercept)
+	}
+	if !hasWarning(r.Fit, "interval_degenerate") {
+		t.Errorf("warnings %v: want interval_degenerate", r.Fit.Warnings)
+	}
+	for i := range n {
+		y[i] = 2 + 0.5*x[i] // exactly on a line: every slope is 0.5
+	}
+	r, err = eiv.PassingBablok(x, y, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s := r.Fit.Slope; s.CI.Method == "" || s.CI.Lower != 0.5 || s.CI.Upper != 0.5 || s.SE != 0 {
+		t.Errorf("exact line: slope %+v, want the interval [0.5, 0.5]", s)
+	}
+}

@@ -2,10 +2,10 @@ package main
 
 import (
 	"flag"
-	"os"
 	"path/filepath"
-	"strconv"
 	"testing"
+
+	"eivfit/api/wire/wiretest"
 )
 
 // update rewrites the golden files from the current output:
@@ -33,53 +33,7 @@ func TestGoldenText(t *testing.T) {
 			if err != nil {
 				t.Fatalf("%v\n%s", err, stderr)
 			}
-			checkGolden(t, filepath.Join("testdata", "golden", c.golden), []byte(out))
+			wiretest.CheckGolden(t, filepath.Join("testdata", "golden", c.golden), []byte(out), *update)
 		})
 	}
-}
-
-// checkGolden compares got with the golden file, or rewrites it under -update.
-func checkGolden(t *testing.T, path string, got []byte) {
-	t.Helper()
-	if *update {
-		if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
-			t.Fatal(err)
-		}
-		if err := os.WriteFile(path, got, 0o644); err != nil {
-			t.Fatal(err)
-		}
-		return
-	}
-	want, err := os.ReadFile(path)
-	if err != nil {
-		t.Fatalf("%v (run with -update to create it)", err)
-	}
-	if string(got) != string(want) {
-		t.Errorf("output differs from %s (run with -update and read the diff):\n%s", path, firstDiff(string(want), string(got)))
-	}
-}
-
-// firstDiff shows the first line where want and got differ.
-func firstDiff(want, got string) string {
-	line := 1
-	for i := 0; i < len(want) && i < len(got); i++ {
-		if want[i] != got[i] {
-			return lineAt(want, i, line, "want") + "\n" + lineAt(got, i, line, "got ")
-		}
-		if want[i] == '\n' {
-			line++
-		}
-	}
-	return "one is a prefix of the other"
-}
-
-func lineAt(s string, i, line int, label string) string {
-	start, end := i, i
-	for start > 0 && s[start-1] != '\n' {
-		start--
-	}
-	for end < len(s) && s[end] != '\n' {
-		end++
-	}
-	return label + " line " + strconv.Itoa(line) + ": " + s[start:end]
 }
