@@ -81,6 +81,10 @@ func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
 		for i := range ps.x {
 			mean[i], diff[i] = (ps.x[i]+ps.y[i])/2, ps.y[i]-ps.x[i]
 		}
+		if f, ok := differenceForm(a); ok {
+			b, err := DifferencePlotForm(mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes)
+			return b, true, err
+		}
 		b, err := DifferencePlot(mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
 		return b, true, err
 	case "bootstrap":
@@ -110,7 +114,7 @@ var plotCaptions = map[string]string{
 	"residuals":  "Residuals against level: a funnel shape means the error grows with the level; a curve means the relation is not a straight line.",
 	"run-order":  "Residuals in run order: drift, steps or runs point to instability during the study.",
 	"qq":         "Normal Q-Q plot: points near the line mean normal residuals; a bend means skew, isolated points at the ends outliers.",
-	"difference": "Difference plot: y − x against the mean of x and y, with the mean difference and the limits of agreement.",
+	"difference": "Difference plot: y − x against the mean of x and y, with the bias and the limits of agreement in the form the data call for (constant, ratio or regression-based), and the regression of the differences on the means when it shows a proportional bias.",
 	"bootstrap":  "The bootstrap distribution of the slope with the estimate and its interval.",
 }
 
@@ -464,4 +468,28 @@ func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, versio
 			Text: []string{w.Recommendation.Text}, Tables: []Table{t}})
 	}
 	return p, nil
+}
+
+// differenceForm is the form of limits a comparison's difference plot
+// draws; ok is false for constant limits without a proportional bias (the
+// plain plot).
+func differenceForm(a *wire.AgreementOut) (DifferenceForm, bool) {
+	if a.LimitsForm == nil {
+		return DifferenceForm{}, false
+	}
+	f := DifferenceForm{Form: a.LimitsForm.Form}
+	pb := a.ProportionalBias
+	if pb.Slope != nil && pb.PValue != nil {
+		f.B0, f.B1, f.Proportional = pb.Intercept.Estimate, pb.Slope.Estimate, *pb.PValue < 0.05
+	}
+	switch {
+	case f.Form == "regression" && a.RegressionLimits != nil:
+		r := a.RegressionLimits
+		f.B0, f.B1, f.K, f.C0, f.C1 = r.Bias.Intercept.Estimate, r.Bias.Slope.Estimate, r.Multiplier, r.Spread.Intercept.Estimate, r.Spread.Slope.Estimate
+	case f.Form == "ratio" && a.RatioLimits != nil:
+		f.Ratio, f.RatioLower, f.RatioUpper = a.RatioLimits.Ratio.Estimate, a.RatioLimits.Lower.Estimate, a.RatioLimits.Upper.Estimate
+	default:
+		f.Form = "constant"
+	}
+	return f, f.Form != "constant" || f.Proportional
 }

@@ -49,7 +49,7 @@ type Sample = study.Sample
 // Options are the study's options with the server's settings.
 func (req *CompareRequest) Options(set study.Settings) *study.CompareOptions {
 	o := &study.CompareOptions{Allowable: req.AllowableBias.allowable(), ErrorModel: req.ErrorModel,
-		Lambda: req.Lambda, Confidence: req.Confidence, Bootstrap: req.Bootstrap.options(), Exclude: req.Exclude, Settings: set}
+		Lambda: req.Lambda, Confidence: req.Confidence, Bootstrap: req.Bootstrap.options(), Exclude: req.Exclude, Unit: req.Unit, Settings: set}
 	for _, l := range req.DecisionLevels {
 		o.DecisionLevels = append(o.DecisionLevels, study.DecisionLevel{Level: l.Level, Allowable: l.AllowableBias.allowable()})
 	}

@@ -65,12 +65,13 @@ func comparisonOut(c *study.Comparison) *Comparison {
 	}
 	out.Agreement = *AgreementOutOf(c.Agreement)
 	for _, l := range c.DecisionLevels {
-		lo := LevelOut{Level: l.Level, Fits: map[string]LevelFit{}}
+		lo := LevelOut{Level: l.Level, Extrapolated: l.Extrapolated, Fits: map[string]LevelFit{}}
 		if a := l.Allowable; a != nil {
 			lo.Allowable = &AllowableOut{Absolute: a.Absolute, Percent: a.Percent, Limit: l.Limit}
 		}
 		for _, f := range l.Fits {
 			lf := LevelFit{Bias: *atOut(f.At).Bias, Verdict: f.Verdict}
+			lf.Bias.SE, lf.Bias.CI = seCI(f.Bias) // the interval the verdict judged
 			if l.Level != 0 {
 				bp := interval(f.BiasPercent)
 				lf.BiasPercent = &bp
@@ -79,6 +80,7 @@ func comparisonOut(c *study.Comparison) *Comparison {
 		}
 		out.DecisionLevels = append(out.DecisionLevels, lo)
 	}
+	out.Outcome, out.Robustness = outcomeOut(c.Outcome), robustnessOut(c.Robustness)
 	return out
 }
 
@@ -105,6 +107,7 @@ func AgreementOutOf(a *study.Agreement) *AgreementOut {
 		out.Percent = &PercentOut{MeanDifference: interval(p.MeanDifference), SDDifference: p.SDDifference,
 			LimitsOfAgreement: LimitsOut{Lower: interval(p.Lower), Upper: interval(p.Upper)}}
 	}
+	agreementForms(out, a)
 	return out
 }
 

@@ -102,6 +102,11 @@ func TestFitBadInputExitsTwo(t *testing.T) {
 		{"confidence rounds to 1", "x,y\n1,2\n2,3\n3,5\n", []string{"fit", "--confidence", "0.9999999999999999", "-"}, "--confidence: confidence must lie between"},
 		{"confidence tiny", "x,y\n1,2\n2,3\n3,5\n", []string{"fit", "--confidence", "1e-300", "-"}, "--confidence"},
 		{"compare confidence 1", "id,x,y\nA,1,2\n", []string{"compare", "--confidence", "1", "-"}, "--confidence"},
+		{"plan without error", "", []string{"plan", "--low", "3", "--high", "25", "--sizes", "40", "--lambda", "1"}, "--error-x"},
+		{"plan bad size", "", []string{"plan", "--low", "3", "--high", "25", "--error-x", "0.1", "--lambda", "1", "--sizes", "40,2"}, "--sizes"},
+		{"plan bad difference", "", []string{"plan", "--error-x", "0.1", "--differences", "2%"}, "--differences"},
+		{"plan file and flags", "{}", []string{"plan", "--low", "3", "-"}, "--low would be ignored"},
+		{"plan bad JSON field", `{"error_x":{"sd":0.1},"sizes":[40],"lambda":1,"low":1,"high":2,"nope":1}`, []string{"plan", "-"}, "/nope"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -455,5 +460,39 @@ func TestServeAPIKeysFile(t *testing.T) {
 	cancel()
 	if err := <-done; err != nil {
 		t.Error(err)
+	}
+}
+
+// `eivfit plan` from flags, from a JSON file and POST /v1/plan give the
+// same bytes for the same plan.
+func TestPlanCLIAndServiceIdentical(t *testing.T) {
+	srv, err := api.NewServer(api.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	body := `{"low":3,"high":25,"error_x":{"sd":0.1,"cv_percent":2.5},"lambda":1,"replicates":{"x":2,"y":2},"sizes":[40,60],` +
+		`"differences":[{"constant":0,"proportional_percent":2}],"decision_levels":[7,11.1],"allowable_bias":{"percent":5},"trials":300,"seed":3,"unit":"mmol/L"}`
+	flags, stderr, err := runCmd(t, "", "plan", "--low", "3", "--high", "25", "--error-x", "0.1,2.5", "--lambda", "1", "--replicates", "2",
+		"--sizes", "40,60", "--differences", "0:2", "--decision-levels", "7,11.1", "--allowable-percent", "5", "--trials", "300", "--seed", "3", "--unit", "mmol/L")
+	if err != nil {
+		t.Fatalf("%v: %s", err, stderr)
+	}
+	file, stderr, err := runCmd(t, body, "plan", "-")
+	if err != nil {
+		t.Fatalf("%v: %s", err, stderr)
+	}
+	req := httptest.NewRequest("POST", "/v1/plan", strings.NewReader(body))
+	req.Header.Set("Content-Type", "application/json")
+	rec := httptest.NewRecorder()
+	srv.Handler().ServeHTTP(rec, req)
+	if rec.Code != 200 {
+		t.Fatalf("status %d %s", rec.Code, rec.Body.String())
+	}
+	if flags != file || file != rec.Body.String() {
+		t.Errorf("flags, file and service differ:\n%.300s\n%.300s\n%.300s", flags, file, rec.Body.String())
+	}
+	text, _, err := runCmd(t, body, "plan", "--format", "text", "-")
+	if err != nil || !strings.Contains(text, "in duplicate") || !strings.Contains(text, "slope power") {
+		t.Errorf("text output (%v):\n%s", err, text)
 	}
 }
