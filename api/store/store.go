@@ -161,29 +161,31 @@ func (s *db) Save(ctx context.Context, st *study.Study) (err error) {
 	if err := st.Prepare(s.now()); err != nil {
 		return err
 	}
+	return s.e.write(ctx, func(q querier) error { return s.insert(ctx, q, st) })
+}
+
+// insert writes a prepared study, its tags and its revision 0.
+func (s *db) insert(ctx context.Context, q querier, st *study.Study) error {
 	rev := study.Original(st)
 	change, _ := rev.Change.MarshalBinary()
 	p := s.e.param
-	return s.e.write(ctx, func(q querier) error {
-		err := q.exec(ctx, `INSERT INTO studies (id, kind, label, created, who, input, content_type, query,
-			input_sha256, options, seed, version, vcs_revision, result)
-			VALUES (`+params(p, 14)+`)`,
-			st.ID, string(st.Kind), st.Label, s.e.timeArg(st.Created), st.Who, nz(st.Input), st.ContentType, st.Query,
-			st.InputSHA256[:], nz(st.Options), int64(st.Seed), st.Version, st.VCSRevision, nz(st.Result))
-		if err != nil {
+	err := q.exec(ctx, `INSERT INTO studies (id, kind, label, created, who, input, content_type, query,
+		input_sha256, options, seed, version, vcs_revision, result)
+		VALUES (`+params(p, 14)+`)`,
+		st.ID, string(st.Kind), st.Label, s.e.timeArg(st.Created), st.Who, nz(st.Input), st.ContentType, st.Query,
+		st.InputSHA256[:], nz(st.Options), int64(st.Seed), st.Version, st.VCSRevision, nz(st.Result))
+	if err != nil {
+		return err
+	}
+	for k, v := range st.Tags {
+		if err := q.exec(ctx, `INSERT INTO study_tags (study_id, key, value) VALUES (`+params(p, 3)+`)`, st.ID, k, v); err != nil {
 			return err
 		}
-		for k, v := range st.Tags {
-			if err := q.exec(ctx, `INSERT INTO study_tags (study_id, key, value) VALUES (`+params(p, 3)+`)`,
-				st.ID, k, v); err != nil {
-				return err
-			}
-		}
-		// Revision 0's result is the study's; it is not stored twice.
-		return q.exec(ctx, `INSERT INTO revisions (study_id, number, based_on, reason, who, at, change, result, prev_hash, hash)
-			VALUES (`+params(p, 10)+`)`,
-			st.ID, 0, -1, "", st.Who, s.e.timeArg(st.Created), change, nil, rev.PrevHash[:], rev.Hash[:])
-	})
+	}
+	// Revision 0's result is the study's; it is not stored twice.
+	return q.exec(ctx, `INSERT INTO revisions (study_id, number, based_on, reason, who, at, change, result, prev_hash, hash)
+		VALUES (`+params(p, 10)+`)`,
+		st.ID, 0, -1, "", st.Who, s.e.timeArg(st.Created), change, nil, rev.PrevHash[:], rev.Hash[:])
 }
 
 // params is "$1, $2, …, $n" in the engine's placeholders.
