@@ -7,6 +7,8 @@ start_postgres() {
 	# /usr/local/bin may hold links named initdb/pg_ctl: call Debian's own.
 	bin=$(ls -d /usr/lib/postgresql/*/bin | sort -V | tail -n 1)
 	port=${EIVFIT_PG_PORT:-54329}
+	# The first free port from there (a connection that succeeds means taken).
+	while (exec 3<>"/dev/tcp/127.0.0.1/$port") 2>/dev/null; do port=$((port + 1)); done
 	PG_TMP=$(mktemp -d /tmp/eivfit-pg.XXXXXX)
 	mkdir -p "$PG_TMP/sock"
 	chown -R postgres:postgres "$PG_TMP"

@@ -94,6 +94,9 @@ func benchStore(b *testing.B, engine string) study.Store {
 				Tags:  map[string]string{"analyte": []string{"glucose", "sodium", "urea"}[i%3]},
 				Input: fmt.Appendf(nil, "x,y\n%d,%d\n", i, i+1), ContentType: "text/csv", Result: fmt.Appendf(nil, `{"n":%d}`, i),
 			}
+			if i%500 == 0 {
+				s.Tags["site"] = "remote" // 200 studies, spread evenly
+			}
 			if err := s.Prepare(time.Now()); err != nil {
 				return err
 			}
@@ -151,6 +154,7 @@ func BenchmarkList(b *testing.B) {
 				{"kind", study.Filter{Kind: study.KindCalibration}},
 				{"label", study.Filter{Label: "batch 7"}},
 				{"tag", study.Filter{Tags: map[string]string{"analyte": "urea"}}},
+				{"rare-tag", study.Filter{Tags: map[string]string{"site": "remote"}}},
 				{"from-to", study.Filter{From: time.Date(2025, 1, 1, 10, 0, 0, 0, time.UTC), To: time.Date(2025, 1, 1, 11, 0, 0, 0, time.UTC)}},
 			}
 			for _, c := range cases {

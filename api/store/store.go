@@ -10,6 +10,8 @@ import (
 	"encoding/base64"
 	"errors"
 	"fmt"
+	"maps"
+	"slices"
 	"strconv"
 	"strings"
 	"sync/atomic"
@@ -178,7 +180,8 @@ func (s *db) insert(ctx context.Context, q querier, st *study.Study) error {
 		return err
 	}
 	for k, v := range st.Tags {
-		if err := q.exec(ctx, `INSERT INTO study_tags (study_id, key, value) VALUES (`+params(p, 3)+`)`, st.ID, k, v); err != nil {
+		if err := q.exec(ctx, `INSERT INTO study_tags (study_id, key, value, created) VALUES (`+params(p, 4)+`)`,
+			st.ID, k, v, s.e.timeArg(st.Created)); err != nil {
 			return err
 		}
 	}
@@ -301,35 +304,45 @@ func (s *db) List(ctx context.Context, f study.Filter) (_ []study.Summary, next 
 		args = append(args, v)
 		return s.e.param(len(args))
 	}
+	// Listing walks an index newest first and stops after one page: the
+	// (created, id) index of studies, or with tags the (key, value,
+	// created, id) index of the first tag, the others checked per row.
+	from, created, id := "studies s", "s.created", "s.id"
+	keys := slices.Sorted(maps.Keys(f.Tags))
+	for i, k := range keys {
+		if i == 0 {
+			from, created, id = "study_tags t JOIN studies s ON s.id = t.study_id", "t.created", "t.study_id"
+			where = append(where, "t.key = "+arg(k), "t.value = "+arg(f.Tags[k]))
+			continue
+		}
+		where = append(where, "EXISTS (SELECT 1 FROM study_tags u WHERE u.study_id = s.id AND u.key = "+arg(k)+" AND u.value = "+arg(f.Tags[k])+")")
+	}
 	if f.Kind != "" {
 		where = append(where, "s.kind = "+arg(string(f.Kind)))
 	}
 	if f.Label != "" {
 		where = append(where, "s.label = "+arg(f.Label))
 	}
-	for k, v := range f.Tags {
-		where = append(where, "EXISTS (SELECT 1 FROM study_tags t WHERE t.study_id = s.id AND t.key = "+arg(k)+" AND t.value = "+arg(v)+")")
-	}
 	if !f.From.IsZero() {
-		where = append(where, "s.created >= "+arg(s.e.timeArg(study.Timestamp(f.From))))
+		where = append(where, created+" >= "+arg(s.e.timeArg(study.Timestamp(f.From))))
 	}
 	if !f.To.IsZero() {
-		where = append(where, "s.created < "+arg(s.e.timeArg(study.Timestamp(f.To))))
+		where = append(where, created+" < "+arg(s.e.timeArg(study.Timestamp(f.To))))
 	}
 	if f.Cursor != "" {
-		t, id, err := decodeCursor(f.Cursor)
+		t, cid, err := decodeCursor(f.Cursor)
 		if err != nil {
 			return nil, "", err
 		}
-		ta := arg(s.e.timeArg(t))
-		where = append(where, "(s.created < "+ta+" OR (s.created = "+ta+" AND s.id < "+arg(id)+"))")
+		// A row comparison, which both engines answer from the index.
+		where = append(where, "("+created+", "+id+") < ("+arg(s.e.timeArg(t))+", "+arg(cid)+")")
 	}
 	q := `SELECT s.id, s.kind, s.label, s.created, s.who, s.input_sha256,
-		(SELECT max(r.number) FROM revisions r WHERE r.study_id = s.id) FROM studies s`
+		(SELECT max(r.number) FROM revisions r WHERE r.study_id = s.id) FROM ` + from
 	if len(where) > 0 {
 		q += " WHERE " + strings.Join(where, " AND ")
 	}
-	q += " ORDER BY s.created DESC, s.id DESC LIMIT " + strconv.Itoa(limit+1)
+	q += " ORDER BY " + created + " DESC, " + id + " DESC LIMIT " + strconv.Itoa(limit+1)
 	var out []study.Summary
 	err = s.e.query(ctx, q, args, func(scan func(...any) error) error {
 		var (

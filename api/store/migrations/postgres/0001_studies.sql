@@ -25,9 +25,10 @@ CREATE TABLE study_tags (
 	study_id text NOT NULL REFERENCES studies (id),
 	key      text NOT NULL,
 	value    text NOT NULL,
+	created  timestamptz NOT NULL, -- the study's, so that a tag's index lists newest first
 	PRIMARY KEY (study_id, key)
 );
-CREATE INDEX study_tags_pair ON study_tags (key, value);
+CREATE INDEX study_tags_pair ON study_tags (key, value, created DESC, study_id DESC);
 
 CREATE TABLE revisions (
 	study_id  text NOT NULL REFERENCES studies (id),

@@ -25,9 +25,10 @@ CREATE TABLE study_tags (
 	study_id TEXT NOT NULL REFERENCES studies (id),
 	key      TEXT NOT NULL,
 	value    TEXT NOT NULL,
+	created  INTEGER NOT NULL, -- the study's, so that a tag's index lists newest first
 	PRIMARY KEY (study_id, key)
 );
-CREATE INDEX study_tags_pair ON study_tags (key, value);
+CREATE INDEX study_tags_pair ON study_tags (key, value, created DESC, study_id DESC);
 
 CREATE TABLE revisions (
 	study_id  TEXT NOT NULL REFERENCES studies (id),
