@@ -34,6 +34,10 @@ func openPostgres(ctx context.Context, cfg Config) (*pgEngine, error) {
 	if pc.ConnConfig.ConnectTimeout == 0 || pc.ConnConfig.ConnectTimeout > cfg.BusyTimeout {
 		pc.ConnConfig.ConnectTimeout = cfg.BusyTimeout
 	}
+	// A commit returns once it is on disk, whatever the server's default.
+	if _, set := pc.ConnConfig.RuntimeParams["synchronous_commit"]; !set {
+		pc.ConnConfig.RuntimeParams["synchronous_commit"] = "on"
+	}
 	pool, err := pgxpool.NewWithConfig(ctx, pc)
 	if err != nil {
 		return nil, fmt.Errorf("%w: %v", errUnavailable, err)
@@ -49,8 +53,8 @@ func openPostgres(ctx context.Context, cfg Config) (*pgEngine, error) {
 	return e, nil
 }
 
-// write runs fn in a transaction; with PostgreSQL's default
-// synchronous_commit a commit that returned is on disk.
+// write runs fn in a transaction; with synchronous_commit on (set at
+// open) a commit that returned is on disk.
 func (e *pgEngine) write(ctx context.Context, fn func(q querier) error) error {
 	return pgx.BeginFunc(ctx, e.pool, func(tx pgx.Tx) error { return fn(pgQuerier{q: tx}) })
 }

@@ -678,3 +678,27 @@ func TestMigrationFilesBothEngines(t *testing.T) {
 		t.Fatalf("sqlite has %d migrations, postgres %d: every schema change is made on both", len(a), len(b))
 	}
 }
+
+// The settings durability rests on are in force on the connections that write.
+func TestDurableSettings(t *testing.T) {
+	eachEngine(t, func(t *testing.T, cfg Config) {
+		s := mustOpen(t, cfg)
+		ctx := context.Background()
+		var checks []struct{ q, want string }
+		var q querier
+		switch e := s.(*db).e.(type) {
+		case *sqliteEngine:
+			q = sqlQuerier{q: e.w}
+			checks = []struct{ q, want string }{{"PRAGMA journal_mode", "wal"}, {"PRAGMA synchronous", "2"}, {"PRAGMA foreign_keys", "1"}}
+		case *pgEngine:
+			q = e
+			checks = []struct{ q, want string }{{"SHOW synchronous_commit", "on"}, {"SHOW fsync", "on"}}
+		}
+		for _, c := range checks {
+			var got string
+			if err := q.queryRow(ctx, c.q, nil, &got); err != nil || got != c.want {
+				t.Errorf("%s = %q (%v), want %q", c.q, got, err, c.want)
+			}
+		}
+	})
+}
