@@ -86,7 +86,7 @@ func benchStore(b *testing.B, engine string) study.Store {
 	start := time.Now()
 	d := st.(*db)
 	base := time.Date(2025, 1, 1, 0, 0, 0, 0, time.UTC)
-	kinds := []study.Kind{study.KindFit, study.KindMethodComparison, study.KindCalibration}
+	kinds := []study.StudyKind{study.KindFit, study.KindMethodComparison, study.KindCalibration}
 	err = d.e.write(ctx, func(q querier) error {
 		for i := range benchRows {
 			s := &study.Study{

@@ -117,7 +117,7 @@ func sample(series uint64, i int) *study.Study {
 	for k := range res {
 		res[k] = byte(r.UintN(256))
 	}
-	kinds := []study.Kind{study.KindFit, study.KindMethodComparison, study.KindCalibration}
+	kinds := []study.StudyKind{study.KindFit, study.KindMethodComparison, study.KindCalibration}
 	return &study.Study{
 		Kind:        kinds[i%3],
 		Label:       fmt.Sprintf("series %d batch %d", series, i%4),

@@ -228,7 +228,7 @@ func (s *db) Get(ctx context.Context, id string) (_ *study.Study, err error) {
 	if err != nil {
 		return nil, err
 	}
-	st.Kind, st.Created, st.Seed = study.Kind(kind), created.t, uint64(seed)
+	st.Kind, st.Created, st.Seed = study.StudyKind(kind), created.t, uint64(seed)
 	copy(st.InputSHA256[:], sum)
 	tags, err := s.tags(ctx, []string{id})
 	if err != nil {
@@ -355,7 +355,7 @@ func (s *db) List(ctx context.Context, f study.Filter) (_ []study.Summary, next 
 		if err := scan(&sm.ID, &kind, &sm.Label, &created, &sm.Who, &sum, &latest); err != nil {
 			return err
 		}
-		sm.Kind, sm.Created, sm.Latest = study.Kind(kind), created.t, int(latest)
+		sm.Kind, sm.Created, sm.Latest = study.StudyKind(kind), created.t, int(latest)
 		copy(sm.InputSHA256[:], sum)
 		out = append(out, sm)
 		return nil

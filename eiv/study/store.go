@@ -63,25 +63,25 @@ type Store interface {
 	Close() error
 }
 
-// Kind is the computation a study records.
-type Kind string
+// StudyKind is the computation a study records.
+type StudyKind string
 
 // The kinds of study, named as the routes that make them.
 const (
-	KindFit              Kind = "fit"
-	KindMethodComparison Kind = "method-comparison"
-	KindCalibration      Kind = "calibration"
+	KindFit              StudyKind = "fit"
+	KindMethodComparison StudyKind = "method-comparison"
+	KindCalibration      StudyKind = "calibration"
 )
 
 // Valid reports whether k is one of the kinds above.
-func (k Kind) Valid() bool {
+func (k StudyKind) Valid() bool {
 	return k == KindFit || k == KindMethodComparison || k == KindCalibration
 }
 
 // Study is one saved computation, exactly as it was asked and answered.
 type Study struct {
 	ID          string            // opaque, from NewID; set by Save when empty
-	Kind        Kind              // the computation
+	Kind        StudyKind         // the computation
 	Label       string            // free text from the user; may be empty
 	Tags        map[string]string // free key/value pairs (analyte, instrument, site, …); keys non-empty, without ':'
 	Created     time.Time         // UTC, microseconds; set by Save when zero
@@ -100,7 +100,7 @@ type Study struct {
 // Summary is a study as listed, without its bodies.
 type Summary struct {
 	ID          string
-	Kind        Kind
+	Kind        StudyKind
 	Label       string
 	Tags        map[string]string
 	Created     time.Time
@@ -167,7 +167,7 @@ type Signature struct {
 
 // Filter selects a page of List. Zero fields do not filter.
 type Filter struct {
-	Kind  Kind
+	Kind  StudyKind
 	Label string            // exact match
 	Tags  map[string]string // every pair must match
 	From  time.Time         // Created ≥ From
