@@ -115,7 +115,7 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Setting
 		}
 		return fail(src.Problem(err))
 	}
-	fit := wire.NewFitResponse(r)
+	fit := wire.NewFitResponse(r).WithUnits(e.XUnit, e.YUnit)
 	if _, err := wire.Marshal(fit); err != nil { // the finite check of every answer
 		return fail(src.Problem(err))
 	}

@@ -44,10 +44,7 @@ func TestBrowserUploadReport(t *testing.T) {
 		t.Fatal(err)
 	}
 	ts := newTCPServer(t, srv.Handler())
-	demo, err := filepath.Abs("../testdata/demo-gas-sensor.csv")
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, demo := gasSensorFitCSV(t)
 	opts := append(chromedp.DefaultExecAllocatorOptions[:],
 		chromedp.ExecPath(path), chromedp.NoSandbox, chromedp.UserDataDir(t.TempDir()),
 		chromedp.Flag("disable-gpu", true), chromedp.Flag("disable-quic", true),

@@ -18,7 +18,9 @@ var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
 	compute: func(ctx context.Context, req *wire.FitRequest, set study.Settings) (*study.FitResult, error) {
 		return study.Fit(ctx, req.Points.Data, req.Options(set))
 	},
-	answer: func(_ *wire.FitRequest, r *study.FitResult) any { return wire.NewFitResponse(r) },
+	answer: func(req *wire.FitRequest, r *study.FitResult) any {
+		return wire.NewFitResponse(r).WithUnits(req.XUnit, req.YUnit)
+	},
 	points: func(r *study.FitResult) int { return r.N },
 }
 

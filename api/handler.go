@@ -76,9 +76,10 @@ func analyse[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], kin
 
 // serve is the handler of an analysis endpoint: the media type, the body
 // within its limits and the memory budget, analyse, then JSON or (for
-// Accept: text/html) the HTML report.
+// Accept: text/html) the HTML report, drawn in a compute slot. An endpoint
+// without fromCSV takes JSON only; a nil page means JSON only.
 func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page pageOf[Req, Res]) {
-	kind, body, release := s.open(c, true)
+	kind, body, release := s.open(c, e.fromCSV != nil)
 	if kind == "" {
 		return
 	}
@@ -93,7 +94,7 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	if wantsHTML(c) {
+	if page != nil && wantsHTML(c) {
 		sum := sha256.Sum256(raw)
 		pg, err := drawPage(s, c, a, hex.EncodeToString(sum[:]), page)
 		if err != nil {

@@ -16,6 +16,7 @@ import (
 
 	"eivfit/api/report"
 	"eivfit/api/wire"
+	"eivfit/eiv/study"
 )
 
 // renderExtremes are the values FuzzRender draws from: magnitudes at and
@@ -121,7 +122,9 @@ func renderSeeds() [][]byte {
 const renderBound = 5 * time.Second
 
 // FuzzRender feeds small datasets with extreme values to every plot kind
-// and, through a fit, to the HTML report; each must answer within
+// (the difference plot in each form of limits, the calibration plots) and,
+// through a fit and a calibration, to the HTML report and the calibration
+// record; each must answer within
 // renderBound with well-formed SVG or an error that is not ErrDraw (a
 // panic inside the plot library) and never panic.
 func FuzzRender(f *testing.F) {
@@ -158,6 +161,21 @@ func renderAll(t *testing.T, in renderInput) {
 		"qq":         func() ([]byte, error) { return report.QQPlot(ctx, x, y) },
 		"difference": func() ([]byte, error) { return report.DifferencePlot(ctx, x, y, md, lo, hi, report.Axes{}) },
 		"bootstrap":  func() ([]byte, error) { return report.BootstrapPlot(ctx, y, est, lo, hi, "BCa") },
+		"data, x and y in different units": func() ([]byte, error) {
+			return report.DataPlot(ctx, x, y, sx, sy, line, &line, report.Axes{X: "x", Y: "y", Unit: "mg", YUnit: "mV"})
+		},
+		"difference, regression limits": func() ([]byte, error) {
+			f := report.DifferenceForm{Form: "regression", B0: md, B1: est, K: 1.96, C0: lo, C1: hi}
+			return report.DifferencePlotForm(ctx, x, y, md, lo, hi, f, report.Axes{})
+		},
+		"difference, ratio limits": func() ([]byte, error) {
+			f := report.DifferenceForm{Form: "ratio", Ratio: md, RatioLower: lo, RatioUpper: hi, Proportional: true, B0: est, B1: md}
+			return report.DifferencePlotForm(ctx, x, y, md, lo, hi, f, report.Axes{})
+		},
+		"calibration": func() ([]byte, error) {
+			return report.CalibrationPlot(ctx, x, y, sx, sy, line, order, y, sy, report.Axes{X: "x", Y: "y", Unit: "mg", YUnit: "mV"})
+		},
+		"standardized residuals": func() ([]byte, error) { return report.StandardizedResidualPlot(ctx, x, y, report.Axes{}) },
 	}
 	for kind, draw := range plots {
 		b, err := draw()
@@ -174,19 +192,50 @@ func renderAll(t *testing.T, in renderInput) {
 	for i := range x {
 		csv.WriteString(strconv.FormatFloat(x[i], 'g', -1, 64) + "," + strconv.FormatFloat(y[i], 'g', -1, 64) + "," + strconv.FormatFloat(order[i], 'g', -1, 64) + "\n")
 	}
-	a, err := csvFit(ctx, csv.String(), url.Values{}, fuzzSettings)
-	if err != nil {
-		return
+	if a, err := csvFit(ctx, csv.String(), url.Values{}, fuzzSettings); err == nil {
+		page, err := report.FitReport(ctx, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, "sha", "fuzz")
+		checkPage(t, "fit report", page, err)
 	}
-	page, err := report.FitReport(ctx, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, "sha", "fuzz")
+	// The calibration record: the points as standards with their
+	// uncertainties, order as the unknowns' readings.
+	var cal strings.Builder
+	cal.WriteString("role,x,ux,y,uy\n")
+	g := func(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+	for i := range x {
+		cal.WriteString("standard," + g(x[i]) + "," + g(math.Abs(sx[i])) + "," + g(y[i]) + "," + g(math.Abs(sy[i])) + "\n")
+		cal.WriteString("unknown,,," + g(order[i]) + ",\n")
+	}
+	if a, err := csvCalibrate(ctx, cal.String(), fuzzSettings); err == nil {
+		page, err := report.CalibrationReport(ctx, a.resp.(*wire.CalibrationResponse), a.res, "sha", "fuzz")
+		checkPage(t, "calibration record", page, err)
+	}
+}
+
+// checkPage fails on a panic inside the plot library or a page that does
+// not write. It reports with Errorf: it runs off the test's goroutine.
+func checkPage(t *testing.T, what string, page *report.Page, err error) {
 	if errors.Is(err, report.ErrDraw) {
-		t.Errorf("report: the plot library panicked")
+		t.Errorf("%s: the plot library panicked", what)
 	}
 	if err == nil {
 		if err := page.Write(io.Discard); err != nil {
-			t.Errorf("report: %v", err)
+			t.Errorf("%s: %v", what, err)
 		}
 	}
+}
+
+// csvCalibrate decodes a CSV calibration and computes it, as the service
+// does before it draws the record.
+func csvCalibrate(ctx context.Context, body string, set study.Settings) (*calibrationAnswer, error) {
+	req, err := wire.CalibrationFromCSV(strings.NewReader(body), url.Values{})
+	if err != nil {
+		return nil, err
+	}
+	res, err := study.Calibrate(ctx, req.Data, req.Options(set))
+	if err != nil {
+		return nil, err
+	}
+	return &calibrationAnswer{req: req, res: res, resp: wire.NewCalibrationResponse(req, res)}, nil
 }
 
 // wellFormed checks that b parses as XML and stays small. It reports

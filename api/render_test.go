@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
 	"math/rand/v2"
 	"net/http"
 	"net/http/httptest"
@@ -96,6 +97,19 @@ func TestRenderReproducers(t *testing.T) {
 				req.Header.Set("Accept", "text/html")
 				answered(t, withDeadline(t, srv, req, deadline), "text/html")
 			}
+			// x and y in different units: no identity line, no difference
+			// plot (400 naming y_unit).
+			for _, kind := range []string{"data", "difference"} {
+				req := httptest.NewRequest("POST", "/v1/plots/"+kind+"?methods=ols&x_unit=mg&y_unit=mV", strings.NewReader(c.csv))
+				req.Header.Set("Content-Type", "text/csv")
+				answered(t, withDeadline(t, srv, req, deadline), "image/svg+xml")
+			}
+			// The calibration record: the points as standards, y as the
+			// unknowns' readings.
+			req := httptest.NewRequest("POST", "/v1/calibration", strings.NewReader(calibrationCSV(c.csv)))
+			req.Header.Set("Content-Type", "text/csv")
+			req.Header.Set("Accept", "text/html")
+			answered(t, withDeadline(t, srv, req, deadline), "text/html")
 			for _, analysis := range []string{"fit", "compare"} {
 				form := url.Values{"csv": {c.csv}, "analysis": {analysis}}
 				req := httptest.NewRequest("POST", "/report", strings.NewReader(form.Encode()))
@@ -107,6 +121,80 @@ func TestRenderReproducers(t *testing.T) {
 				answered(t, rec, "text/html")
 			}
 		})
+	}
+}
+
+// calibrationCSV turns an x,y[,…] CSV into a calibration: each row a
+// standard (x, y) and an unknown read at y.
+func calibrationCSV(xy string) string {
+	var b strings.Builder
+	b.WriteString("role,x,y\n")
+	for _, line := range strings.Split(strings.TrimSpace(xy), "\n")[1:] {
+		f := strings.Split(line, ",")
+		b.WriteString("standard," + f[0] + "," + f[1] + "\nunknown,," + f[1] + "\n")
+	}
+	return b.String()
+}
+
+// TestRenderCalibrationAndForms: the calibration record (units on both
+// axes, correlated or plain) and the comparison's difference plot in the
+// regression and ratio forms are drawn through the router, and their SVG
+// is well formed.
+func TestRenderCalibrationAndForms(t *testing.T) {
+	srv, err := NewServer(Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var cal strings.Builder
+	cal.WriteString("role,id,x (mg/kg),ux,y1 (mV),y2,uy\n")
+	for i := range 8 {
+		x := float64(i + 1)
+		fmt.Fprintf(&cal, "standard,S%d,%g,0.01,%.4f,%.4f,0.02\n", i+1, x, 0.3+2.1*x+0.01*float64(i%3), 0.3+2.1*x-0.01*float64(i%2))
+	}
+	cal.WriteString("unknown,U1,,,7.1,7.2,\n")
+	req := httptest.NewRequest("POST", "/v1/calibration", strings.NewReader(cal.String()))
+	req.Header.Set("Content-Type", "text/csv")
+	req.Header.Set("Accept", "text/html")
+	rec := withDeadline(t, srv, req, 5*time.Second)
+	if rec.Code != http.StatusOK {
+		t.Fatalf("calibration record: %d %.300s", rec.Code, rec.Body.String())
+	}
+	for _, want := range []string{"Calibration line", "Standardized residuals of the standards", "unknowns x₀", "mg/kg", "mV"} {
+		if !strings.Contains(rec.Body.String(), want) {
+			t.Errorf("calibration record: no %q", want)
+		}
+	}
+	svgs := strings.Count(rec.Body.String(), "<svg")
+	if svgs != 2 {
+		t.Errorf("calibration record: %d plots, want 2", svgs)
+	}
+	// Proportional error: the differences grow with the level, so the
+	// comparison draws ratio or regression-based limits (seeded data).
+	r := rand.New(rand.NewPCG(18, 2))
+	var cmp strings.Builder
+	cmp.WriteString("x,y\n")
+	for range 60 {
+		v := 10 * math.Exp(3*r.Float64())
+		fmt.Fprintf(&cmp, "%.4f,%.4f\n", v*(1+0.05*r.NormFloat64()), 1.08*v*(1+0.05*r.NormFloat64()))
+	}
+	req = httptest.NewRequest("POST", "/v1/plots/difference", strings.NewReader(cmp.String()))
+	req.Header.Set("Content-Type", "text/csv")
+	rec = withDeadline(t, srv, req, 5*time.Second)
+	answered(t, rec, "image/svg+xml")
+	for _, f := range []report.DifferenceForm{
+		{Form: "regression", B0: 0.1, B1: 0.08, K: 1.96, C0: 0.2, C1: 0.05},
+		{Form: "ratio", Ratio: 1.08, RatioLower: 0.95, RatioUpper: 1.22, Proportional: true, B0: 0.1, B1: 0.08},
+		{Form: "regression", B0: 1e308, B1: 1e308, K: 1e308, C0: 1e308, C1: -1e308},
+		{Form: "ratio", Ratio: -1, RatioLower: -1, RatioUpper: 1e308},
+	} {
+		mean, diff := []float64{1, 2, 3, 1e300}, []float64{0.1, 0.2, 0.3, 1e299}
+		b, err := report.DifferencePlotForm(context.Background(), mean, diff, 0.1, -1, 1, f, report.Axes{})
+		if errors.Is(err, report.ErrDraw) {
+			t.Errorf("%+v: the plot library panicked", f)
+		}
+		if err == nil {
+			wellFormed(t, f.Form, b)
+		}
 	}
 }
 

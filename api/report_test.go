@@ -47,10 +47,7 @@ func svgOK(t *testing.T, b []byte) (text string, markers int) {
 
 func TestPlots(t *testing.T) {
 	h := newHarness(t, Config{})
-	csv, err := os.ReadFile("../testdata/demo-gas-sensor.csv")
-	if err != nil {
-		t.Fatal(err)
-	}
+	csv, _ := gasSensorFitCSV(t)
 	const n = 12
 	cases := []struct {
 		kind    string
@@ -103,11 +100,12 @@ func TestPlots(t *testing.T) {
 // SHA-256 and the seed.
 func TestHTMLReports(t *testing.T) {
 	h := newHarness(t, Config{Version: "9.9.9"})
+	_, gasPath := gasSensorFitCSV(t)
 	for _, c := range []struct {
 		name, target, file string
 		want               []string
 	}{
-		{"fit", "/v1/fit?at=500&resamples=400&seed=77", "../testdata/demo-gas-sensor.csv",
+		{"fit", "/v1/fit?at=500&resamples=400&seed=77", gasPath,
 			[]string{"Straight-line fit", "0.84465", "How far OLS would have been off", "Checks of the assumptions", "Decision levels"}},
 		{"compare", "/v1/method-comparison?decision_levels=3.9,7,11.1&allowable_percent=5&unit=mmol/L&resamples=200&seed=77", "../testdata/demo-glucose-duplicates.csv",
 			[]string{"Method comparison", "Report the Passing–Bablok fit", "Bias y − x at the decision levels", "limits of agreement", "D042", "Error model"}},

@@ -174,6 +174,8 @@ func NewServer(cfg Config) (*Server, error) {
 	v1.POST("/fit", s.negotiated(jsonType, htmlType), s.handleFit)
 	v1.POST("/batch", s.negotiated(jsonType), s.handleBatch)
 	v1.POST("/method-comparison", s.negotiated(jsonType, htmlType), s.handleCompare)
+	v1.POST("/calibration", s.negotiated(jsonType, htmlType), s.handleCalibration)
+	v1.POST("/plan", s.negotiated(jsonType), s.handlePlan)
 	v1.POST("/plots/:kind", s.negotiated("image/svg+xml"), s.handlePlot)
 	e.POST("/report", s.authorizeForm, s.negotiated(htmlType), s.plainBody(s.formProblemOf), s.handleFormReport)
 	get(e, "/", s.negotiated(htmlType), s.handleIndex)

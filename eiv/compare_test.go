@@ -52,7 +52,7 @@ func TestCompareOLSDilution(t *testing.T) {
 	}
 	// The bias at x = 30 under each line, as a + (b − 1)·30.
 	near(t, "ols bias at 30", c.At[0].OLS, ols.Intercept.Value+(ols.Slope.Value-1)*30, 1e-12)
-	if !strings.Contains(c.Summary, "understates the slope by") || !strings.Contains(c.Summary, "at x = 30") {
+	if !strings.Contains(c.Summary, "would understate the slope by") || !strings.Contains(c.Summary, "at x = 30") {
 		t.Errorf("summary %q", c.Summary)
 	}
 	// Without a bootstrap, the paired jackknife gives the interval.

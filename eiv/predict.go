@@ -133,15 +133,25 @@ func CompareOLS(ols, eiv *Fit, x, sx []float64, at []float64, boot *BootstrapRes
 	return c
 }
 
+// sentence says how far OLS is from the fit. It says that OLS would
+// understate (or overstate) the slope only when the interval of the
+// relative difference excludes zero; otherwise, or without an interval, it
+// says by how much the two differ and that no difference is excluded.
 func (c *OLSComparison) sentence(conf float64) string {
 	r := c.SlopeRelative
-	verb, mag, lo, hi := "overstates", r.Value, r.CI.Lower, r.CI.Upper
-	if r.Value < 0 {
-		verb, mag, lo, hi = "understates", -r.Value, -r.CI.Upper, -r.CI.Lower
-	}
-	s := fmt.Sprintf("Compared with %s, OLS %s the slope by %.3g %%", c.Method, verb, mag)
-	if r.CI.Method != "" {
-		s += fmt.Sprintf(" (%g %% CI %.3g to %.3g %%)", 100*conf, lo, hi)
+	var s string
+	switch {
+	case r.CI.Method != "" && (r.CI.Lower > 0 || r.CI.Upper < 0):
+		verb, mag, lo, hi := "overstate", r.Value, r.CI.Lower, r.CI.Upper
+		if r.Value < 0 {
+			verb, mag, lo, hi = "understate", -r.Value, -r.CI.Upper, -r.CI.Lower
+		}
+		s = fmt.Sprintf("Compared with %s, OLS would %s the slope by %.3g %% (%g %% CI %.3g to %.3g %%)", c.Method, verb, mag, 100*conf, lo, hi)
+	case r.CI.Method != "":
+		s = fmt.Sprintf("OLS and %s differ in slope by %+.3g %% (%g %% CI %.3g to %.3g %%: the interval includes no difference)",
+			c.Method, r.Value, 100*conf, r.CI.Lower, r.CI.Upper)
+	default:
+		s = fmt.Sprintf("OLS and %s differ in slope by %+.3g %% (no interval: the difference is not shown to be real)", c.Method, r.Value)
 	}
 	if len(c.At) > 0 {
 		s += fmt.Sprintf("; at x = %g its bias estimate is off by %+.3g", c.At[0].X, c.At[0].Difference)

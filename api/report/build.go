@@ -78,10 +78,17 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		b, err := QQPlot(ctx, th, sm)
 		return b, true, err
 	case "difference":
+		if !ps.axes.SameScale() {
+			return nil, false, wire.Invalid("y_unit", "x and y are in different units: a difference y − x has no meaning, so there is no difference plot")
+		}
 		a := ps.agreement
 		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
 		for i := range ps.x {
 			mean[i], diff[i] = ps.x[i]/2+ps.y[i]/2, ps.y[i]-ps.x[i] // never overflows
+		}
+		if f, ok := differenceForm(a); ok {
+			b, err := DifferencePlotForm(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes)
+			return b, true, err
 		}
 		b, err := DifferencePlot(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
 		return b, true, err
@@ -112,7 +119,7 @@ var plotCaptions = map[string]string{
 	"residuals":  "Residuals against level: a funnel shape means the error grows with the level; a curve means the relation is not a straight line.",
 	"run-order":  "Residuals in run order: drift, steps or runs point to instability during the study.",
 	"qq":         "Normal Q-Q plot: points near the line mean normal residuals; a bend means skew, isolated points at the ends outliers.",
-	"difference": "Difference plot: y − x against the mean of x and y, with the mean difference and the limits of agreement.",
+	"difference": "Difference plot: y − x against the mean of x and y, with the bias and the limits of agreement in the form the data call for (constant, ratio or regression-based), and the regression of the differences on the means when it shows a proportional bias.",
 	"bootstrap":  "The bootstrap distribution of the slope with the estimate and its interval.",
 }
 
@@ -128,9 +135,13 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 	if err != nil {
 		return nil, err
 	}
+	ax := Axes{X: "x", Y: "y", Unit: resp.XUnit, YUnit: resp.YUnit}
+	if resp.SameScale() {
+		ax = Axes{X: "x", Y: "y"}
+	}
 	return &plotSet{x: d.X, y: d.Y, sx: d.SX, sy: d.SY, fitName: pm.Method.Name, fit: resp.Fits.Get(pm.Method.Name), res: pm,
 		ols: resp.Fits.OLS, diag: wire.DiagnosticsOutOf(study.DiagnoseFit(d, pm)), agreement: wire.AgreementOutOf(ag),
-		axes: Axes{X: "x", Y: "y"}}, nil
+		axes: ax}, nil
 }
 
 // FitPlot draws one plot of a line fit; method "" means the primary fit.
@@ -202,7 +213,7 @@ func meta(version, sha string, fits wire.Fits, extra ...KV) []KV {
 }
 
 func fitsTable(fs wire.Fits) Table {
-	t := Table{Caption: "Fitted lines y = a + b·x", Header: []string{"method", "slope b", "wire.CI of b", "intercept a", "wire.CI of a", "SE basis"}, Numeric: []int{1, 2, 3, 4}}
+	t := Table{Caption: "Fitted lines y = a + b·x", Header: []string{"method", "slope b", "CI of b", "intercept a", "CI of a", "SE basis"}, Numeric: []int{1, 2, 3, 4}}
 	fs.Each(func(name string, m *wire.MethodFit) {
 		t.Rows = append(t.Rows, Row{Cells: []string{name, g(m.Slope.Estimate), ciText(m.Slope.CI), g(m.Intercept.Estimate), ciText(m.Intercept.CI), m.SEBasis}})
 	})
@@ -237,7 +248,7 @@ func olsSection(ob []wire.OLSBias) *Section {
 		return nil
 	}
 	s := &Section{Heading: "How far OLS would have been off"}
-	t := Table{Header: []string{"compared with", "slope OLS − EIV", "wire.CI", "slope difference %", "wire.CI", "reliability κ", "κ-attenuated slope"}, Numeric: []int{1, 2, 3, 4, 5, 6}}
+	t := Table{Header: []string{"compared with", "slope OLS − EIV", "CI", "slope difference %", "CI", "reliability κ", "κ-attenuated slope"}, Numeric: []int{1, 2, 3, 4, 5, 6}}
 	for _, o := range ob {
 		s.Text = append(s.Text, o.Summary)
 		k, ps := "-", "-"
@@ -301,12 +312,19 @@ func caption(kind string, n int) string {
 func (ps *plotSet) figures(ctx context.Context) ([]Figure, error) {
 	var out []Figure
 	for _, k := range PlotKinds {
+		if k == "difference" && !ps.axes.SameScale() {
+			continue
+		}
 		b, ok, err := ps.plot(ctx, k)
 		if err != nil {
 			return nil, err
 		}
 		if ok {
-			out = append(out, Figure{Caption: caption(k, len(ps.x)), SVG: SVG(b)})
+			c := caption(k, len(ps.x))
+			if k == "data" && !ps.axes.SameScale() {
+				c = strings.Replace(c, ", the OLS line and the identity line.", " and the OLS line (x and y are in different units: no identity line).", 1)
+			}
+			out = append(out, Figure{Caption: c, SVG: SVG(b)})
 		}
 	}
 	return out, nil
@@ -357,13 +375,19 @@ func FitReport(ctx context.Context, resp *wire.FitResponse, res *study.FitResult
 		}
 	}
 	p.Sections = append(p.Sections, Section{Heading: "Input", Text: inputs})
-	fits := Section{Heading: "wire.Fits", Tables: []Table{fitsTable(resp.Fits)}}
+	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(resp.Fits)}}
 	if t, ok := uncertaintyTable(resp.Fits); ok {
 		fits.Tables = append(fits.Tables, t)
 	}
 	p.Sections = append(p.Sections, fits)
-	if len(m.At) > 0 {
-		t := Table{Caption: "Fitted y and bias y − x at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "wire.CI", "bias", "wire.CI", "bootstrap wire.CI of bias"}, Numeric: []int{0, 1, 2, 3, 4, 5}}
+	if len(m.At) > 0 && !resp.SameScale() {
+		t := Table{Caption: "Fitted y at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "CI"}, Numeric: []int{0, 1, 2}}
+		for _, a := range m.At {
+			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI)}})
+		}
+		p.Sections = append(p.Sections, Section{Heading: "Predictions", Tables: []Table{t}})
+	} else if len(m.At) > 0 {
+		t := Table{Caption: "Fitted y and bias y − x at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "CI", "bias", "CI", "bootstrap CI of bias"}, Numeric: []int{0, 1, 2, 3, 4, 5}}
 		for _, a := range m.At {
 			bb := "-"
 			if a.Bias.Bootstrap != nil {
@@ -407,7 +431,7 @@ func CompareReport(ctx context.Context, resp *wire.CompareResponse, sc *study.Co
 		g(a.MeanDifference.Estimate), unit, ciText(a.MeanDifference.CI), g(a.LimitsOfAgreement.Lower.Estimate), g(a.LimitsOfAgreement.Upper.Estimate), unit))
 	p.Sections = append(p.Sections, Section{Heading: "Error model", Text: []string{c.ErrorModel.Reading,
 		fmt.Sprintf("Model used: %s (%s); λ = %s (%s).", c.ErrorModel.Model, c.ErrorModel.Source, g(c.ErrorModel.Lambda), c.ErrorModel.LambdaSource)}})
-	fits := Section{Heading: "wire.Fits", Tables: []Table{fitsTable(c.Fits)}}
+	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(c.Fits)}}
 	if t, ok := uncertaintyTable(c.Fits); ok {
 		fits.Tables = append(fits.Tables, t)
 	}
@@ -416,7 +440,7 @@ func CompareReport(ctx context.Context, resp *wire.CompareResponse, sc *study.Co
 	}
 	p.Sections = append(p.Sections, fits)
 	if len(c.DecisionLevels) > 0 {
-		t := Table{Caption: "Bias y − x at the decision levels", Header: []string{"level", "fit", "bias", "wire.CI", "bias %", "allowable", "verdict"}, Numeric: []int{0, 2, 3, 4, 5}}
+		t := Table{Caption: "Bias y − x at the decision levels", Header: []string{"level", "fit", "bias", "CI", "bias %", "allowable", "verdict"}, Numeric: []int{0, 2, 3, 4, 5}}
 		for _, l := range c.DecisionLevels {
 			allow := "-"
 			if l.Allowable != nil {
@@ -434,7 +458,7 @@ func CompareReport(ctx context.Context, resp *wire.CompareResponse, sc *study.Co
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
 	}
-	ag := Table{Caption: "Agreement (Bland–Altman)", Header: []string{"quantity", "estimate", "wire.CI"}, Numeric: []int{1, 2}}
+	ag := Table{Caption: "Agreement (Bland–Altman)", Header: []string{"quantity", "estimate", "CI"}, Numeric: []int{1, 2}}
 	ag.Rows = append(ag.Rows,
 		Row{Cells: []string{"mean difference y − x", g(a.MeanDifference.Estimate), ciText(a.MeanDifference.CI)}},
 		Row{Cells: []string{"SD of differences", g(a.SDDifference), "-"}},
@@ -462,4 +486,28 @@ func CompareReport(ctx context.Context, resp *wire.CompareResponse, sc *study.Co
 			Text: []string{w.Recommendation.Text}, Tables: []Table{t}})
 	}
 	return p, nil
+}
+
+// differenceForm is the form of limits a comparison's difference plot
+// draws; ok is false for constant limits without a proportional bias (the
+// plain plot).
+func differenceForm(a *wire.AgreementOut) (DifferenceForm, bool) {
+	if a.LimitsForm == nil {
+		return DifferenceForm{}, false
+	}
+	f := DifferenceForm{Form: a.LimitsForm.Form}
+	pb := a.ProportionalBias
+	if pb.Slope != nil && pb.PValue != nil {
+		f.B0, f.B1, f.Proportional = pb.Intercept.Estimate, pb.Slope.Estimate, *pb.PValue < 0.05
+	}
+	switch {
+	case f.Form == "regression" && a.RegressionLimits != nil:
+		r := a.RegressionLimits
+		f.B0, f.B1, f.K, f.C0, f.C1 = r.Bias.Intercept.Estimate, r.Bias.Slope.Estimate, r.Multiplier, r.Spread.Intercept.Estimate, r.Spread.Slope.Estimate
+	case f.Form == "ratio" && a.RatioLimits != nil:
+		f.Ratio, f.RatioLower, f.RatioUpper = a.RatioLimits.Ratio.Estimate, a.RatioLimits.Lower.Estimate, a.RatioLimits.Upper.Estimate
+	default:
+		f.Form = "constant"
+	}
+	return f, f.Form != "constant" || f.Proportional
 }

@@ -57,9 +57,12 @@ var (
 	dashLimit = []vg.Length{vg.Points(6), vg.Points(3)}
 )
 
-// Axes names the quantities on the axes, with their unit.
+// Axes names the quantities on the axes, with their unit. YUnit, when set
+// and not Unit, is y's own unit: x and y are then on different scales,
+// and nothing compares them with each other (no identity line).
 type Axes struct {
 	X, Y, Unit string
+	YUnit      string
 }
 
 func (a Axes) label(s string) string {
@@ -68,6 +71,18 @@ func (a Axes) label(s string) string {
 	}
 	return s + " (" + a.Unit + ")"
 }
+
+// labelY labels the y axis with y's unit.
+func (a Axes) labelY(s string) string {
+	if a.YUnit == "" {
+		return a.label(s)
+	}
+	return s + " (" + a.YUnit + ")"
+}
+
+// SameScale says whether x and y are in one unit, so that y = x means
+// agreement.
+func (a Axes) SameScale() bool { return a.YUnit == "" || a.YUnit == a.Unit }
 
 // Line is a fitted straight line, with its pointwise confidence band when
 // BandX is set.
@@ -262,26 +277,12 @@ func DataPlot(ctx context.Context, x, y, sx, sy []float64, fit Line, ols *Line, 
 		if ols != nil {
 			yv = append(yv, lineEnds(*ols, xlo, xhi))
 		}
-		f := newFigure("Data and fitted lines", ax.label(ax.X), ax.label(ax.Y), newAxis(x), newAxis(yv...))
-		if len(fit.BandX) > 1 {
-			var poly [][2]float64
-			for i := range fit.BandX {
-				poly = append(poly, [2]float64{f.x.u(fit.BandX[i]), f.y.u(fit.BandHi[i])})
-			}
-			for i := len(fit.BandX) - 1; i >= 0; i-- {
-				poly = append(poly, [2]float64{f.x.u(fit.BandX[i]), f.y.u(fit.BandLo[i])})
-			}
-			if pts := clipPolygon(poly); len(pts) > 2 {
-				if band, err := plotter.NewPolygon(pts); err == nil {
-					band.Color = inkBand
-					band.LineStyle.Width = 0
-					f.add(areas, band)
-				}
-			}
-		}
+		f := newFigure("Data and fitted lines", ax.label(ax.X), ax.labelY(ax.Y), newAxis(x), newAxis(yv...))
+		f.band(fit)
 		// The identity line across the view: its ends are found in unit
-		// coordinates, so no data value is formed outside float64.
-		if id := f.identity(); id != nil {
+		// coordinates, so no data value is formed outside float64. Only
+		// when x and y share a unit.
+		if id := f.identity(); id != nil && ax.SameScale() {
 			f.add(lines, id)
 			f.p.Legend.Add("identity y = x", id)
 		}
@@ -297,6 +298,28 @@ func DataPlot(ctx context.Context, x, y, sx, sy []float64, fit Line, ols *Line, 
 		}
 		return f, nil
 	})
+}
+
+// band draws the line's pointwise band, clipped to the view, when it has
+// one.
+func (f *figure) band(l Line) {
+	if len(l.BandX) < 2 {
+		return
+	}
+	poly := make([][2]float64, 0, 2*len(l.BandX))
+	for i := range l.BandX {
+		poly = append(poly, [2]float64{f.x.u(l.BandX[i]), f.y.u(l.BandHi[i])})
+	}
+	for i := len(l.BandX) - 1; i >= 0; i-- {
+		poly = append(poly, [2]float64{f.x.u(l.BandX[i]), f.y.u(l.BandLo[i])})
+	}
+	if pts := clipPolygon(poly); len(pts) > 2 {
+		if band, err := plotter.NewPolygon(pts); err == nil {
+			band.Color = inkBand
+			band.LineStyle.Width = 0
+			f.add(areas, band)
+		}
+	}
 }
 
 // identity is y = x clipped to the view, found from the data values at
@@ -473,28 +496,6 @@ func QQPlot(ctx context.Context, theoretical, sample []float64) ([]byte, error) 
 			f.p.Legend.Add("normal reference", ref)
 		}
 		_, err := f.points(ctx, theoretical, sample, "")
-		return f, err
-	})
-}
-
-// DifferencePlot is the Bland–Altman plot: y − x against the mean of the
-// two, with the mean difference and the limits of agreement.
-func DifferencePlot(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, ax Axes) ([]byte, error) {
-	if len(mean) == 0 {
-		return nil, ErrNoData
-	}
-	if err := finite(mean, diff, []float64{meanDiff, lower, upper}); err != nil {
-		return nil, err
-	}
-	return drawn(func() (*figure, error) {
-		f := newFigure("Difference plot (Bland–Altman)", ax.label("mean of x and y"), ax.label("difference y − x"),
-			newAxis(mean), newAxis(diff, []float64{0, meanDiff, lower, upper}))
-		lo, hi := slices.Min(mean), slices.Max(mean)
-		f.hline(0, lo, hi, inkIdentity, dashRef, "")
-		f.hline(meanDiff, lo, hi, inkFit, nil, fmt.Sprintf("mean difference %.4g", meanDiff))
-		f.hline(lower, lo, hi, inkLimit, dashLimit, fmt.Sprintf("limits of agreement %.4g, %.4g", lower, upper))
-		f.hline(upper, lo, hi, inkLimit, dashLimit, "")
-		_, err := f.points(ctx, mean, diff, "")
 		return f, err
 	})
 }

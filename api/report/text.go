@@ -60,6 +60,16 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 		if len(f.At) == 0 || ferr != nil {
 			return
 		}
+		if !r.SameScale() {
+			fmt.Fprintf(&b, "\n%s at the requested x values:\n", name)
+			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+			fmt.Fprintln(tw, "  x\tfitted y\tCI")
+			for _, a := range f.At {
+				fmt.Fprintf(tw, "  %g\t%.6g\t%s\n", a.X, a.Y.Estimate, textCI(a.Y.CI, "%.6g"))
+			}
+			ferr = tw.Flush()
+			return
+		}
 		fmt.Fprintf(&b, "\n%s at decision levels:\n", name)
 		tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 		fmt.Fprintln(tw, "  x\tfitted y\tCI\tbias y − x\tCI")
@@ -142,6 +152,7 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 		a.MeanDifference.Estimate, a.MeanDifference.CI.Lower, a.MeanDifference.CI.Upper, a.SDDifference,
 		a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate)
 	fmt.Fprintf(b, "  %s\n", a.ProportionalBias.Reading)
+	writeAgreementText(b, &a)
 	if len(c.DecisionLevels) > 0 {
 		b.WriteString("\nBias at decision levels:\n")
 		tw = tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
@@ -161,11 +172,16 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 				if f.BiasPercent != nil {
 					pct = fmt.Sprintf("%.3g", f.BiasPercent.Estimate)
 				}
-				fmt.Fprintf(tw, "  %g\t%s\t%.4g\t%s\t%s\t%s\t%s\n", l.Level, name, f.Bias.Estimate, textCI(f.Bias.CI, "%.4g"),
+				lv := fmt.Sprintf("%g", l.Level)
+				if l.Extrapolated {
+					lv += " (extrapolated)"
+				}
+				fmt.Fprintf(tw, "  %s\t%s\t%.4g\t%s\t%s\t%s\t%s\n", lv, name, f.Bias.Estimate, textCI(f.Bias.CI, "%.4g"),
 					pct, allow, v)
 			})
 		}
 		_ = tw.Flush()
+		writeVerdictsText(b, c)
 	}
 	d := c.Diagnostics
 	fmt.Fprintf(b, "\nChecks on the %s residuals (%s):\n", d.ResidualsOf, d.Scale)
@@ -183,6 +199,47 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 		b.WriteString("\nWarnings:\n")
 		for _, wn := range c.Warnings {
 			fmt.Fprintf(b, "  %s\n", wn.Message)
+		}
+	}
+}
+
+// writeAgreementText adds the agreement beyond the constant limits: what
+// the limits describe, the form the data call for, the concordance and
+// the repeatabilities.
+func writeAgreementText(b *strings.Builder, a *wire.AgreementOut) {
+	if a.Reading != "" {
+		fmt.Fprintf(b, "  %s\n", a.Reading)
+	}
+	if s := a.SingleMeasurements; s != nil {
+		fmt.Fprintf(b, "  Single measurements: limits %.4g %s to %.4g %s (SD %.4g; means alone: %.4g to %.4g)\n",
+			s.LimitsOfAgreement.Lower.Estimate, textCI(s.LimitsOfAgreement.Lower.CI, "%.4g"),
+			s.LimitsOfAgreement.Upper.Estimate, textCI(s.LimitsOfAgreement.Upper.CI, "%.4g"), s.SD, s.MeansLimits.Lower, s.MeansLimits.Upper)
+	}
+	if c := a.Concordance; c != nil {
+		fmt.Fprintf(b, "  Lin's concordance %.4f %s: precision (ρ) %.4f, accuracy (C_b) %.4f\n", c.CCC.Estimate, textCI(c.CCC.CI, "%.4f"), c.Precision, c.Accuracy)
+	}
+	if r := a.Repeatability; r != nil {
+		for _, m := range []struct {
+			name string
+			r    *wire.MethodRepeatabilityOut
+		}{{"x", r.X}, {"y", r.Y}} {
+			if m.r != nil {
+				fmt.Fprintf(b, "  Repeatability of %s: within-sample SD %.4g %s, repeatability coefficient %.4g %s (%d df)\n", m.name,
+					m.r.WithinSD.Estimate, textCI(m.r.WithinSD.CI, "%.4g"), m.r.Coefficient.Estimate, textCI(m.r.Coefficient.CI, "%.4g"), m.r.DF)
+			}
+		}
+	}
+}
+
+// writeVerdictsText adds the outcome and the robustness panel.
+func writeVerdictsText(b *strings.Builder, c *wire.Comparison) {
+	if c.Outcome != nil {
+		fmt.Fprintf(b, "Outcome: %s\n", c.Outcome.Text)
+	}
+	if r := c.Robustness; r != nil {
+		fmt.Fprintf(b, "Robustness: %s\n", r.Reading)
+		for _, l := range r.Levels {
+			fmt.Fprintf(b, "  - %s\n", l.Reading)
 		}
 	}
 }

@@ -48,7 +48,7 @@ type Sample = study.Sample
 // Options are the study's options with the server's settings.
 func (req *CompareRequest) Options(set study.Settings) *study.CompareOptions {
 	o := &study.CompareOptions{Allowable: req.AllowableBias.allowable(), ErrorModel: req.ErrorModel,
-		Lambda: req.Lambda, Confidence: req.Confidence, Bootstrap: req.Bootstrap.options(), Exclude: req.Exclude, Settings: set}
+		Lambda: req.Lambda, Confidence: req.Confidence, Bootstrap: req.Bootstrap.options(), Exclude: req.Exclude, Unit: req.Unit, Settings: set}
 	for _, l := range req.DecisionLevels {
 		o.DecisionLevels = append(o.DecisionLevels, study.DecisionLevel{Level: l.Level, Allowable: l.AllowableBias.allowable()})
 	}
@@ -236,17 +236,23 @@ func capLimit(n int) int {
 	return n
 }
 
-// samplePtr is /samples/i[/field[/k]], formatted only on an error.
+// samplePtr is /list/i[/field[/k]] (list "samples" when empty), formatted
+// only on an error.
 type samplePtr struct {
 	i     int
 	field string
+	list  string
 }
 
 func (s samplePtr) String() string {
-	if s.field == "" {
-		return fmt.Sprintf("/samples/%d", s.i)
+	l := s.list
+	if l == "" {
+		l = "samples"
 	}
-	return fmt.Sprintf("/samples/%d/%s", s.i, s.field)
+	if s.field == "" {
+		return fmt.Sprintf("/%s/%d", l, s.i)
+	}
+	return fmt.Sprintf("/%s/%d/%s", l, s.i, s.field)
 }
 
 // sample reads one sample object.
@@ -298,7 +304,7 @@ func (p *pointParser) sample(i int) (Sample, error) {
 			}
 			p.pos++
 			p.ws()
-			fp := samplePtr{i, sampleKeys[k]}
+			fp := samplePtr{i: i, field: sampleKeys[k]}
 			var err error
 			switch k {
 			case 0:

@@ -1,6 +1,8 @@
 package wire
 
 import (
+	"fmt"
+
 	"eivfit/eiv"
 	"eivfit/eiv/study"
 )
@@ -10,6 +12,30 @@ func NewFitResponse(r *study.FitResult) *FitResponse {
 	return &FitResponse{N: r.N, Confidence: r.Confidence, Fits: fitsOut(r.Fits),
 		OLSBias: olsBiasOut(r.OLSBias), Warnings: warningsOut(r.Warnings)}
 }
+
+// WarnUnitsDiffer is the code of the warning that x and y are in
+// different units.
+const WarnUnitsDiffer = "units_differ"
+
+// WithUnits records the units the caller stated; when they differ, it
+// leaves out the bias y − x and says why in a warning.
+func (r *FitResponse) WithUnits(xUnit, yUnit string) *FitResponse {
+	r.XUnit, r.YUnit = xUnit, yUnit
+	if !r.SameScale() {
+		r.Fits.Each(func(_ string, m *MethodFit) {
+			for i := range m.At {
+				m.At[i].Bias = nil
+			}
+		})
+		r.Warnings = append(r.Warnings, Warning{Code: WarnUnitsDiffer, Message: fmt.Sprintf(
+			"x (%s) and y (%s) are in different units: the bias y − x, the identity line and the difference plot do not apply and are left out", r.XUnit, r.YUnit)})
+	}
+	return r
+}
+
+// SameScale says whether x and y may be compared with each other: no
+// units stated, or the same unit.
+func (r *FitResponse) SameScale() bool { return r.XUnit == "" || r.YUnit == "" || r.XUnit == r.YUnit }
 
 // NewCompareResponse is the answer to a method-comparison study.
 func NewCompareResponse(req *CompareRequest, c *study.Comparison) *CompareResponse {
@@ -39,12 +65,13 @@ func comparisonOut(c *study.Comparison) *Comparison {
 	}
 	out.Agreement = *AgreementOutOf(c.Agreement)
 	for _, l := range c.DecisionLevels {
-		lo := LevelOut{Level: l.Level, Fits: map[string]LevelFit{}}
+		lo := LevelOut{Level: l.Level, Extrapolated: l.Extrapolated, Fits: map[string]LevelFit{}}
 		if a := l.Allowable; a != nil {
 			lo.Allowable = &AllowableOut{Absolute: a.Absolute, Percent: a.Percent, Limit: l.Limit}
 		}
 		for _, f := range l.Fits {
-			lf := LevelFit{Bias: atOut(f.At).Bias, Verdict: f.Verdict}
+			lf := LevelFit{Bias: *atOut(f.At).Bias, Verdict: f.Verdict}
+			lf.Bias.SE, lf.Bias.CI = seCI(f.Bias) // the interval the verdict judged
 			if l.Level != 0 {
 				bp := interval(f.BiasPercent)
 				lf.BiasPercent = &bp
@@ -53,6 +80,7 @@ func comparisonOut(c *study.Comparison) *Comparison {
 		}
 		out.DecisionLevels = append(out.DecisionLevels, lo)
 	}
+	out.Outcome, out.Robustness = outcomeOut(c.Outcome), robustnessOut(c.Robustness)
 	return out
 }
 
@@ -79,6 +107,7 @@ func AgreementOutOf(a *study.Agreement) *AgreementOut {
 		out.Percent = &PercentOut{MeanDifference: interval(p.MeanDifference), SDDifference: p.SDDifference,
 			LimitsOfAgreement: LimitsOut{Lower: interval(p.Lower), Upper: interval(p.Upper)}}
 	}
+	agreementForms(out, a)
 	return out
 }
 
@@ -164,7 +193,8 @@ func methodFit(m *study.MethodResult) *MethodFit {
 }
 
 func atOut(p *study.Prediction) AtOut {
-	a := AtOut{X: p.X, Y: interval(p.Y), Bias: interval(p.Bias)}
+	bias := interval(p.Bias)
+	a := AtOut{X: p.X, Y: interval(p.Y), Bias: &bias}
 	if iv := p.Boot; iv != nil {
 		a.Y.Bootstrap = bounds(iv)
 		a.Bias.Bootstrap = &Bounds{iv.Lower - p.X, iv.Upper - p.X}

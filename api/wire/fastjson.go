@@ -33,7 +33,7 @@ const maxNameBytes = 256
 const maxDepth = 64
 
 // fitKeys are the members of a fit request.
-var fitKeys = []string{"points", "methods", "lambda", "confidence", "bootstrap", "at"}
+var fitKeys = []string{"points", "methods", "lambda", "confidence", "bootstrap", "at", "x_unit", "y_unit"}
 
 // DecodeFitJSON reads a FitRequest from JSON, strictly: unknown, repeated or
 // case-variant keys, trailing data, non-numbers and numbers outside the
@@ -120,6 +120,14 @@ func (p *pointParser) fitMember(req *FitRequest, key []byte, ptr string) error {
 			req.At = append(req.At, v)
 			return err
 		})
+	case "x_unit":
+		s, err := p.text(ptr+"/x_unit", true)
+		req.XUnit = s
+		return err
+	case "y_unit":
+		s, err := p.text(ptr+"/y_unit", true)
+		req.YUnit = s
+		return err
 	}
 	return p.unknownKey(ptr, key, fitKeys)
 }

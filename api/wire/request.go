@@ -29,6 +29,10 @@ type FitRequest struct {
 	Bootstrap *BootstrapOptions `json:"bootstrap,omitempty"`
 	// At lists x values at which to report the fitted y and the bias y − x.
 	At []float64 `json:"at,omitempty"`
+	// XUnit and YUnit are the units of x and y; when they differ, nothing
+	// compares y with x (see FitResponse.WithUnits).
+	XUnit string `json:"x_unit,omitempty"`
+	YUnit string `json:"y_unit,omitempty"`
 }
 
 // BootstrapOptions select the bootstrap.
@@ -58,7 +62,7 @@ var DefaultLimits = Limits{Limits: study.DefaultLimits, MaxBatch: 1000}
 func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 	req := &FitRequest{Points: *d}
 	for k := range q {
-		if !slices.Contains([]string{"methods", "lambda", "confidence", "resamples", "seed", "scheme", "at"}, k) {
+		if !slices.Contains([]string{"methods", "lambda", "confidence", "resamples", "seed", "scheme", "at", "x_unit", "y_unit"}, k) {
 			return nil, Invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
 		}
 	}
@@ -92,6 +96,12 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 	}
 	if req.At, err = queryFloats(q, "at"); err != nil {
 		return nil, err
+	}
+	req.XUnit, req.YUnit = q.Get("x_unit"), q.Get("y_unit")
+	for _, name := range []string{"x_unit", "y_unit"} {
+		if err := nameLength("query parameter "+name, q.Get(name)); err != nil {
+			return nil, err
+		}
 	}
 	return req, nil
 }

@@ -5,7 +5,12 @@ package wire
 type FitResponse struct {
 	N          int     `json:"n"`
 	Confidence float64 `json:"confidence"`
-	Fits       Fits    `json:"fits"`
+	// XUnit and YUnit are the units the caller stated. When they differ,
+	// x and y are different quantities: the bias y − x (at[].bias), the
+	// identity line and the difference plot are left out.
+	XUnit string `json:"x_unit,omitempty"`
+	YUnit string `json:"y_unit,omitempty"`
+	Fits  Fits   `json:"fits"`
 	// OLSBias shows how far ordinary least squares is from each
 	// errors-in-variables fit (present when OLS and another fit ran).
 	OLSBias []OLSBias `json:"ols_bias,omitempty"`
@@ -166,11 +171,12 @@ type Bounds struct {
 	Upper float64 `json:"upper"`
 }
 
-// AtOut is the prediction and the bias against identity at one x value.
+// AtOut is the prediction and the bias against identity at one x value;
+// Bias is absent when x and y are in different units.
 type AtOut struct {
-	X    float64  `json:"x"`
-	Y    Interval `json:"y"`
-	Bias Interval `json:"bias"`
+	X    float64   `json:"x"`
+	Y    Interval  `json:"y"`
+	Bias *Interval `json:"bias,omitempty"`
 }
 
 // Interval is an estimate with its confidence interval and, when the
@@ -235,12 +241,17 @@ type Comparison struct {
 	Excluded   []string `json:"excluded,omitempty"`
 	Confidence float64  `json:"confidence"`
 	// Replicates says whether any sample has replicates.
-	Replicates     bool            `json:"replicates"`
-	ErrorModel     ErrorModelOut   `json:"error_model"`
-	Fits           Fits            `json:"fits"`
-	OLSBias        []OLSBias       `json:"ols_bias,omitempty"`
-	Agreement      AgreementOut    `json:"agreement"`
-	DecisionLevels []LevelOut      `json:"decision_levels,omitempty"`
+	Replicates     bool          `json:"replicates"`
+	ErrorModel     ErrorModelOut `json:"error_model"`
+	Fits           Fits          `json:"fits"`
+	OLSBias        []OLSBias     `json:"ols_bias,omitempty"`
+	Agreement      AgreementOut  `json:"agreement"`
+	DecisionLevels []LevelOut    `json:"decision_levels,omitempty"`
+	// Outcome sums up the recommended fit's verdicts; Robustness says
+	// whether each verdict holds under every fit and without the outliers
+	// (both present when a level has an allowable bias).
+	Outcome        *OutcomeOut     `json:"outcome,omitempty"`
+	Robustness     *RobustnessOut  `json:"robustness,omitempty"`
 	Diagnostics    DiagnosticsOut  `json:"diagnostics"`
 	Recommendation RecommendationO `json:"recommendation"`
 	Warnings       []Warning       `json:"warnings"`
@@ -274,6 +285,17 @@ type AgreementOut struct {
 	LimitsOfAgreement LimitsOut       `json:"limits_of_agreement"`
 	Percent           *PercentOut     `json:"percent,omitempty"`
 	ProportionalBias  ProportionalOut `json:"proportional_bias"`
+	// Describes says what limits_of_agreement describe: single_measurements,
+	// or means_of_replicates when the samples have replicates (then
+	// single_measurements holds the limits for single measurements).
+	Describes          string               `json:"describes"`
+	SingleMeasurements *SingleLimitsOut     `json:"single_measurements,omitempty"`
+	LimitsForm         *LimitsFormOut       `json:"limits_form,omitempty"`
+	RegressionLimits   *RegressionLimitsOut `json:"regression_limits,omitempty"`
+	RatioLimits        *RatioLimitsOut      `json:"ratio_limits,omitempty"`
+	Concordance        *ConcordanceOut      `json:"concordance,omitempty"`
+	Repeatability      *RepeatabilityPair   `json:"repeatability,omitempty"`
+	Reading            string               `json:"reading"`
 }
 
 // LimitsOut holds the limits of agreement with their intervals.
@@ -301,6 +323,8 @@ type ProportionalOut struct {
 // LevelOut is the bias at one decision level under each fit.
 type LevelOut struct {
 	Level float64 `json:"level"`
+	// Extrapolated says the level lies outside the range of the x values.
+	Extrapolated bool `json:"extrapolated"`
 	// Allowable is the limit applied here, when one was given.
 	Allowable *AllowableOut       `json:"allowable_bias,omitempty"`
 	Fits      map[string]LevelFit `json:"fits"`

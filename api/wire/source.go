@@ -32,6 +32,9 @@ type Source struct {
 	Rows []int
 	// Methods are the methods the request listed (nil: the defaults).
 	Methods []string
+	// paths, when set, locates errors whose fields are slash paths into
+	// the request (a calibration's; see locatePath).
+	paths *calRows
 }
 
 // Problem turns a study error into a problem naming the offending place
@@ -65,6 +68,9 @@ func kindOf(k study.Kind) Kind {
 // Locate names the place of e: a data point's cell, the data as a whole,
 // a method, or an option.
 func (s *Source) Locate(e *study.Error) string {
+	if s.paths != nil {
+		return s.locatePath(e)
+	}
 	switch e.Field {
 	case study.FieldData:
 		return s.point(-1, "")

@@ -45,6 +45,8 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	seed := fs.String("seed", "", "bootstrap seed (default: drawn at random and reported)")
 	scheme := fs.String("scheme", "", "bootstrap scheme: pairs (default) or parametric")
 	at := fs.String("at", "", "comma list of x values (decision levels) for predictions and bias")
+	xUnit := fs.String("x-unit", "", "unit of x")
+	yUnit := fs.String("y-unit", "", "unit of y (when it differs from x's, nothing compares y with x: no bias y − x)")
 
 	file, done, err := parseFileArgs(fs, args, "fit", format, stderr)
 	if done {
@@ -74,12 +76,13 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 		return reportProblem(stderr, name, err)
 	}
 	req.Points = *d
+	req.XUnit, req.YUnit = *xUnit, *yUnit
 	src := req.Source().AsFlags()
 	res, err := study.Fit(ctx, d.Data, req.Options(study.Settings{Limits: study.DefaultLimits}))
 	if err != nil {
 		return reportProblem(stderr, name, src.Problem(err))
 	}
-	resp := wire.NewFitResponse(res)
+	resp := wire.NewFitResponse(res).WithUnits(req.XUnit, req.YUnit)
 	return writeOutput(stdout, stderr, name, src, *format, *pretty, resp, func(w io.Writer) error { return report.WriteText(w, resp) })
 }
 

@@ -24,7 +24,7 @@ func TestGoldenText(t *testing.T) {
 		golden string
 	}{
 		{"fit glucose", []string{"fit", "--format", "text", "--at", "7,11.1", "../../testdata/demo-glucose.csv"}, "fit-glucose.txt"},
-		{"fit gas sensor", []string{"fit", "--format", "text", "../../testdata/demo-gas-sensor.csv"}, "fit-gas-sensor.txt"},
+		{"calibrate gas sensor", []string{"calibrate", "--format", "text", "--coverage-probability", "0.95", "--trials", "20000", "--seed", "1", "--forward", "500", "../../testdata/demo-gas-sensor.csv"}, "calibrate-gas-sensor.txt"},
 		{"compare glucose duplicates", []string{"compare", "--format", "text", "--decision-levels", "7,11.1",
 			"--allowable-absolute", "0.3", "--allowable-percent", "5", "--unit", "mmol/L", "../../testdata/demo-glucose-duplicates.csv"}, "compare-glucose-duplicates.txt"},
 	} {

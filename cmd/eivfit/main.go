@@ -40,6 +40,8 @@ const usage = `eivfit fits straight lines when both x and y carry measurement er
 Usage:
   eivfit fit [flags] FILE     fit a CSV file (FILE "-" reads standard input)
   eivfit compare [flags] FILE run a method-comparison study on a CSV file
+  eivfit calibrate [flags] FILE calibrate against standards and evaluate unknowns
+  eivfit plan [flags] [FILE]  plan a method-comparison study by simulation
   eivfit serve [flags]        run the HTTP service
   eivfit bench [flags]        time the engine against scipy.odr and numpy
   eivfit load [flags]         load-test a server on loopback
@@ -58,6 +60,10 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 		return runFit(ctx, args[1:], stdin, stdout, stderr)
 	case "compare":
 		return runCompare(ctx, args[1:], stdin, stdout, stderr)
+	case "calibrate":
+		return runCalibrate(ctx, args[1:], stdin, stdout, stderr)
+	case "plan":
+		return runPlan(ctx, args[1:], stdin, stdout, stderr)
 	case "serve":
 		return runServe(ctx, args[1:], stdout, stderr)
 	case "bench":

@@ -102,6 +102,11 @@ func TestFitBadInputExitsTwo(t *testing.T) {
 		{"confidence rounds to 1", "x,y\n1,2\n2,3\n3,5\n", []string{"fit", "--confidence", "0.9999999999999999", "-"}, "--confidence: confidence must lie between"},
 		{"confidence tiny", "x,y\n1,2\n2,3\n3,5\n", []string{"fit", "--confidence", "1e-300", "-"}, "--confidence"},
 		{"compare confidence 1", "id,x,y\nA,1,2\n", []string{"compare", "--confidence", "1", "-"}, "--confidence"},
+		{"plan without error", "", []string{"plan", "--low", "3", "--high", "25", "--sizes", "40", "--lambda", "1"}, "--error-x"},
+		{"plan bad size", "", []string{"plan", "--low", "3", "--high", "25", "--error-x", "0.1", "--lambda", "1", "--sizes", "40,2"}, "--sizes"},
+		{"plan bad difference", "", []string{"plan", "--error-x", "0.1", "--differences", "2%"}, "--differences"},
+		{"plan file and flags", "{}", []string{"plan", "--low", "3", "-"}, "--low would be ignored"},
+		{"plan bad JSON field", `{"error_x":{"sd":0.1},"sizes":[40],"lambda":1,"low":1,"high":2,"nope":1}`, []string{"plan", "-"}, "/nope"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -119,7 +124,7 @@ func TestFitBadInputExitsTwo(t *testing.T) {
 
 // The demo files in testdata are the synthetic scenarios; the CLI fits them.
 func TestFitDemoData(t *testing.T) {
-	for _, f := range []string{"../../testdata/demo-glucose.csv", "../../testdata/demo-gas-sensor.csv"} {
+	for _, f := range []string{"../../testdata/demo-glucose.csv"} {
 		b, err := os.ReadFile(f)
 		if err != nil {
 			t.Fatal(err)
@@ -154,6 +159,7 @@ func TestCLIAndServiceIdentical(t *testing.T) {
 		{"../../testdata/demo-glucose.csv", "at=7,11.1&resamples=500&seed=42", []string{"--at", "7,11.1", "--resamples", "500", "--seed", "42"}},
 		{"../../testdata/pearson-york.csv", "methods=york,ols&scheme=parametric&resamples=300&seed=9&confidence=0.9",
 			[]string{"--methods", "york,ols", "--scheme", "parametric", "--resamples", "300", "--seed", "9", "--confidence", "0.9"}},
+		{"../../testdata/demo-glucose.csv", "at=7&x_unit=mmol/L&y_unit=mg/dL", []string{"--at", "7", "--x-unit", "mmol/L", "--y-unit", "mg/dL"}},
 	} {
 		body, err := os.ReadFile(c.file)
 		if err != nil {
@@ -173,6 +179,54 @@ func TestCLIAndServiceIdentical(t *testing.T) {
 		if rec.Body.String() != cli {
 			t.Errorf("%s: CLI and service differ\nCLI:\n%.400s\nservice:\n%.400s", c.file, cli, rec.Body.String())
 		}
+	}
+}
+
+// `eivfit calibrate` and POST /v1/calibration give byte-identical JSON for
+// the same CSV, flags and query; a bad flag names the flag.
+func TestCalibrateCLIAndServiceIdentical(t *testing.T) {
+	srv, err := api.NewServer(api.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	const file = "../../testdata/demo-gas-sensor.csv"
+	body, err := os.ReadFile(file)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Contains(body, []byte("SYNTHETIC DEMO DATA")) {
+		t.Errorf("%s does not say it is invented", file)
+	}
+	for _, c := range []struct {
+		query string
+		args  []string
+	}{
+		{"coverage_probability=0.95&trials=20000&seed=42&forward=500,1000", []string{"--coverage-probability", "0.95", "--trials", "20000", "--seed", "42", "--forward", "500,1000"}},
+		{"model=gmr&shared_name=cylinder&shared_relative_u=0.003&shared_standards=M01,M02,M03&x_unit=umol/mol",
+			[]string{"--model", "gmr", "--shared-name", "cylinder", "--shared-relative-u", "0.003", "--shared-standards", "M01,M02,M03", "--x-unit", "umol/mol"}},
+	} {
+		cli, stderr, err := runCmd(t, "", append(append([]string{"calibrate"}, c.args...), file)...)
+		if err != nil {
+			t.Fatalf("%v: %s", err, stderr)
+		}
+		req := httptest.NewRequest("POST", "/v1/calibration?"+c.query, bytes.NewReader(body))
+		req.Header.Set("Content-Type", "text/csv")
+		rec := httptest.NewRecorder()
+		srv.Handler().ServeHTTP(rec, req)
+		if rec.Code != 200 {
+			t.Fatalf("status %d %s", rec.Code, rec.Body.String())
+		}
+		if rec.Body.String() != cli {
+			t.Errorf("CLI and service differ\nCLI:\n%.400s\nservice:\n%.400s", cli, rec.Body.String())
+		}
+	}
+	_, stderr, err := runCmd(t, "", "calibrate", "--trials", "many", file)
+	if err == nil || !strings.Contains(stderr, "--trials") {
+		t.Errorf("bad flag: %v %s", err, stderr)
+	}
+	_, stderr, err = runCmd(t, "", "calibrate", "--coverage-factor", "-1", file)
+	if err == nil || !strings.Contains(stderr, "--coverage-factor") {
+		t.Errorf("bad option: %v %s", err, stderr)
 	}
 }
 
@@ -406,5 +460,39 @@ func TestServeAPIKeysFile(t *testing.T) {
 	cancel()
 	if err := <-done; err != nil {
 		t.Error(err)
+	}
+}
+
+// `eivfit plan` from flags, from a JSON file and POST /v1/plan give the
+// same bytes for the same plan.
+func TestPlanCLIAndServiceIdentical(t *testing.T) {
+	srv, err := api.NewServer(api.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	body := `{"low":3,"high":25,"error_x":{"sd":0.1,"cv_percent":2.5},"lambda":1,"replicates":{"x":2,"y":2},"sizes":[40,60],` +
+		`"differences":[{"constant":0,"proportional_percent":2}],"decision_levels":[7,11.1],"allowable_bias":{"percent":5},"trials":300,"seed":3,"unit":"mmol/L"}`
+	flags, stderr, err := runCmd(t, "", "plan", "--low", "3", "--high", "25", "--error-x", "0.1,2.5", "--lambda", "1", "--replicates", "2",
+		"--sizes", "40,60", "--differences", "0:2", "--decision-levels", "7,11.1", "--allowable-percent", "5", "--trials", "300", "--seed", "3", "--unit", "mmol/L")
+	if err != nil {
+		t.Fatalf("%v: %s", err, stderr)
+	}
+	file, stderr, err := runCmd(t, body, "plan", "-")
+	if err != nil {
+		t.Fatalf("%v: %s", err, stderr)
+	}
+	req := httptest.NewRequest("POST", "/v1/plan", strings.NewReader(body))
+	req.Header.Set("Content-Type", "application/json")
+	rec := httptest.NewRecorder()
+	srv.Handler().ServeHTTP(rec, req)
+	if rec.Code != 200 {
+		t.Fatalf("status %d %s", rec.Code, rec.Body.String())
+	}
+	if flags != file || file != rec.Body.String() {
+		t.Errorf("flags, file and service differ:\n%.300s\n%.300s\n%.300s", flags, file, rec.Body.String())
+	}
+	text, _, err := runCmd(t, body, "plan", "--format", "text", "-")
+	if err != nil || !strings.Contains(text, "in duplicate") || !strings.Contains(text, "slope power") {
+		t.Errorf("text output (%v):\n%s", err, text)
 	}
 }

@@ -66,6 +66,8 @@ type CompareOptions struct {
 	// Exclude lists sample ids to leave out; the answer then holds the
 	// analysis with and without them.
 	Exclude []string
+	// Unit names the unit of the measurand in sentences (may be empty).
+	Unit string
 	Settings
 }
 
@@ -86,6 +88,13 @@ type Comparison struct {
 	OLSBias        []*eiv.OLSComparison
 	Agreement      *Agreement
 	DecisionLevels []LevelResult
+	// Outcome sums up the recommended fit's verdicts over the decision
+	// levels (nil when no level has an allowable bias).
+	Outcome *Outcome
+	// Robustness says whether each level's verdict holds under every fit
+	// the data allow and without the flagged outliers (nil when no level
+	// has an allowable bias).
+	Robustness     *Robustness
 	Diagnostics    *Diagnostics
 	Recommendation Recommendation
 	Warnings       []Warning
@@ -120,16 +129,26 @@ type ErrorModel struct {
 
 // Agreement is the Bland–Altman analysis with its reading.
 type Agreement struct {
+	// Agreement holds the limits of agreement of the samples' values (the
+	// means of their replicates when there are replicates).
 	*eiv.Agreement
+	// Describes says what those limits describe: single measurements
+	// (every sample measured once by each method) or the means of the
+	// replicates, which are narrower than the limits for single measurements.
+	Describes eiv.LimitsOf
 	// Percent is the agreement in percent of the level (positive data only).
 	Percent *eiv.Agreement
 	// ProportionalReading reads the regression of differences on means.
 	ProportionalReading string
+	AgreementForms
 }
 
 // LevelResult is the bias at one decision level under each fit.
 type LevelResult struct {
 	Level float64
+	// Extrapolated says the level lies outside the range of the samples' x
+	// values: its biases rest on the line's extension beyond the data.
+	Extrapolated bool
 	// Allowable is the allowable bias applied here, nil when none; Limit
 	// is then max(absolute, percent·level/100), in units of x.
 	Allowable *Allowable
@@ -142,6 +161,11 @@ type LevelFit struct {
 	Method *Method
 	// At is the fit's prediction at the level (its Bias is y − x).
 	At *Prediction
+	// Bias is the bias the verdict judges: At's bias, except for
+	// Passing–Bablok with a bootstrap, whose interval is then the bootstrap
+	// interval (BCa, else percentile) rather than the jackknife's (see the
+	// README: the jackknife interval covers too rarely).
+	Bias eiv.Estimate
 	// BiasPercent is the bias in percent of the level (zero at level 0;
 	// without an interval where the bias has none).
 	BiasPercent eiv.Estimate
@@ -404,7 +428,8 @@ func analyse(ctx context.Context, st *reduced, o *CompareOptions) (*Comparison, 
 	if c.Agreement, err = agreement(st.X, st.Y, conf, positive); err != nil {
 		return nil, fail("agreement", err)
 	}
-	c.DecisionLevels = judge(o, c.Fits)
+	c.Agreement.forms(st, conf, positive, o.Unit, &c.Warnings)
+	c.DecisionLevels = judge(o, c.Fits, st.X)
 	// Diagnostics on the residuals of the fit that matches the error model.
 	diag := c.Get("deming")
 	if wd := c.Get("weighted_deming"); em.Model == string(eiv.ErrorProportional) && wd != nil {
@@ -413,6 +438,11 @@ func analyse(ctx context.Context, st *reduced, o *CompareOptions) (*Comparison, 
 	cusum := c.Get("passing_bablok").PassingBablok.Cusum
 	c.Diagnostics = diagnose(st, diag.Fit, diag.Method.Name, em.Model, &cusum, em.X, em.Y)
 	c.Recommendation = recommend(c, positive)
+	c.Outcome = outcome(c, o.Unit)
+	if c.Robustness, err = robustness(ctx, st, em, o, c, positive); err != nil {
+		return nil, err
+	}
+	pbJackknifeWarning(c)
 	return c, nil
 }
 
@@ -534,10 +564,14 @@ func agreement(x, y []float64, conf float64, positive bool) (*Agreement, error) 
 }
 
 // judge judges the bias at each decision level against its allowable bias.
-func judge(o *CompareOptions, fits []*MethodResult) []LevelResult {
+func judge(o *CompareOptions, fits []*MethodResult, x []float64) []LevelResult {
 	var out []LevelResult
+	xlo, xhi := math.Inf(1), math.Inf(-1)
+	for _, v := range x {
+		xlo, xhi = math.Min(xlo, v), math.Max(xhi, v)
+	}
 	for i, l := range o.DecisionLevels {
-		lo := LevelResult{Level: l.Level, Allowable: l.Allowable}
+		lo := LevelResult{Level: l.Level, Allowable: l.Allowable, Extrapolated: l.Level < xlo || l.Level > xhi}
 		if lo.Allowable == nil {
 			lo.Allowable = o.Allowable
 		}
@@ -552,7 +586,11 @@ func judge(o *CompareOptions, fits []*MethodResult) []LevelResult {
 		for _, f := range fits {
 			at := &f.At[i]
 			b := at.Bias
-			lf := LevelFit{Method: f.Method, At: at}
+			if f.Method.Name == "passing_bablok" && at.Boot != nil {
+				b.CI = eiv.Interval{Lower: at.Boot.Lower - l.Level, Upper: at.Boot.Upper - l.Level, Level: at.Boot.Level,
+					Method: "bootstrap " + at.Boot.Method}
+			}
+			lf := LevelFit{Method: f.Method, At: at, Bias: b}
 			if l.Level != 0 {
 				k := 100 / l.Level
 				lf.BiasPercent = eiv.Estimate{Value: b.Value * k, SE: b.SE * math.Abs(k)}
@@ -560,16 +598,8 @@ func judge(o *CompareOptions, fits []*MethodResult) []LevelResult {
 					lf.BiasPercent.CI = eiv.Interval{Lower: math.Min(b.CI.Lower*k, b.CI.Upper*k), Upper: math.Max(b.CI.Lower*k, b.CI.Upper*k), Level: b.CI.Level, Method: b.CI.Method}
 				}
 			}
-			if lo.Allowable != nil && b.CI.Method != "" { // no interval, no verdict
-				lim := lo.Limit
-				switch {
-				case b.CI.Lower >= -lim && b.CI.Upper <= lim:
-					lf.Verdict = "within"
-				case b.CI.Lower > lim || b.CI.Upper < -lim:
-					lf.Verdict = "exceeds"
-				default:
-					lf.Verdict = "inconclusive"
-				}
+			if lo.Allowable != nil {
+				lf.Verdict = verdict(b.CI, lo.Limit)
 			}
 			lo.Fits = append(lo.Fits, lf)
 		}
@@ -627,4 +657,19 @@ func recommend(c *Comparison, positive bool) Recommendation {
 	}
 	return Recommendation{Method: method, Reasons: reasons,
 		Text: fmt.Sprintf("Report the %s fit: %s.", MethodNamed(method).Display, strings.Join(reasons, "; "))}
+}
+
+// verdict judges a bias interval against ±lim: "within" (the whole
+// interval inside), "exceeds" (the whole interval outside), else
+// "inconclusive"; "" without an interval (no interval, no verdict).
+func verdict(ci eiv.Interval, lim float64) string {
+	switch {
+	case ci.Method == "":
+		return ""
+	case ci.Lower >= -lim && ci.Upper <= lim:
+		return eiv.VerdictWithin
+	case ci.Lower > lim || ci.Upper < -lim:
+		return eiv.VerdictExceeds
+	}
+	return eiv.VerdictInconclusive
 }

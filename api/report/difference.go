@@ -1,0 +1,95 @@
+package report
+
+import (
+	"context"
+	"fmt"
+	"image/color"
+	"slices"
+
+	"gonum.org/v1/plot/vg"
+)
+
+// DifferenceForm is the form of limits of agreement a difference plot
+// draws. Every form is straight in the mean A of x and y: regression-based
+// limits b0 + b1·A ∓ K·(c0 + c1·A) (Bland & Altman 1999, §3.2), and ratio
+// limits y/x = r, which on the difference scale are d = 2A·(r − 1)/(r + 1).
+type DifferenceForm struct {
+	// Form is "constant", "ratio" or "regression".
+	Form string
+	// B0 and B1 are the regression of the differences on the means;
+	// Proportional draws it (a proportional bias), and the regression
+	// form draws its limits from it with K, C0 and C1.
+	B0, B1       float64
+	Proportional bool
+	K, C0, C1    float64
+	// Ratio, RatioLower and RatioUpper are the ratio form's y/x.
+	Ratio, RatioLower, RatioUpper float64
+}
+
+// DifferencePlot is the Bland–Altman plot: y − x against the mean of the
+// two, with the mean difference and the limits of agreement.
+func DifferencePlot(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, ax Axes) ([]byte, error) {
+	return DifferencePlotForm(ctx, mean, diff, meanDiff, lower, upper, DifferenceForm{Form: "constant"}, ax)
+}
+
+// DifferencePlotForm is DifferencePlot with the limits of the form the
+// analysis chose and, with a proportional bias, the regression of the
+// differences on the means. Like every plot it maps its data onto the unit
+// square itself (see axis): the y view holds the differences, zero and
+// each drawn line at the ends of the means' range, and the lines are
+// clipped to the view.
+func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, f DifferenceForm, ax Axes) ([]byte, error) {
+	if len(mean) == 0 {
+		return nil, ErrNoData
+	}
+	if err := finite(mean, diff, []float64{meanDiff, lower, upper, f.B0, f.B1, f.K, f.C0, f.C1, f.Ratio, f.RatioLower, f.RatioUpper}); err != nil {
+		return nil, err
+	}
+	return drawn(func() (*figure, error) {
+		lo, hi := slices.Min(mean), slices.Max(mean)
+		type drawnLine struct {
+			l      Line
+			ink    color.Color
+			dash   []vg.Length
+			legend string
+		}
+		ratioLine := func(r float64) Line { return Line{Slope: 2 * (r - 1) / (r + 1)} }
+		var ls []drawnLine
+		switch f.Form {
+		case "regression":
+			ls = []drawnLine{
+				{Line{Intercept: f.B0, Slope: f.B1}, inkFit, nil, fmt.Sprintf("bias %.4g %+.4g·A", f.B0, f.B1)},
+				{Line{Intercept: f.B0 - f.K*f.C0, Slope: f.B1 - f.K*f.C1}, inkLimit, dashLimit, "regression-based limits of agreement"},
+				{Line{Intercept: f.B0 + f.K*f.C0, Slope: f.B1 + f.K*f.C1}, inkLimit, dashLimit, ""},
+			}
+		case "ratio":
+			ls = []drawnLine{
+				{ratioLine(f.Ratio), inkFit, nil, fmt.Sprintf("ratio y/x %.4g", f.Ratio)},
+				{ratioLine(f.RatioLower), inkLimit, dashLimit, fmt.Sprintf("ratio limits %.4g, %.4g", f.RatioLower, f.RatioUpper)},
+				{ratioLine(f.RatioUpper), inkLimit, dashLimit, ""},
+			}
+		default:
+			ls = []drawnLine{
+				{Line{Intercept: meanDiff}, inkFit, nil, fmt.Sprintf("mean difference %.4g", meanDiff)},
+				{Line{Intercept: lower}, inkLimit, dashLimit, fmt.Sprintf("limits of agreement %.4g, %.4g", lower, upper)},
+				{Line{Intercept: upper}, inkLimit, dashLimit, ""},
+			}
+		}
+		if f.Proportional && f.Form != "regression" {
+			ls = append(ls, drawnLine{Line{Intercept: f.B0, Slope: f.B1}, inkOLS, []vg.Length{vg.Points(2), vg.Points(2)},
+				fmt.Sprintf("differences on means %.4g %+.4g·A", f.B0, f.B1)})
+		}
+		yv := [][]float64{diff, {0}}
+		for _, d := range ls {
+			yv = append(yv, lineEnds(d.l, lo, hi))
+		}
+		fg := newFigure("Difference plot (Bland–Altman)", ax.label("mean of x and y"), ax.label("difference y − x"),
+			newAxis(mean), newAxis(yv...))
+		fg.hline(0, lo, hi, inkIdentity, dashRef, "")
+		for _, d := range ls {
+			fg.line(d.l, lo, hi, d.ink, d.dash, d.legend)
+		}
+		_, err := fg.points(ctx, mean, diff, "")
+		return fg, err
+	})
+}
