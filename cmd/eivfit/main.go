@@ -13,8 +13,14 @@ import (
 	"syscall"
 )
 
-// version is set at build time with -ldflags "-X main.version=...".
-var version = "dev"
+// version and revision are set at build time with -ldflags
+// "-X main.version=$(git describe --tags --always --dirty) -X main.revision=$(git rev-parse HEAD)"
+// (README, deploy/Dockerfile); without them the go command's VCS stamp is
+// used when there is one (see buildVersion).
+var (
+	version  = "dev"
+	revision = ""
+)
 
 func main() {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
@@ -71,7 +77,11 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 	case "load":
 		return runLoad(ctx, args[1:], stdout, stderr)
 	case "version", "--version", "-version":
-		fmt.Fprintln(stdout, "eivfit", version)
+		v, rev := buildVersion()
+		if rev != "" {
+			v += " (" + rev + ")"
+		}
+		fmt.Fprintln(stdout, "eivfit", v)
 		return nil
 	case "help", "-h", "--help":
 		fmt.Fprint(stdout, usage)
