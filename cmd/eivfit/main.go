@@ -49,6 +49,7 @@ Usage:
   eivfit calibrate [flags] FILE calibrate against standards and evaluate unknowns
   eivfit plan [flags] [FILE]  plan a method-comparison study by simulation
   eivfit serve [flags]        run the HTTP service
+  eivfit studies list|show|verify|export  read, check and export saved studies
   eivfit bench [flags]        time the engine against scipy.odr and numpy
   eivfit load [flags]         load-test a server on loopback
   eivfit version              print the version
@@ -72,6 +73,8 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 		return runPlan(ctx, args[1:], stdin, stdout, stderr)
 	case "serve":
 		return runServe(ctx, args[1:], stdout, stderr)
+	case "studies":
+		return runStudies(ctx, args[1:], stdout, stderr)
 	case "bench":
 		return runBench(ctx, args[1:], stdout, stderr)
 	case "load":

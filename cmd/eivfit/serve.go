@@ -64,11 +64,12 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	sf := &serveFlags{fs: fs}
 	d := api.DefaultConfig
 	var cfg api.Config
-	var bodyMiB int
+	var bodyMiB, storedMiB int
 	var keysFile, logLevel, dataDir string
 	sf.str(&cfg.Addr, "addr", "ADDR", d.Addr, "listen address")
 	sf.str(&cfg.MetricsAddr, "metrics-addr", "METRICS_ADDR", "", "serve /metrics on this separate address, without a key, instead of the main one (where it needs a key when keys are set)")
 	sf.int(&bodyMiB, "max-body-mib", "MAX_BODY_MIB", int(d.MaxBodyBytes>>20), "largest request body, MiB")
+	sf.int(&storedMiB, "max-stored-mib", "MAX_STORED_MIB", int(d.MaxStoredBytes>>20), "largest body of a saved study, MiB (a larger save is refused with 413)")
 	sf.int(&cfg.Limits.MaxPoints, "max-points", "MAX_POINTS", d.Limits.MaxPoints, "most points per dataset")
 	sf.int(&cfg.Limits.MaxResamples, "max-resamples", "MAX_RESAMPLES", d.Limits.MaxResamples, "most bootstrap resamples per fit")
 	sf.int(&cfg.Limits.MaxAt, "max-at", "MAX_AT", d.Limits.MaxAt, "most x values in \"at\"")
@@ -107,6 +108,7 @@ func runServe(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		return exitError{2}
 	}
 	cfg.MaxBodyBytes = int64(bodyMiB) << 20
+	cfg.MaxStoredBytes = int64(storedMiB) << 20
 	if _, set := os.LookupEnv("GOGC"); !set && gcPercent > 0 {
 		debug.SetGCPercent(gcPercent)
 	}
