@@ -1,8 +1,10 @@
 package api
 
 import (
+	"context"
 	"embed"
 	"net/http"
+	"time"
 
 	"eivfit/api/wire"
 
@@ -40,8 +42,10 @@ func (s *Server) handleHealthz(c *gin.Context) {
 
 // handleReadyz serves GET /readyz: 503 while draining, and while the
 // intake budget could not take one more maximum-size body (the pod is then
-// saturated with uploads and a load balancer should prefer another); it
-// reports the compute slots and the body budget in use.
+// saturated with uploads and a load balancer should prefer another), and
+// while the study store (when there is one) is not open or does not answer
+// a ping within 2 s; it reports the compute slots and the body budget in
+// use.
 func (s *Server) handleReadyz(c *gin.Context) {
 	status, code := "ready", http.StatusOK
 	free := s.intake.available()
@@ -50,6 +54,19 @@ func (s *Server) handleReadyz(c *gin.Context) {
 		status, code = "draining", http.StatusServiceUnavailable
 	case free < min(s.cfg.MaxBodyBytes, s.cfg.MaxInFlightBytes):
 		status, code = "body budget full", http.StatusServiceUnavailable
+	}
+	if code == http.StatusOK && s.store != nil {
+		st, err := s.store.get()
+		if err == nil {
+			ctx, cancel := context.WithTimeout(c.Request.Context(), 2*time.Second)
+			err = st.Ping(ctx)
+			cancel()
+		}
+		if err != nil {
+			c.Header("Retry-After", "5")
+			s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "database unavailable"})
+			return
+		}
 	}
 	s.writeJSON(c, code, map[string]any{"status": status, "slots": cap(s.slots), "slots_in_use": len(s.slots),
 		"body_budget_bytes": s.cfg.MaxInFlightBytes, "body_bytes_in_use": s.cfg.MaxInFlightBytes - free})

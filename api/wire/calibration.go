@@ -60,88 +60,91 @@ func DecodeCalibrationJSON(r io.Reader) (*CalibrationRequest, error) {
 	}
 	p := &pointParser{b: body, lim: lim}
 	req := &CalibrationRequest{}
-	d := &req.Data
-	err = p.document("", func(key []byte) error {
-		var err error
-		switch string(key) {
-		case "standards":
-			d.Standards = nil
-			return p.array("/standards", lim.MaxPoints, KindTooLarge, "standards", func(i int) error {
-				s, err := p.calStandard(i)
-				d.Standards = append(d.Standards, s)
-				return err
-			})
-		case "unknowns":
-			d.Unknowns = nil
-			return p.array("/unknowns", lim.MaxPoints, KindTooLarge, "unknowns", func(i int) error {
-				u, err := p.calUnknown(i)
-				d.Unknowns = append(d.Unknowns, u)
-				return err
-			})
-		case "shared_components":
-			d.Shared = nil
-			return p.array("/shared_components", study.MaxSharedComponents, KindTooLarge, "shared components", func(k int) error {
-				c, err := p.calShared(fmt.Sprintf("/shared_components/%d", k))
-				d.Shared = append(d.Shared, c)
-				return err
-			})
-		case "x_covariance":
-			d.XCovariance = nil
-			if p.null() {
-				return nil
-			}
-			d.XCovariance = [][]float64{}
-			return p.array("/x_covariance", study.MaxCovarianceStandards, KindTooLarge, "rows (standards with an x covariance)", func(i int) error {
-				row := []float64{}
-				err := p.array(fmt.Sprintf("/x_covariance/%d", i), study.MaxCovarianceStandards, KindTooLarge, "columns (standards with an x covariance)", func(j int) error {
-					v, err := p.lazyNumber(func() string { return fmt.Sprintf("/x_covariance/%d/%d", i, j) })
-					row = append(row, v)
-					return err
-				})
-				d.XCovariance = append(d.XCovariance, row)
-				return err
-			})
-		case "forward":
-			req.Forward = nil
-			return p.array("/forward", lim.MaxAt, KindTooLarge, "forward evaluations", func(i int) error {
-				f, err := p.calForward(fmt.Sprintf("/forward/%d", i))
-				req.Forward = append(req.Forward, f)
-				return err
-			})
-		case "monte_carlo":
-			req.MonteCarlo = nil
-			if p.null() {
-				return nil
-			}
-			req.MonteCarlo = &study.CalMonteCarlo{}
-			return p.monteCarlo("/monte_carlo", req.MonteCarlo)
-		case "x_name":
-			req.XName, err = p.text("/x_name", true)
-		case "y_name":
-			req.YName, err = p.text("/y_name", true)
-		case "x_unit":
-			req.XUnit, err = p.text("/x_unit", true)
-		case "y_unit":
-			req.YUnit, err = p.text("/y_unit", true)
-		case "model":
-			req.Model, err = p.text("/model", true)
-		case "on_inconsistent":
-			req.OnInconsistent, err = p.text("/on_inconsistent", true)
-		case "coverage_factor":
-			err = p.optNumber("/coverage_factor", &req.CoverageFactor)
-		case "coverage_probability":
-			err = p.optNumber("/coverage_probability", &req.CoverageProbability)
-		case "confidence":
-			err = p.optNumber("/confidence", &req.Confidence)
-		default:
-			return p.unknownKey("", key, calKeys)
-		}
-		return err
-	}, calKeys)
+	err = p.document("", func(key []byte) error { return p.calMember(req, key) }, calKeys)
 	if err != nil {
 		return nil, err
 	}
 	return req, nil
+}
+
+// calMember reads the value of one member of a calibration request.
+func (p *pointParser) calMember(req *CalibrationRequest, key []byte) error {
+	d := &req.Data
+	var err error
+	switch string(key) {
+	case "standards":
+		d.Standards = nil
+		return p.array("/standards", p.lim.MaxPoints, KindTooLarge, "standards", func(i int) error {
+			s, err := p.calStandard(i)
+			d.Standards = append(d.Standards, s)
+			return err
+		})
+	case "unknowns":
+		d.Unknowns = nil
+		return p.array("/unknowns", p.lim.MaxPoints, KindTooLarge, "unknowns", func(i int) error {
+			u, err := p.calUnknown(i)
+			d.Unknowns = append(d.Unknowns, u)
+			return err
+		})
+	case "shared_components":
+		d.Shared = nil
+		return p.array("/shared_components", study.MaxSharedComponents, KindTooLarge, "shared components", func(k int) error {
+			c, err := p.calShared(fmt.Sprintf("/shared_components/%d", k))
+			d.Shared = append(d.Shared, c)
+			return err
+		})
+	case "x_covariance":
+		d.XCovariance = nil
+		if p.null() {
+			return nil
+		}
+		d.XCovariance = [][]float64{}
+		return p.array("/x_covariance", study.MaxCovarianceStandards, KindTooLarge, "rows (standards with an x covariance)", func(i int) error {
+			row := []float64{}
+			err := p.array(fmt.Sprintf("/x_covariance/%d", i), study.MaxCovarianceStandards, KindTooLarge, "columns (standards with an x covariance)", func(j int) error {
+				v, err := p.lazyNumber(func() string { return fmt.Sprintf("/x_covariance/%d/%d", i, j) })
+				row = append(row, v)
+				return err
+			})
+			d.XCovariance = append(d.XCovariance, row)
+			return err
+		})
+	case "forward":
+		req.Forward = nil
+		return p.array("/forward", p.lim.MaxAt, KindTooLarge, "forward evaluations", func(i int) error {
+			f, err := p.calForward(fmt.Sprintf("/forward/%d", i))
+			req.Forward = append(req.Forward, f)
+			return err
+		})
+	case "monte_carlo":
+		req.MonteCarlo = nil
+		if p.null() {
+			return nil
+		}
+		req.MonteCarlo = &study.CalMonteCarlo{}
+		return p.monteCarlo("/monte_carlo", req.MonteCarlo)
+	case "x_name":
+		req.XName, err = p.text("/x_name", true)
+	case "y_name":
+		req.YName, err = p.text("/y_name", true)
+	case "x_unit":
+		req.XUnit, err = p.text("/x_unit", true)
+	case "y_unit":
+		req.YUnit, err = p.text("/y_unit", true)
+	case "model":
+		req.Model, err = p.text("/model", true)
+	case "on_inconsistent":
+		req.OnInconsistent, err = p.text("/on_inconsistent", true)
+	case "coverage_factor":
+		err = p.optNumber("/coverage_factor", &req.CoverageFactor)
+	case "coverage_probability":
+		err = p.optNumber("/coverage_probability", &req.CoverageProbability)
+	case "confidence":
+		err = p.optNumber("/confidence", &req.Confidence)
+	default:
+		return p.unknownKey("", key, calKeys)
+	}
+	return err
 }
 
 // notObject is the problem for a list entry that is not an object; the

@@ -171,61 +171,65 @@ func DecodeCompareJSON(r io.Reader) (*CompareRequest, error) {
 	}
 	p := &pointParser{b: body, lim: lim}
 	req := &CompareRequest{}
-	err = p.document("", func(key []byte) error {
-		switch string(key) {
-		case "samples":
-			req.Samples = nil
-			if n := bytes.Count(body[p.pos:], []byte{'{'}); n > 0 {
-				req.Samples = make([]Sample, 0, min(n, capLimit(lim.MaxPoints)))
-			}
-			return p.array("/samples", lim.MaxPoints, KindTooLarge, "samples", func(i int) error {
-				s, err := p.sample(i)
-				req.Samples = append(req.Samples, s)
-				return err
-			})
-		case "x_name":
-			req.XName, err = p.text("/x_name", true)
-		case "y_name":
-			req.YName, err = p.text("/y_name", true)
-		case "unit":
-			req.Unit, err = p.text("/unit", true)
-		case "error_model":
-			req.ErrorModel, err = p.text("/error_model", true)
-		case "decision_levels":
-			req.DecisionLevels = nil
-			return p.array("/decision_levels", lim.MaxAt, KindInvalid, "decision levels", func(i int) error {
-				l, err := p.decisionLevel(fmt.Sprintf("/decision_levels/%d", i))
-				req.DecisionLevels = append(req.DecisionLevels, l)
-				return err
-			})
-		case "allowable_bias":
-			req.AllowableBias, err = p.allowable("/allowable_bias")
-		case "lambda":
-			err = p.optNumber("/lambda", &req.Lambda)
-		case "confidence":
-			err = p.optNumber("/confidence", &req.Confidence)
-		case "bootstrap":
-			req.Bootstrap = nil
-			if !p.null() {
-				req.Bootstrap = &BootstrapOptions{}
-				err = p.bootstrap("/bootstrap", req.Bootstrap)
-			}
-		case "exclude":
-			req.Exclude = nil
-			return p.array("/exclude", lim.MaxPoints, KindTooLarge, "excluded ids", func(i int) error {
-				s, err := p.text(fmt.Sprintf("/exclude/%d", i), false)
-				req.Exclude = append(req.Exclude, s)
-				return err
-			})
-		default:
-			return p.unknownKey("", key, compareKeys)
-		}
-		return err
-	}, compareKeys)
+	err = p.document("", func(key []byte) error { return p.compareMember(req, key) }, compareKeys)
 	if err != nil {
 		return nil, err
 	}
 	return req, nil
+}
+
+// compareMember reads the value of one member of a comparison request.
+func (p *pointParser) compareMember(req *CompareRequest, key []byte) error {
+	var err error
+	switch string(key) {
+	case "samples":
+		req.Samples = nil
+		if n := bytes.Count(p.b[p.pos:], []byte{'{'}); n > 0 {
+			req.Samples = make([]Sample, 0, min(n, capLimit(p.lim.MaxPoints)))
+		}
+		return p.array("/samples", p.lim.MaxPoints, KindTooLarge, "samples", func(i int) error {
+			s, err := p.sample(i)
+			req.Samples = append(req.Samples, s)
+			return err
+		})
+	case "x_name":
+		req.XName, err = p.text("/x_name", true)
+	case "y_name":
+		req.YName, err = p.text("/y_name", true)
+	case "unit":
+		req.Unit, err = p.text("/unit", true)
+	case "error_model":
+		req.ErrorModel, err = p.text("/error_model", true)
+	case "decision_levels":
+		req.DecisionLevels = nil
+		return p.array("/decision_levels", p.lim.MaxAt, KindInvalid, "decision levels", func(i int) error {
+			l, err := p.decisionLevel(fmt.Sprintf("/decision_levels/%d", i))
+			req.DecisionLevels = append(req.DecisionLevels, l)
+			return err
+		})
+	case "allowable_bias":
+		req.AllowableBias, err = p.allowable("/allowable_bias")
+	case "lambda":
+		err = p.optNumber("/lambda", &req.Lambda)
+	case "confidence":
+		err = p.optNumber("/confidence", &req.Confidence)
+	case "bootstrap":
+		req.Bootstrap = nil
+		if !p.null() {
+			req.Bootstrap = &BootstrapOptions{}
+			err = p.bootstrap("/bootstrap", req.Bootstrap)
+		}
+	case "exclude":
+		req.Exclude = nil
+		return p.array("/exclude", p.lim.MaxPoints, KindTooLarge, "excluded ids", func(i int) error {
+			s, err := p.text(fmt.Sprintf("/exclude/%d", i), false)
+			req.Exclude = append(req.Exclude, s)
+			return err
+		})
+	default:
+		return p.unknownKey("", key, compareKeys)
+	}
+	return err
 }
 
 // capLimit is a limit as a capacity bound (0: none).
