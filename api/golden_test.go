@@ -17,6 +17,10 @@ var update = flag.Bool("update", false, "rewrite the golden files in testdata/go
 // produced is the report's timestamp, the one part that changes per run.
 var produced = regexp.MustCompile(`\d{4}-\d\d-\d\dT\d\d:\d\d:\d\dZ`)
 
+// goIdentifier is a package-qualified Go name (wire.CI, study.Fits) where a
+// reader should see words: a rename in the code must not reach the page.
+var goIdentifier = regexp.MustCompile(`\b(wire|study|report|eiv|api)\.[A-Z]`)
+
 // The HTML reports of the demo data, byte for byte but for the timestamp:
 // a change to the page (its tables, sentences, plots or markup) shows as a
 // diff of the golden file. The numbers are checked against outside sources
@@ -41,6 +45,9 @@ func TestGoldenHTMLReport(t *testing.T) {
 				t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
 			}
 			got := produced.ReplaceAll(rec.Body.Bytes(), []byte("2000-01-01T00:00:00Z"))
+			if m := goIdentifier.Find(got); m != nil {
+				t.Errorf("the report shows a Go identifier %q", m)
+			}
 			wiretest.CheckGolden(t, filepath.Join("testdata", "golden", c.golden), got, *update)
 		})
 	}

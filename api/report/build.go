@@ -215,7 +215,7 @@ func meta(version, sha string, fits wire.Fits, extra ...KV) []KV {
 }
 
 func fitsTable(fs wire.Fits) Table {
-	t := Table{Caption: "Fitted lines y = a + b·x", Header: []string{"method", "slope b", "wire.CI of b", "intercept a", "wire.CI of a", "SE basis"}, Numeric: []int{1, 2, 3, 4}}
+	t := Table{Caption: "Fitted lines y = a + b·x", Header: []string{"method", "slope b", "CI of b", "intercept a", "CI of a", "SE basis"}, Numeric: []int{1, 2, 3, 4}}
 	fs.Each(func(name string, m *wire.MethodFit) {
 		t.Rows = append(t.Rows, Row{Cells: []string{name, g(m.Slope.Estimate), ciText(m.Slope.CI), g(m.Intercept.Estimate), ciText(m.Intercept.CI), m.SEBasis}})
 	})
@@ -250,7 +250,7 @@ func olsSection(ob []wire.OLSBias) *Section {
 		return nil
 	}
 	s := &Section{Heading: "How far OLS would have been off"}
-	t := Table{Header: []string{"compared with", "slope OLS − EIV", "wire.CI", "slope difference %", "wire.CI", "reliability κ", "κ-attenuated slope"}, Numeric: []int{1, 2, 3, 4, 5, 6}}
+	t := Table{Header: []string{"compared with", "slope OLS − EIV", "CI", "slope difference %", "CI", "reliability κ", "κ-attenuated slope"}, Numeric: []int{1, 2, 3, 4, 5, 6}}
 	for _, o := range ob {
 		s.Text = append(s.Text, o.Summary)
 		k, ps := "-", "-"
@@ -358,19 +358,19 @@ func FitReport(resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha,
 		}
 	}
 	p.Sections = append(p.Sections, Section{Heading: "Input", Text: inputs})
-	fits := Section{Heading: "wire.Fits", Tables: []Table{fitsTable(resp.Fits)}}
+	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(resp.Fits)}}
 	if t, ok := uncertaintyTable(resp.Fits); ok {
 		fits.Tables = append(fits.Tables, t)
 	}
 	p.Sections = append(p.Sections, fits)
 	if len(m.At) > 0 && !resp.SameScale() {
-		t := Table{Caption: "Fitted y at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "wire.CI"}, Numeric: []int{0, 1, 2}}
+		t := Table{Caption: "Fitted y at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "CI"}, Numeric: []int{0, 1, 2}}
 		for _, a := range m.At {
 			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI)}})
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Predictions", Tables: []Table{t}})
 	} else if len(m.At) > 0 {
-		t := Table{Caption: "Fitted y and bias y − x at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "wire.CI", "bias", "wire.CI", "bootstrap wire.CI of bias"}, Numeric: []int{0, 1, 2, 3, 4, 5}}
+		t := Table{Caption: "Fitted y and bias y − x at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "CI", "bias", "CI", "bootstrap CI of bias"}, Numeric: []int{0, 1, 2, 3, 4, 5}}
 		for _, a := range m.At {
 			bb := "-"
 			if a.Bias.Bootstrap != nil {
@@ -413,7 +413,7 @@ func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, versio
 		g(a.MeanDifference.Estimate), unit, ciText(a.MeanDifference.CI), g(a.LimitsOfAgreement.Lower.Estimate), g(a.LimitsOfAgreement.Upper.Estimate), unit))
 	p.Sections = append(p.Sections, Section{Heading: "Error model", Text: []string{c.ErrorModel.Reading,
 		fmt.Sprintf("Model used: %s (%s); λ = %s (%s).", c.ErrorModel.Model, c.ErrorModel.Source, g(c.ErrorModel.Lambda), c.ErrorModel.LambdaSource)}})
-	fits := Section{Heading: "wire.Fits", Tables: []Table{fitsTable(c.Fits)}}
+	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(c.Fits)}}
 	if t, ok := uncertaintyTable(c.Fits); ok {
 		fits.Tables = append(fits.Tables, t)
 	}
@@ -422,7 +422,7 @@ func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, versio
 	}
 	p.Sections = append(p.Sections, fits)
 	if len(c.DecisionLevels) > 0 {
-		t := Table{Caption: "Bias y − x at the decision levels", Header: []string{"level", "fit", "bias", "wire.CI", "bias %", "allowable", "verdict"}, Numeric: []int{0, 2, 3, 4, 5}}
+		t := Table{Caption: "Bias y − x at the decision levels", Header: []string{"level", "fit", "bias", "CI", "bias %", "allowable", "verdict"}, Numeric: []int{0, 2, 3, 4, 5}}
 		for _, l := range c.DecisionLevels {
 			allow := "-"
 			if l.Allowable != nil {
@@ -440,7 +440,7 @@ func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, versio
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
 	}
-	ag := Table{Caption: "Agreement (Bland–Altman)", Header: []string{"quantity", "estimate", "wire.CI"}, Numeric: []int{1, 2}}
+	ag := Table{Caption: "Agreement (Bland–Altman)", Header: []string{"quantity", "estimate", "CI"}, Numeric: []int{1, 2}}
 	ag.Rows = append(ag.Rows,
 		Row{Cells: []string{"mean difference y − x", g(a.MeanDifference.Estimate), ciText(a.MeanDifference.CI)}},
 		Row{Cells: []string{"SD of differences", g(a.SDDifference), "-"}},
