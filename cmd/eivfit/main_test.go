@@ -327,6 +327,18 @@ func TestMain(m *testing.M) {
 		main()
 		return
 	}
+	// serve stores studies in ./eivfit-data by default: the tests' servers
+	// (in process and as child processes) use a throwaway directory instead.
+	if os.Getenv("EIVFIT_DATA_DIR") == "" {
+		dir, err := os.MkdirTemp("", "eivfit-test-data")
+		if err != nil {
+			panic(err)
+		}
+		os.Setenv("EIVFIT_DATA_DIR", dir)
+		code := m.Run()
+		os.RemoveAll(dir)
+		os.Exit(code)
+	}
 	os.Exit(m.Run())
 }
 
