@@ -90,7 +90,7 @@ func TestBrowserUploadReport(t *testing.T) {
 	// The York slope of the synthetic gas-sensor data (the fit checked
 	// against published values elsewhere; this test checks that it reaches
 	// the page).
-	for _, want := range []string{"york: slope 0.84465", "Straight-line fit", "Caution."} {
+	for _, want := range []string{"Reported line: York", "Slope 0.84465", "Straight-line fit", "Caution."} {
 		if !strings.Contains(text, want) {
 			t.Errorf("the report page lacks %q", want)
 		}

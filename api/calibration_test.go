@@ -192,7 +192,7 @@ func TestCalibrationReport(t *testing.T) {
 	html := rec.Body.String()
 	for _, want := range []string{"Calibration record", "Reference standards", "generalized distance regression", "Why:",
 		"cov(a, b)", "Validation", "Standardized residuals of the standards", "Calibration line", "unknowns x₀",
-		"x₀ = (ȳ₀ − a)/b", "Monte Carlo check", "U1", "ISO/IEC 17025", "eivfit 9.9.9", "Input SHA-256", "Monte Carlo seed", "umol/mol"} {
+		"x₀ = (ȳ₀ − a)/b", "Monte Carlo check", "U1", "ISO/IEC 17025", "eivfit 9.9.9", "Input SHA-256", "Monte Carlo (JCGM 101)", "seed 5", "umol/mol"} {
 		if !strings.Contains(html, want) {
 			t.Errorf("the record lacks %q", want)
 		}

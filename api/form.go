@@ -2,8 +2,6 @@ package api
 
 import (
 	"bytes"
-	"crypto/sha256"
-	"encoding/hex"
 	"errors"
 	"fmt"
 	"io"
@@ -40,8 +38,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		s.formError(c, http.StatusBadRequest, msg)
 		return
 	}
-	sum := sha256.Sum256(data)
-	sha := hex.EncodeToString(sum[:])
+	in := report.InputOf(data, true)
 	q := url.Values{}
 	field := func(form, param string) {
 		if v := strings.TrimSpace(c.Request.FormValue(form)); v != "" {
@@ -66,7 +63,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		}
 		a, err := analyse(s, c, compareEndpoint, "csv", bytes.NewReader(data), q)
 		if err == nil {
-			page, err = drawPage(s, c, a, sha, s.comparePage)
+			page, err = drawPage(s, c, a, in, s.comparePage)
 		}
 		if err != nil {
 			s.formProblem(c, err)
@@ -77,7 +74,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		field("methods", "methods")
 		a, err := analyse(s, c, fitEndpoint, "csv", bytes.NewReader(data), q)
 		if err == nil {
-			page, err = drawPage(s, c, a, sha, s.fitPage)
+			page, err = drawPage(s, c, a, in, s.fitPage)
 		}
 		if err != nil {
 			s.formProblem(c, err)

@@ -3,8 +3,6 @@ package api
 import (
 	"bytes"
 	"context"
-	"crypto/sha256"
-	"encoding/hex"
 	"errors"
 	"fmt"
 	"io"
@@ -120,14 +118,10 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		return
 	}
 	if page != nil && wantsHTML(c) {
-		var sha string
 		if rec != nil {
-			sha = rec.sha // of the body as received
-		} else {
-			sum := sha256.Sum256(raw)
-			sha = hex.EncodeToString(sum[:])
+			raw = rec.raw // the body as received
 		}
-		pg, err := drawPage(s, c, a, sha, page)
+		pg, err := drawPage(s, c, a, report.InputOf(raw, kind == "csv"), page)
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))
 			return
@@ -194,11 +188,16 @@ func (s *Server) problemFor(c *gin.Context, err error) *wire.Problem {
 
 // pageOf builds the HTML report of an answer; drawing stops when ctx is
 // done.
-type pageOf[Req, Res any] func(ctx context.Context, a *answer[Req, Res], sha string) (*report.Page, error)
+type pageOf[Req, Res any] func(ctx context.Context, a *answer[Req, Res], in report.Input) (*report.Page, error)
 
 // drawPage builds a's report in a compute slot under the deadline (render).
-func drawPage[Req, Res any](s *Server, c *gin.Context, a *answer[Req, Res], sha string, page pageOf[Req, Res]) (*report.Page, error) {
-	return render(s, c, func(ctx context.Context) (*report.Page, error) { return page(ctx, a, sha) })
+func drawPage[Req, Res any](s *Server, c *gin.Context, a *answer[Req, Res], in report.Input, page pageOf[Req, Res]) (*report.Page, error) {
+	return render(s, c, func(ctx context.Context) (*report.Page, error) { return page(ctx, a, in) })
+}
+
+// made is how this server makes a report of the input in.
+func (s *Server) made(in report.Input) report.Made {
+	return report.Made{Input: in, Version: s.cfg.Version, Revision: s.cfg.VCSRevision}
 }
 
 // render runs a drawing step (a plot, a report's page) in a compute slot

@@ -193,7 +193,7 @@ func renderAll(t *testing.T, in renderInput) {
 		csv.WriteString(strconv.FormatFloat(x[i], 'g', -1, 64) + "," + strconv.FormatFloat(y[i], 'g', -1, 64) + "," + strconv.FormatFloat(order[i], 'g', -1, 64) + "\n")
 	}
 	if a, err := csvFit(ctx, csv.String(), url.Values{}, fuzzSettings); err == nil {
-		page, err := report.FitReport(ctx, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, "sha", "fuzz")
+		page, err := report.FitReport(ctx, a.req, a.resp.(*wire.FitResponse), a.res, report.Made{Version: "fuzz"})
 		checkPage(t, "fit report", page, err)
 	}
 	// The calibration record: the points as standards with their
@@ -206,7 +206,7 @@ func renderAll(t *testing.T, in renderInput) {
 		cal.WriteString("unknown,,," + g(order[i]) + ",\n")
 	}
 	if a, err := csvCalibrate(ctx, cal.String(), fuzzSettings); err == nil {
-		page, err := report.CalibrationReport(ctx, a.resp.(*wire.CalibrationResponse), a.res, "sha", "fuzz")
+		page, err := report.CalibrationReport(ctx, a.req, a.resp.(*wire.CalibrationResponse), a.res, report.Made{Version: "fuzz"})
 		checkPage(t, "calibration record", page, err)
 	}
 }

@@ -275,7 +275,7 @@ func TestRenderHonoursContext(t *testing.T) {
 	}
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	if _, err := report.FitReport(ctx, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, "sha", "test"); err != context.Canceled {
+	if _, err := report.FitReport(ctx, a.req, a.resp.(*wire.FitResponse), a.res, report.Made{Version: "test"}); err != context.Canceled {
 		t.Errorf("FitReport under a cancelled context: %v, want context.Canceled", err)
 	}
 	x := make([]float64, 5000)
@@ -309,7 +309,7 @@ func TestRenderInSlot(t *testing.T) {
 	}
 	c, _ := gin.CreateTestContext(httptest.NewRecorder())
 	c.Request = httptest.NewRequest("POST", "/v1/fit", nil)
-	if _, err := drawPage(srv, c, a, "sha", srv.fitPage); err != nil {
+	if _, err := drawPage(srv, c, a, report.Input{}, srv.fitPage); err != nil {
 		t.Fatalf("with a free slot: %v", err)
 	}
 	release, p := srv.acquire(context.Background())
@@ -317,7 +317,7 @@ func TestRenderInSlot(t *testing.T) {
 		t.Fatal(p)
 	}
 	defer release()
-	_, err = drawPage(srv, c, a, "sha", srv.fitPage)
+	_, err = drawPage(srv, c, a, report.Input{}, srv.fitPage)
 	if !errors.As(err, &p) || p.Status != http.StatusServiceUnavailable {
 		t.Errorf("with every slot busy: %v, want a 503 problem", err)
 	}

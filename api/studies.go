@@ -29,7 +29,7 @@ import (
 // stored input gives the stored answer.
 type recordSpec[Req, Res any] struct {
 	kind    study.StudyKind
-	page    func(*Server, context.Context, *answer[Req, Res], string) (*report.Page, error)
+	page    func(*Server, context.Context, *answer[Req, Res], report.Input) (*report.Page, error)
 	options func(Req) ([]byte, error)
 	patch   func(Req, []byte) error
 	exclude func(Req, []study.Exclusion) error
@@ -47,6 +47,12 @@ type saving struct {
 	sha         string
 	contentType string
 	query       string
+}
+
+// input describes the body as received, for the report.
+func (sv *saving) input() report.Input {
+	kind, _ := storedMediaType(sv.contentType)
+	return report.InputOf(sv.raw, kind == "csv")
 }
 
 // takeRecord takes save, label and tags out of the request. A request that
@@ -121,7 +127,7 @@ func saveStudy[Req, Res any](s *Server, c *gin.Context, r *recordSpec[Req, Res],
 	html := wantsHTML(c)
 	var pg *report.Page
 	if html { // rendered before the save, so that a failure leaves no record
-		pg, err = render(s, c, func(ctx context.Context) (*report.Page, error) { return r.page(s, ctx, a, sv.sha) })
+		pg, err = render(s, c, func(ctx context.Context) (*report.Page, error) { return r.page(s, ctx, a, sv.input()) })
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))
 			return
@@ -150,7 +156,7 @@ func saveStudy[Req, Res any](s *Server, c *gin.Context, r *recordSpec[Req, Res],
 // revision shown) and its record.
 func stampRecord(pg *report.Page, st *study.Study, revs []study.Revision, n int) {
 	pg.SetProduced(revs[n].When)
-	rec := &report.StudyRecord{ID: st.ID, Revision: n, SavedVersion: st.Version}
+	rec := &report.StudyRecord{ID: st.ID, Revision: n, SavedVersion: st.Version, SavedRevision: st.VCSRevision}
 	for _, r := range revs[:n+1] {
 		e := report.RecordEntry{Number: r.Number, Who: r.Who, When: r.When, Reason: r.Reason,
 			Options: string(r.Change.Options), Hash: hex.EncodeToString(r.Hash[:])}
@@ -176,7 +182,7 @@ type studyKind interface {
 // recomputed is a stored study computed again: its answer and its report.
 type recomputed struct {
 	json []byte
-	page func(ctx context.Context, sha string) (*report.Page, error)
+	page func(ctx context.Context, in report.Input) (*report.Page, error)
 }
 
 func (r *recordSpec[Req, Res]) recompute(ctx context.Context, s *Server, st *study.Study, changes []study.Change) (*recomputed, error) {
@@ -219,7 +225,7 @@ func (r *recordSpec[Req, Res]) recompute(ctx context.Context, s *Server, st *stu
 	if err != nil {
 		return nil, err
 	}
-	return &recomputed{json: a.json, page: func(ctx context.Context, sha string) (*report.Page, error) { return r.page(s, ctx, a, sha) }}, nil
+	return &recomputed{json: a.json, page: func(ctx context.Context, in report.Input) (*report.Page, error) { return r.page(s, ctx, a, in) }}, nil
 }
 
 // studyKinds maps each kind of study to its endpoint's record.
@@ -324,7 +330,8 @@ func (s *Server) handleStudy(c *gin.Context) {
 		var pg *report.Page
 		if err == nil {
 			pg, err = render(s, c, func(ctx context.Context) (*report.Page, error) {
-				return r.page(ctx, hex.EncodeToString(st.InputSHA256[:]))
+				kind, _ := storedMediaType(st.ContentType) // recompute has read it
+				return r.page(ctx, report.InputOf(st.Input, kind == "csv"))
 			})
 		}
 		if err != nil {

@@ -7,7 +7,6 @@ import (
 	"slices"
 	"strconv"
 	"strings"
-	"time"
 
 	"eivfit/api/wire"
 	"eivfit/eiv/study"
@@ -196,35 +195,43 @@ func p2(v float64) string {
 	return strconv.FormatFloat(v, 'f', 3, 64)
 }
 
-// meta lists version, input hash, seeds and time.
-func meta(version, sha string, fits wire.Fits, extra ...KV) []KV {
-	kv := []KV{{Key: "Software", Value: "eivfit " + version}, {Key: "Input SHA-256", Value: sha}}
-	seeds := map[uint64]bool{}
-	fits.Each(func(_ string, m *wire.MethodFit) {
-		if m.Bootstrap != nil {
-			seeds[m.Bootstrap.Seed] = true
-		}
-	})
-	for s := range seeds {
-		kv = append(kv, KV{Key: "Bootstrap seed", Value: strconv.FormatUint(s, 10)})
-	}
-	kv = append(kv, extra...)
-	return append(kv, KV{Key: "Produced", Value: time.Now().UTC().Format(time.RFC3339)})
-}
-
-func fitsTable(fs wire.Fits) Table {
-	t := Table{Caption: "Fitted lines y = a + b·x", Header: []string{"method", "slope b", "CI of b", "intercept a", "CI of a", "SE basis"}, Numeric: []int{1, 2, 3, 4}}
+// fitsTable lists the lines; yUnit is the unit of the intercept (y).
+func fitsTable(fs wire.Fits, conf float64, yUnit string) Table {
+	ci := fmt.Sprintf("%g %% CI", 100*conf)
+	t := Table{Caption: "Fitted lines y = a + b·x", Header: []string{"method", "slope b", ci + " of b", withUnit("intercept a", yUnit), ci + " of a", "SE basis"}, Numeric: []int{1, 2, 3, 4}}
 	fs.Each(func(name string, m *wire.MethodFit) {
-		t.Rows = append(t.Rows, Row{Cells: []string{name, g(m.Slope.Estimate), ciText(m.Slope.CI), g(m.Intercept.Estimate), ciText(m.Intercept.CI), m.SEBasis}})
+		t.Rows = append(t.Rows, Row{Cells: []string{methodName(name), g(m.Slope.Estimate), ciText(m.Slope.CI), g(m.Intercept.Estimate), ciText(m.Intercept.CI), m.SEBasis}})
 	})
 	return t
 }
 
+// yorkText is York's goodness of fit with a one-line reading: whether the
+// scatter about the line is what the stated uncertainties lead one to
+// expect (χ² on ν = n − 2 degrees of freedom; MSWD = χ²/ν).
+func yorkText(y *wire.MethodFit) string {
+	if y == nil || y.Chi2 == nil || y.MSWD == nil || y.PValue == nil {
+		return ""
+	}
+	reading := "the scatter about the line is what the stated uncertainties lead one to expect"
+	switch {
+	case *y.PValue < 0.05 && *y.MSWD > 1:
+		reading = "the scatter about the line is larger than the stated uncertainties explain: they are understated, or the relation is not a straight line; the unscaled standard errors are then too small"
+	case *y.PValue > 0.95 && *y.MSWD < 1:
+		reading = "the scatter about the line is smaller than the stated uncertainties lead one to expect: they may be overstated"
+	}
+	return fmt.Sprintf("York: χ² = %s on ν = %d degrees of freedom, MSWD = %s, p = %s: %s.", g(*y.Chi2), y.DOF, g(*y.MSWD), p2(*y.PValue), reading)
+}
+
+// yorkInconsistent says York's χ² rejects the stated uncertainties.
+func yorkInconsistent(y *wire.MethodFit) bool {
+	return y != nil && y.PValue != nil && y.MSWD != nil && *y.PValue < 0.05 && *y.MSWD > 1
+}
+
 func uncertaintyTable(fs wire.Fits) (Table, bool) {
-	t := Table{Caption: "Slope uncertainty by method of interval", Header: []string{"method", "analytic", "jackknife", "bootstrap percentile", "bootstrap BCa"}, Numeric: []int{1, 2, 3, 4}}
+	t := Table{Caption: "Interval of the slope b by how it was computed", Header: []string{"method", "analytic", "jackknife", "bootstrap percentile", "bootstrap BCa"}, Numeric: []int{1, 2, 3, 4}}
 	any := false
 	fs.Each(func(name string, m *wire.MethodFit) {
-		row := []string{name, ciText(m.Slope.CI), "-", "-", "-"}
+		row := []string{methodName(name), ciText(m.Slope.CI), "-", "-", "-"}
 		if m.Jackknife != nil {
 			row[2] = ciText(m.Jackknife.Slope.CI)
 			any = true
@@ -243,14 +250,59 @@ func uncertaintyTable(fs wire.Fits) (Table, bool) {
 	return t, any
 }
 
-func olsSection(ob []wire.OLSBias) *Section {
+// olsSentence says how far OLS is from one errors-in-variables fit. A
+// direction ("OLS would understate the slope") only when the interval of
+// the relative difference excludes zero; otherwise how much the two differ
+// and that the interval includes no difference.
+func olsSentence(o wire.OLSBias, conf float64, unit string) string {
+	r, name := o.SlopeRelativePercent, methodName(o.Method)
+	var s string
+	switch {
+	case r.CI.IsZero():
+		s = fmt.Sprintf("OLS and %s differ in slope by %s %% (no interval: the difference is not shown to be real)", name, signed(r.Estimate))
+	case r.CI.Lower > 0 || r.CI.Upper < 0:
+		verb, mag, lo, hi := "overstate", r.Estimate, r.CI.Lower, r.CI.Upper
+		if r.Estimate < 0 {
+			verb, mag, lo, hi = "understate", -r.Estimate, -r.CI.Upper, -r.CI.Lower
+		}
+		s = fmt.Sprintf("Compared with %s, OLS would %s the slope by %s %% (%g %% CI %s to %s %%)", name, verb, g3(mag), 100*conf, g3(lo), g3(hi))
+	default:
+		s = fmt.Sprintf("OLS and %s differ in slope by %s %% (%g %% CI %s to %s %%: the interval includes no difference)", name, signed(r.Estimate), 100*conf, g3(r.CI.Lower), g3(r.CI.Upper))
+	}
+	if len(o.At) > 0 {
+		u := ""
+		if unit != "" {
+			u = " " + unit
+		}
+		s += fmt.Sprintf("; at x = %s%s the bias y − x by OLS is off by %s%s", g(o.At[0].X), u, signed(o.At[0].Difference), u)
+	}
+	if o.Reliability != nil && o.PredictedOLSSlope != nil {
+		s += fmt.Sprintf("; the reliability ratio κ = %.4g predicts an OLS slope of %.4g", *o.Reliability, *o.PredictedOLSSlope)
+	}
+	return s + "."
+}
+
+// g3 prints a number to three significant digits with a true minus sign.
+func g3(v float64) string { return minus(strconv.FormatFloat(v, 'g', 3, 64)) }
+
+// signed prints a difference with its sign (+0.125, −1.53).
+func signed(v float64) string {
+	if v > 0 {
+		return "+" + g3(v)
+	}
+	return g3(v)
+}
+
+func minus(s string) string { return strings.Replace(s, "-", "−", 1) }
+
+func olsSection(ob []wire.OLSBias, conf float64, unit string) *Section {
 	if len(ob) == 0 {
 		return nil
 	}
 	s := &Section{Heading: "How far OLS would have been off"}
-	t := Table{Header: []string{"compared with", "slope OLS − EIV", "CI", "slope difference %", "CI", "reliability κ", "κ-attenuated slope"}, Numeric: []int{1, 2, 3, 4, 5, 6}}
+	t := Table{Header: []string{"compared with", "slope OLS − EIV", "CI", "slope difference (%)", "CI (%)", "reliability κ", "κ-attenuated slope"}, Numeric: []int{1, 2, 3, 4, 5, 6}}
 	for _, o := range ob {
-		s.Text = append(s.Text, o.Summary)
+		s.Text = append(s.Text, olsSentence(o, conf, unit))
 		k, ps := "-", "-"
 		if o.Reliability != nil {
 			k, ps = g(*o.Reliability), g(*o.PredictedOLSSlope)
@@ -259,14 +311,14 @@ func olsSection(ob []wire.OLSBias) *Section {
 		if o.SlopeDifference.CI.Method != "" {
 			ci1, ci2 = ciText(o.SlopeDifference.CI), ciText(o.SlopeRelativePercent.CI)
 		}
-		t.Rows = append(t.Rows, Row{Cells: []string{o.Method, g(o.SlopeDifference.Estimate), ci1, g(o.SlopeRelativePercent.Estimate), ci2, k, ps}})
+		t.Rows = append(t.Rows, Row{Cells: []string{methodName(o.Method), g(o.SlopeDifference.Estimate), ci1, g(o.SlopeRelativePercent.Estimate), ci2, k, ps}})
 	}
 	s.Tables = append(s.Tables, t)
 	return s
 }
 
 func diagSection(d wire.DiagnosticsOut) Section {
-	s := Section{Heading: "Checks of the assumptions", Text: []string{fmt.Sprintf("On the %s residuals of the %s fit.", d.Scale, d.ResidualsOf)}}
+	s := Section{Heading: "Checks of the assumptions", Text: []string{fmt.Sprintf("On the %s residuals of the %s fit.", d.Scale, methodName(d.ResidualsOf))}}
 	t := Table{Header: []string{"assumption", "test", "statistic", "p", "reading"}, Numeric: []int{2, 3}}
 	row := func(what, test string, r *wire.TestOut, reading string) {
 		if r == nil {
@@ -340,152 +392,6 @@ func warningTexts(ws []wire.Warning) []string {
 		}
 	}
 	return out
-}
-
-// FitReport builds the HTML report of a line fit; drawing its plots stops
-// when ctx is done.
-func FitReport(ctx context.Context, resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha, version string) (*Page, error) {
-	ps, err := fitPlots(resp, res, d, "")
-	if err != nil {
-		return nil, err
-	}
-	inputs := []string{fmt.Sprintf("%d points; x from %s to %s, y from %s to %s.", resp.N, g(slices.Min(d.X)), g(slices.Max(d.X)), g(slices.Min(d.Y)), g(slices.Max(d.Y)))}
-	cols := "x, y"
-	for _, c := range []struct {
-		n string
-		v []float64
-	}{{"sx", d.SX}, {"sy", d.SY}, {"r", d.R}, {"order", d.Order}} {
-		if c.v != nil {
-			cols += ", " + c.n
-		}
-	}
-	inputs = append(inputs, "Columns given: "+cols+fmt.Sprintf(". Intervals at %g %%.", 100*resp.Confidence))
-	p := &Page{
-		Title:    "Straight-line fit with errors in both variables",
-		Subtitle: fmt.Sprintf("%d points · reported line: %s", resp.N, ps.fitName),
-		Meta:     meta(version, sha, resp.Fits),
-		Caution:  study.Caution,
-		Warnings: warningTexts(resp.Warnings),
-	}
-	m := ps.fit
-	p.Summary = append(p.Summary, fmt.Sprintf("%s: slope %s (%s), intercept %s (%s).", ps.fitName, g(m.Slope.Estimate), ciText(m.Slope.CI), g(m.Intercept.Estimate), ciText(m.Intercept.CI)))
-	for _, o := range resp.OLSBias {
-		if o.Method == ps.fitName {
-			p.Summary = append(p.Summary, o.Summary)
-		}
-	}
-	p.Sections = append(p.Sections, Section{Heading: "Input", Text: inputs})
-	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(resp.Fits)}}
-	if t, ok := uncertaintyTable(resp.Fits); ok {
-		fits.Tables = append(fits.Tables, t)
-	}
-	p.Sections = append(p.Sections, fits)
-	if len(m.At) > 0 && !resp.SameScale() {
-		t := Table{Caption: "Fitted y at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "CI"}, Numeric: []int{0, 1, 2}}
-		for _, a := range m.At {
-			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI)}})
-		}
-		p.Sections = append(p.Sections, Section{Heading: "Predictions", Tables: []Table{t}})
-	} else if len(m.At) > 0 {
-		t := Table{Caption: "Fitted y and bias y − x at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "CI", "bias", "CI", "bootstrap CI of bias"}, Numeric: []int{0, 1, 2, 3, 4, 5}}
-		for _, a := range m.At {
-			bb := "-"
-			if a.Bias.Bootstrap != nil {
-				bb = fmt.Sprintf("%s to %s", g(a.Bias.Bootstrap.Lower), g(a.Bias.Bootstrap.Upper))
-			}
-			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI), g(a.Bias.Estimate), ciText(a.Bias.CI), bb}})
-		}
-		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
-	}
-	if s := olsSection(resp.OLSBias); s != nil {
-		p.Sections = append(p.Sections, *s)
-	}
-	p.Sections = append(p.Sections, diagSection(ps.diag))
-	figs, err := ps.figures(ctx)
-	if err != nil {
-		return nil, err
-	}
-	p.Sections = append(p.Sections, Section{Heading: "Plots", Figures: figs})
-	return p, nil
-}
-
-// CompareReport builds the HTML report of a method-comparison study;
-// drawing its plots stops when ctx is done.
-func CompareReport(ctx context.Context, resp *wire.CompareResponse, sc *study.Comparison, sha, version string) (*Page, error) {
-	ps := comparePlots(resp, sc)
-	c := &resp.Comparison
-	unit := ""
-	if resp.Unit != "" {
-		unit = " " + resp.Unit
-	}
-	p := &Page{
-		Title:    "Method comparison: " + resp.YName + " against " + resp.XName,
-		Subtitle: fmt.Sprintf("%d samples · %s · %s", c.N, map[bool]string{true: "with replicates", false: "single measurements"}[c.Replicates], resp.SignConvention),
-		Meta:     meta(version, sha, c.Fits),
-		Caution:  study.Caution,
-		Warnings: warningTexts(c.Warnings),
-	}
-	p.Summary = append(p.Summary, c.Recommendation.Text)
-	a := c.Agreement
-	p.Summary = append(p.Summary, fmt.Sprintf("Mean difference (y − x) %s%s (%s); limits of agreement %s to %s%s.",
-		g(a.MeanDifference.Estimate), unit, ciText(a.MeanDifference.CI), g(a.LimitsOfAgreement.Lower.Estimate), g(a.LimitsOfAgreement.Upper.Estimate), unit))
-	p.Sections = append(p.Sections, Section{Heading: "Error model", Text: []string{c.ErrorModel.Reading,
-		fmt.Sprintf("Model used: %s (%s); λ = %s (%s).", c.ErrorModel.Model, c.ErrorModel.Source, g(c.ErrorModel.Lambda), c.ErrorModel.LambdaSource)}})
-	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(c.Fits)}}
-	if t, ok := uncertaintyTable(c.Fits); ok {
-		fits.Tables = append(fits.Tables, t)
-	}
-	if pb := c.Fits.PassingBablok; pb != nil && pb.KendallTau != nil {
-		fits.Text = append(fits.Text, fmt.Sprintf("Passing–Bablok precondition: Kendall's τ = %s (p %s); cusum linearity p = %s.", g(pb.KendallTau.Statistic), p2(pb.KendallTau.PValue), p2(pb.Cusum.PValue)))
-	}
-	p.Sections = append(p.Sections, fits)
-	if len(c.DecisionLevels) > 0 {
-		t := Table{Caption: "Bias y − x at the decision levels", Header: []string{"level", "fit", "bias", "CI", "bias %", "allowable", "verdict"}, Numeric: []int{0, 2, 3, 4, 5}}
-		for _, l := range c.DecisionLevels {
-			allow := "-"
-			if l.Allowable != nil {
-				allow = "±" + g(l.Allowable.Limit)
-			}
-			c.Fits.Each(func(name string, _ *wire.MethodFit) {
-				f := l.Fits[name]
-				cls := map[string]string{"within": "good", "exceeds": "bad", "inconclusive": "warn"}[f.Verdict]
-				v := f.Verdict
-				if v == "" {
-					v = "-"
-				}
-				t.Rows = append(t.Rows, Row{Class: cls, Cells: []string{g(l.Level), name, g(f.Bias.Estimate), ciText(f.Bias.CI), pctText(f.BiasPercent), allow, v}})
-			})
-		}
-		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
-	}
-	ag := Table{Caption: "Agreement (Bland–Altman)", Header: []string{"quantity", "estimate", "CI"}, Numeric: []int{1, 2}}
-	ag.Rows = append(ag.Rows,
-		Row{Cells: []string{"mean difference y − x", g(a.MeanDifference.Estimate), ciText(a.MeanDifference.CI)}},
-		Row{Cells: []string{"SD of differences", g(a.SDDifference), "-"}},
-		Row{Cells: []string{"lower limit of agreement", g(a.LimitsOfAgreement.Lower.Estimate), ciText(a.LimitsOfAgreement.Lower.CI)}},
-		Row{Cells: []string{"upper limit of agreement", g(a.LimitsOfAgreement.Upper.Estimate), ciText(a.LimitsOfAgreement.Upper.CI)}})
-	if pc := a.Percent; pc != nil {
-		ag.Rows = append(ag.Rows,
-			Row{Cells: []string{"mean difference, % of level", g(pc.MeanDifference.Estimate), ciText(pc.MeanDifference.CI)}},
-			Row{Cells: []string{"limits of agreement, %", g(pc.LimitsOfAgreement.Lower.Estimate) + ", " + g(pc.LimitsOfAgreement.Upper.Estimate), "-"}})
-	}
-	p.Sections = append(p.Sections, Section{Heading: "Agreement", Text: []string{a.ProportionalBias.Reading}, Tables: []Table{ag}})
-	if s := olsSection(c.OLSBias); s != nil {
-		p.Sections = append(p.Sections, *s)
-	}
-	p.Sections = append(p.Sections, diagSection(c.Diagnostics))
-	figs, err := ps.figures(ctx)
-	if err != nil {
-		return nil, err
-	}
-	p.Sections = append(p.Sections, Section{Heading: "Plots", Figures: figs})
-	if w := resp.WithoutExcluded; w != nil {
-		t := fitsTable(w.Fits)
-		t.Caption = "Fitted lines without " + strings.Join(w.Excluded, ", ")
-		p.Sections = append(p.Sections, Section{Heading: "Without the excluded samples",
-			Text: []string{w.Recommendation.Text}, Tables: []Table{t}})
-	}
-	return p, nil
 }
 
 // differenceForm is the form of limits a comparison's difference plot

@@ -9,7 +9,6 @@ import (
 	"strconv"
 	"strings"
 	"text/tabwriter"
-	"time"
 
 	"eivfit/api/wire"
 	"eivfit/eiv/study"
@@ -201,7 +200,7 @@ func calBand(res *study.CalibrationResult, lo, hi float64) (bx, blo, bhi []float
 }
 
 // CalibrationReport builds the calibration record.
-func CalibrationReport(ctx context.Context, r *wire.CalibrationResponse, res *study.CalibrationResult, sha, version string) (*Page, error) {
+func CalibrationReport(ctx context.Context, req *wire.CalibrationRequest, r *wire.CalibrationResponse, res *study.CalibrationResult, made Made) (*Page, error) {
 	xu, yu := unitSuffix(r.XUnit), unitSuffix(r.YUnit)
 	ax := calAxes(r)
 	l := r.Line
@@ -209,24 +208,23 @@ func CalibrationReport(ctx context.Context, r *wire.CalibrationResponse, res *st
 		Title:    "Calibration record",
 		Subtitle: fmt.Sprintf("%s against %s · %d standards · %d unknowns · model %s", ax.Y, ax.X, l.Standards, len(r.Unknowns), l.Model),
 		Caution:  r.Caution,
+		Meta:     made.header(),
 	}
-	p.Meta = []KV{{Key: "Software", Value: "eivfit " + version}, {Key: "Input SHA-256", Value: sha}}
-	if r.MonteCarloSeed != nil {
-		p.Meta = append(p.Meta, KV{Key: "Monte Carlo seed", Value: strconv.FormatUint(*r.MonteCarloSeed, 10)})
-	}
-	p.Meta = append(p.Meta, KV{Key: "Produced", Value: time.Now().UTC().Format(time.RFC3339)})
 	for _, w := range r.Warnings {
 		p.Warnings = append(p.Warnings, calWarningText(w))
 	}
 	p.Summary = append(p.Summary, fmt.Sprintf("Calibration line y = a + b·x by %s: a = %s ± %s%s, b = %s ± %s (standard uncertainties).",
-		modelName(l.Model), g(l.Intercept.Estimate), g(l.Intercept.U), yu, g(l.Slope.Estimate), g(l.Slope.U)))
+		modelName(l.Model), g(l.Intercept.Estimate), g(l.Intercept.U), unitAfter(r.YUnit), g(l.Slope.Estimate), g(l.Slope.U)))
 	p.Summary = append(p.Summary, validationText(r.Validation))
+	for _, w := range r.Warnings {
+		p.Alerts = append(p.Alerts, calWarningText(w))
+	}
 	for _, u := range r.Unknowns {
-		p.Summary = append(p.Summary, fmt.Sprintf("%s: x₀ = %s%s, U = %s (k = %.3g), interval %s to %s.",
-			u.ID, g(u.X.Estimate), xu, g(u.X.Expanded), u.X.K, g(u.X.Interval.Lower), g(u.X.Interval.Upper)))
+		p.Summary = append(p.Summary, fmt.Sprintf("%s: x₀ = %s%s, U = %s%s (k = %.3g), interval %s to %s%s.",
+			u.ID, g(u.X.Estimate), unitAfter(r.XUnit), g(u.X.Expanded), unitAfter(r.XUnit), u.X.K, g(u.X.Interval.Lower), g(u.X.Interval.Upper), unitAfter(r.XUnit)))
 	}
 
-	st := Table{Caption: "Reference standards", Header: []string{"id", "x" + xu, "u(x)", "readings", "ȳ" + yu, "u(ȳ)", "basis of u(ȳ)", "standardized residual"}, Numeric: []int{1, 2, 3, 4, 5, 7}}
+	st := Table{Caption: "Reference standards", Header: []string{"id", "x" + xu, "u(x)" + xu, "readings", "ȳ" + yu, "u(ȳ)" + yu, "basis of u(ȳ)", "standardized residual"}, Numeric: []int{1, 2, 3, 4, 5, 7}}
 	for _, s := range r.Standards {
 		row := Row{Cells: []string{s.ID, g(s.X), g(s.UX), strconv.Itoa(s.Readings), g(s.Y.Estimate), g(s.Y.U), s.Basis, fmt.Sprintf("%.3g", s.Standardized)}}
 		if s.Flagged {
@@ -269,9 +267,9 @@ func CalibrationReport(ctx context.Context, r *wire.CalibrationResponse, res *st
 	p.Sections = append(p.Sections, Section{Heading: "Calibration plot", Figures: figs[:1]})
 
 	if len(r.Unknowns) > 0 {
-		ut := Table{Caption: "x₀ = (ȳ₀ − a)/b with its uncertainty (JCGM 100)", Header: []string{"id", "readings", "ȳ₀" + yu, "u(ȳ₀)", "x₀" + xu, "u(x₀)", "ν_eff", "k", "U", "interval"}, Numeric: []int{1, 2, 3, 4, 5, 6, 7, 8}}
-		bt := Table{Caption: "Uncertainty budget of x₀: |sensitivity| × u of each input", Header: []string{"id", "line at centre", "slope", "reading", "u(x₀)"}, Numeric: []int{1, 2, 3, 4}}
-		mt := Table{Caption: "Monte Carlo check (JCGM 101)", Header: []string{"id", "trials", "mean", "SD", "shortest interval", "linear interval", "tolerance δ", "validated"}, Numeric: []int{1, 2, 3, 6}}
+		ut := Table{Caption: "x₀ = (ȳ₀ − a)/b with its uncertainty (JCGM 100)", Header: []string{"id", "readings", "ȳ₀" + yu, "u(ȳ₀)" + yu, "x₀" + xu, "u(x₀)" + xu, "ν_eff", "k", "U" + xu, "interval" + xu}, Numeric: []int{1, 2, 3, 4, 5, 6, 7, 8}}
+		bt := Table{Caption: "Uncertainty budget of x₀: |sensitivity| × u of each input", Header: []string{"id", "line at centre" + xu, "slope" + xu, "reading" + xu, "u(x₀)" + xu}, Numeric: []int{1, 2, 3, 4}}
+		mt := Table{Caption: "Monte Carlo check (JCGM 101)", Header: []string{"id", "trials", "mean" + xu, "SD" + xu, "shortest interval" + xu, "linear interval" + xu, "tolerance δ" + xu, "validated"}, Numeric: []int{1, 2, 3, 6}}
 		for _, u := range r.Unknowns {
 			ut.Rows = append(ut.Rows, Row{Cells: []string{u.ID, strconv.Itoa(u.Readings), g(u.Y.Estimate), g(u.Y.U), g(u.X.Estimate), g(u.X.U),
 				dofText(u.X.DOF), fmt.Sprintf("%.3g", u.X.K), g(u.X.Expanded), fmt.Sprintf("%s to %s", g(u.X.Interval.Lower), g(u.X.Interval.Upper))}})
@@ -299,13 +297,106 @@ func CalibrationReport(ctx context.Context, r *wire.CalibrationResponse, res *st
 		p.Sections = append(p.Sections, sec)
 	}
 	if len(r.Forward) > 0 {
-		ft := Table{Caption: "ŷ = a + b·x with u(ŷ)", Header: []string{"x" + xu, "u(x)", "ŷ" + yu, "u(ŷ)", "of which the line"}, Numeric: []int{0, 1, 2, 3, 4}}
+		ft := Table{Caption: "ŷ = a + b·x with u(ŷ)", Header: []string{"x" + xu, "u(x)" + xu, "ŷ" + yu, "u(ŷ)" + yu, "of which the line" + yu}, Numeric: []int{0, 1, 2, 3, 4}}
 		for _, f := range r.Forward {
 			ft.Rows = append(ft.Rows, Row{Cells: []string{g(f.X), g(f.UX), g(f.Y.Estimate), g(f.Y.U), g(f.ULine)}})
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Forward evaluations", Tables: []Table{ft}})
 	}
+	p.Provenance = calProvenance(req, r, made)
+	p.Appendix = calAppendix(req, r, made)
 	return p, nil
+}
+
+// calProvenance is every setting of a calibration that changes a number.
+func calProvenance(req *wire.CalibrationRequest, r *wire.CalibrationResponse, made Made) []KV {
+	d := &req.Data
+	kv := made.inputKVs(len(d.Standards)+len(d.Unknowns), fmt.Sprintf("rows: %d standards, %d unknowns", len(d.Standards), len(d.Unknowns)))
+	model := modelName(r.Line.Model) + ", chosen from the data"
+	if req.Model != "" {
+		model = modelName(r.Line.Model) + ", as requested"
+	}
+	kv = append(kv, KV{Key: "Model", Value: model + ". Why: " + r.Line.Reason})
+	corr := "none: each standard's x uncertainty is independent"
+	switch {
+	case d.XCovariance != nil:
+		corr = fmt.Sprintf("a full covariance of the %d standards' x values was given", len(d.XCovariance))
+	case len(d.Shared) > 0:
+		var s []string
+		for _, c := range d.Shared {
+			s = append(s, fmt.Sprintf("%s (relative u %s, %d standards)", c.Name, g(c.RelativeU), len(c.Standards)))
+		}
+		corr = "shared components: " + strings.Join(s, "; ")
+	}
+	kv = append(kv, KV{Key: "Correlated x errors", Value: corr})
+	policy := r.Validation.Policy
+	kv = append(kv, KV{Key: "Validation", Value: fmt.Sprintf("χ² test at %s; on inconsistency: %s", percent(r.Validation.Level), policy)})
+	cov := "k = 2 (default)"
+	switch {
+	case req.CoverageFactor != nil:
+		cov = "k = " + g(*req.CoverageFactor) + " (given)"
+	case req.CoverageProbability != nil:
+		cov = "coverage probability " + percent(*req.CoverageProbability) + ", k from Student's t on the effective degrees of freedom"
+	}
+	kv = append(kv, KV{Key: "Coverage", Value: cov})
+	mc := "not run"
+	if m := req.MonteCarlo; m != nil {
+		trials := "10⁶ per unknown (default)"
+		if m.Trials > 0 {
+			trials = strconv.Itoa(m.Trials) + " per unknown"
+		}
+		seed := "drawn at random"
+		if r.MonteCarloSeed != nil {
+			seed = strconv.FormatUint(*r.MonteCarloSeed, 10)
+			if m.Seed == nil {
+				seed += " (drawn at random, recorded)"
+			}
+		}
+		mc = trials + ", seed " + seed
+	}
+	kv = append(kv, KV{Key: "Monte Carlo (JCGM 101)", Value: mc})
+	if len(req.Forward) > 0 {
+		kv = append(kv, KV{Key: "Forward evaluations", Value: strconv.Itoa(len(req.Forward))})
+	}
+	if r.XUnit != "" || r.YUnit != "" {
+		kv = append(kv, KV{Key: "Units", Value: fmt.Sprintf("x: %s; y: %s", orNone(r.XUnit), orNone(r.YUnit))})
+	}
+	return kv
+}
+
+// calAppendix lists the standards and unknowns as given; flagged
+// standards are marked.
+func calAppendix(req *wire.CalibrationRequest, r *wire.CalibrationResponse, made Made) Section {
+	d := &req.Data
+	if n := len(d.Standards) + len(d.Unknowns); n > MaxAppendixRows {
+		return appendixTooLarge(n, made)
+	}
+	xu, yu := r.XUnit, r.YUnit
+	st := Table{Caption: "Standards", Header: []string{"row", "id", withUnit("x", xu), withUnit("u(x)", xu), withUnit("readings y", yu), withUnit("u(y) of one reading", yu), "r", "mark"}, Numeric: []int{0, 2, 3, 5, 6}}
+	flagged := map[string]bool{}
+	for _, s := range r.Standards {
+		if s.Flagged {
+			flagged[s.ID] = true
+		}
+	}
+	for i, s := range d.Standards {
+		row := Row{Cells: []string{strconv.Itoa(i + 1), s.ID, exact(s.X), exact(s.UX), valuesText(s.Y), optExact(s.UY), exact(s.R), ""}}
+		if flagged[s.ID] && s.ID != "" {
+			row.Cells[7], row.Class = "flagged: standardized residual beyond ±2", "warn"
+		}
+		st.Rows = append(st.Rows, row)
+	}
+	sec := Section{Heading: "Appendix: the data as analysed", ID: "appendix",
+		Text:   []string{appendixText(made, "Flagged standards are marked; they are kept in the line. A u(y) left empty was not stated (the pooled replicate SD is used).")},
+		Tables: []Table{st}}
+	if len(d.Unknowns) > 0 {
+		ut := Table{Caption: "Unknowns", Header: []string{"row", "id", withUnit("readings y", yu), withUnit("u(y) of one reading", yu)}, Numeric: []int{0, 3}}
+		for i, u := range d.Unknowns {
+			ut.Rows = append(ut.Rows, Row{Cells: []string{strconv.Itoa(i + 1), u.ID, valuesText(u.Y), optExact(u.UY)}})
+		}
+		sec.Tables = append(sec.Tables, ut)
+	}
+	return sec
 }
 
 func modelName(m string) string {

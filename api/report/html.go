@@ -11,13 +11,25 @@ import (
 type Page struct {
 	Title    string
 	Subtitle string
-	// Meta lines name the software version, the input's SHA-256, the seed
-	// and the time of the report.
-	Meta     []KV
-	Summary  []string // plain sentences at the top
+	// Meta lines name the software version, the input's SHA-256 and the
+	// time of the report.
+	Meta    []KV
+	Summary []string // the outcome first: plain sentences at the top
+	// Alerts are the warnings that change how the summary reads
+	// (extrapolated levels, a verdict that rests on one fit, York's χ²
+	// rejecting the stated uncertainties, failed checks, outliers).
+	Alerts   []string
 	Sections []Section
 	Warnings []string
 	Caution  string
+	// Provenance is every setting that changes a number, with the input
+	// and the software (the section "How this report was made").
+	Provenance []KV
+	// Appendix is the raw data as analysed.
+	Appendix Section
+	// Signed holds the signatures of a stored study's revision shown; the
+	// signature block shows them, else lines for review and approval.
+	Signed []RecordSignature
 }
 
 // KV is a labelled value.
@@ -26,6 +38,7 @@ type KV struct{ Key, Value string }
 // Section is a heading with prose, tables and figures.
 type Section struct {
 	Heading string
+	ID      string // the section's HTML id, when it has one
 	Text    []string
 	Tables  []Table
 	Figures []Figure

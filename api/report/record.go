@@ -11,12 +11,12 @@ import (
 func (p *Page) SetProduced(t time.Time) {
 	v := t.UTC().Format(time.RFC3339)
 	for i := range p.Meta {
-		if p.Meta[i].Key == "Produced" {
+		if p.Meta[i].Key == producedKey {
 			p.Meta[i].Value = v
 			return
 		}
 	}
-	p.Meta = append(p.Meta, KV{Key: "Produced", Value: v})
+	p.Meta = append(p.Meta, KV{Key: producedKey, Value: v})
 }
 
 // StudyRecord is a saved study's audit trail up to the revision a report
@@ -25,8 +25,10 @@ type StudyRecord struct {
 	ID           string
 	Revision     int // the revision shown
 	SavedVersion string
-	History      []RecordEntry // revisions 0 … Revision, oldest first
-	Signatures   []RecordSignature
+	// SavedRevision is the VCS revision of the software that saved it.
+	SavedRevision string
+	History       []RecordEntry // revisions 0 … Revision, oldest first
+	Signatures    []RecordSignature
 }
 
 // RecordEntry is one revision in a report's audit trail.
@@ -46,13 +48,38 @@ type RecordSignature struct {
 	When                                   time.Time
 }
 
+// WhenText is the signature's time for the page (UTC).
+func (s RecordSignature) WhenText() string { return s.When.UTC().Format(time.RFC3339) }
+
 // AddRecord appends the study record section: the id, the revision shown,
 // its history and the signatures on that revision (never those of an
 // earlier one).
 func (p *Page) AddRecord(r *StudyRecord) {
+	saved := "eivfit " + r.SavedVersion
+	if r.SavedRevision != "" {
+		saved += " (revision " + r.SavedRevision + ")"
+	}
 	sec := Section{Heading: "Study record", Text: []string{
-		"Study " + r.ID + ", revision " + strconv.Itoa(r.Revision) + "; saved by eivfit " + r.SavedVersion +
+		"Study " + r.ID + ", revision " + strconv.Itoa(r.Revision) + "; saved by " + saved +
 			". The record is kept unchanged; each revision is recomputed from the stored input and chained by its hash to the one before."}}
+	var excl, opts []string
+	for _, e := range r.History {
+		for _, x := range e.Excluded {
+			excl = append(excl, x+" (revision "+strconv.Itoa(e.Number)+")")
+		}
+		if e.Options != "" {
+			opts = append(opts, "revision "+strconv.Itoa(e.Number)+": "+e.Options)
+		}
+	}
+	rec := []KV{{Key: "Study", Value: r.ID}, {Key: "Revision shown", Value: strconv.Itoa(r.Revision)}, {Key: "Saved by", Value: saved}}
+	if len(excl) > 0 {
+		rec = append(rec, KV{Key: "Excluded by revision (id: reason)", Value: strings.Join(excl, "; ") + "; these rows are left out of the analysis and of the appendix"})
+	}
+	if len(opts) > 0 {
+		rec = append(rec, KV{Key: "Options changed by revision", Value: strings.Join(opts, "; ")})
+	}
+	p.Provenance = append(rec, p.Provenance...)
+	p.Signed = r.Signatures
 	hist := Table{Caption: "History", Header: []string{"Revision", "When (UTC)", "Who", "Why", "What changed", "Hash"}, Numeric: []int{0}}
 	for _, e := range r.History {
 		what := "saved"
