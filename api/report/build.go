@@ -386,7 +386,7 @@ func warningTexts(ws []wire.Warning) []string {
 	var out []string
 	for _, w := range ws {
 		if w.Method != "" {
-			out = append(out, "["+w.Method+"] "+w.Message)
+			out = append(out, methodName(w.Method)+": "+w.Message)
 		} else {
 			out = append(out, w.Message)
 		}

@@ -3,7 +3,6 @@ package report
 import (
 	"context"
 	"fmt"
-	"slices"
 	"strconv"
 	"strings"
 
@@ -231,6 +230,42 @@ func allowText(a *wire.Allowable, unit string) string {
 	return strings.Join(s, "")
 }
 
+// compareSummary is the outcome first, for a reviewer's ten seconds: the
+// recommended fit and why, the outcome at the decision levels (with and
+// without the excluded samples), the agreement in one line; alerts are the
+// warnings that change how it reads.
+func compareSummary(resp *wire.CompareResponse) (summary, alerts []string) {
+	c, w, unit := &resp.Comparison, resp.WithoutExcluded, resp.Unit
+	summary = append(summary, c.Recommendation.Text)
+	if c.Outcome != nil {
+		summary = append(summary, "Outcome at the decision levels: "+c.Outcome.Text)
+	}
+	if w != nil && w.Outcome != nil {
+		summary = append(summary, fmt.Sprintf("Without %s: %s", strings.Join(w.Excluded, ", "), w.Outcome.Text))
+	}
+	summary = append(summary, agreementLine(&c.Agreement, unit))
+	var extra []float64
+	for _, l := range c.DecisionLevels {
+		if l.Extrapolated {
+			extra = append(extra, l.Level)
+		}
+	}
+	if len(extra) > 0 {
+		alerts = append(alerts, fmt.Sprintf("Decision level %s lies outside the range of the data; its bias is extrapolated.", listText(extra, unitAfter(unit))))
+	}
+	if r := c.Robustness; r != nil {
+		for _, l := range r.Levels {
+			if !l.Holds {
+				alerts = append(alerts, l.Reading)
+			}
+		}
+	}
+	if y := c.Fits.York; yorkInconsistent(y) {
+		alerts = append(alerts, yorkText(y))
+	}
+	return summary, append(alerts, failedChecks(c.Diagnostics)...)
+}
+
 // CompareReport builds the HTML report of a method-comparison study;
 // drawing its plots stops when ctx is done.
 func CompareReport(ctx context.Context, req *wire.CompareRequest, resp *wire.CompareResponse, sc *study.Comparison, made Made) (*Page, error) {
@@ -247,36 +282,7 @@ func CompareReport(ctx context.Context, req *wire.CompareRequest, resp *wire.Com
 	w := resp.WithoutExcluded
 
 	// Outcome first.
-	p.Summary = append(p.Summary, c.Recommendation.Text)
-	if c.Outcome != nil {
-		p.Summary = append(p.Summary, "Outcome at the decision levels: "+c.Outcome.Text)
-	}
-	if w != nil && w.Outcome != nil {
-		p.Summary = append(p.Summary, fmt.Sprintf("Without %s: %s", strings.Join(w.Excluded, ", "), w.Outcome.Text))
-	}
-	p.Summary = append(p.Summary, agreementLine(&c.Agreement, unit))
-	var extra []float64
-	for _, l := range c.DecisionLevels {
-		if l.Extrapolated {
-			extra = append(extra, l.Level)
-		}
-	}
-	if len(extra) > 0 {
-		p.Alerts = append(p.Alerts, fmt.Sprintf("Decision level %s lies outside the range of the data; its bias is extrapolated.", listText(extra, unitAfter(unit))))
-	}
-	if r := c.Robustness; r != nil && slices.ContainsFunc(r.Levels, func(l wire.RobustLevelOut) bool { return !l.Holds }) {
-		for _, l := range r.Levels {
-			if !l.Holds {
-				p.Alerts = append(p.Alerts, l.Reading)
-			}
-		}
-	}
-	if y := c.Fits.York; yorkInconsistent(y) {
-		p.Alerts = append(p.Alerts, yorkText(y))
-	}
-	for _, f := range failedChecks(c.Diagnostics) {
-		p.Alerts = append(p.Alerts, f)
-	}
+	p.Summary, p.Alerts = compareSummary(resp)
 
 	p.Sections = append(p.Sections, Section{Heading: "Error model", Text: []string{c.ErrorModel.Reading,
 		fmt.Sprintf("Model used: %s (%s); λ = %s (%s).", c.ErrorModel.Model, c.ErrorModel.Source, g(c.ErrorModel.Lambda), lambdaSourceText(c.ErrorModel.LambdaSource))}})

@@ -51,6 +51,9 @@ func whyFit(name string, m *wire.MethodFit) string {
 	case "york":
 		return "it uses the stated uncertainties of x and y of every point"
 	case "deming":
+		if m.Lambda == nil {
+			return "it allows for error in x and y"
+		}
 		return fmt.Sprintf("it allows for error in x and y with λ = %s (%s)", g(*m.Lambda), lambdaSourceText(m.LambdaSource))
 	case "weighted_deming":
 		return "it allows for error in x and y growing with the level"
@@ -58,6 +61,27 @@ func whyFit(name string, m *wire.MethodFit) string {
 		return "it allows for error in x and y without assuming normal errors"
 	}
 	return "it is the only line fitted; it assumes x is without error"
+}
+
+// fitSummary is a line fit's outcome first: the reported line and why,
+// how far OLS is from it; alerts are the warnings that change how it reads.
+func fitSummary(resp *wire.FitResponse, fitName string, diag wire.DiagnosticsOut) (summary, alerts []string) {
+	m := resp.Fits.Get(fitName)
+	yu := resp.YUnit
+	if yu == "" && resp.SameScale() {
+		yu = resp.XUnit
+	}
+	summary = append(summary, fmt.Sprintf("Reported line: %s, because %s. Slope %s (%g %% CI %s), intercept %s%s (%s).", methodName(fitName), whyFit(fitName, m),
+		g(m.Slope.Estimate), 100*resp.Confidence, ciText(m.Slope.CI), g(m.Intercept.Estimate), unitAfter(yu), ciText(m.Intercept.CI)))
+	for _, o := range resp.OLSBias {
+		if o.Method == fitName {
+			summary = append(summary, olsSentence(o, resp.Confidence, unitOf(resp)))
+		}
+	}
+	if y := resp.Fits.York; yorkInconsistent(y) {
+		alerts = append(alerts, yorkText(y))
+	}
+	return summary, append(alerts, failedChecks(diag)...)
 }
 
 // FitReport builds the HTML report of a line fit; drawing its plots stops
@@ -84,19 +108,7 @@ func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse
 		Warnings: warningTexts(resp.Warnings),
 	}
 	m := ps.fit
-	p.Summary = append(p.Summary, fmt.Sprintf("Reported line: %s, because %s. Slope %s (%g %% CI %s), intercept %s%s (%s).", name, whyFit(ps.fitName, m),
-		g(m.Slope.Estimate), 100*resp.Confidence, ciText(m.Slope.CI), g(m.Intercept.Estimate), unitAfter(yu), ciText(m.Intercept.CI)))
-	if y := resp.Fits.York; y != nil && yorkInconsistent(y) {
-		p.Alerts = append(p.Alerts, yorkText(y))
-	}
-	for _, o := range resp.OLSBias {
-		if o.Method == ps.fitName {
-			p.Summary = append(p.Summary, olsSentence(o, resp.Confidence, unitOf(resp)))
-		}
-	}
-	for _, f := range failedChecks(ps.diag) {
-		p.Alerts = append(p.Alerts, f)
-	}
+	p.Summary, p.Alerts = fitSummary(resp, ps.fitName, ps.diag)
 
 	inputs := []string{fmt.Sprintf("%d points; x from %s to %s%s, y from %s to %s%s.", resp.N, g(slices.Min(d.X)), g(slices.Max(d.X)), unitAfter(xu),
 		g(slices.Min(d.Y)), g(slices.Max(d.Y)), unitAfter(yu))}

@@ -7,11 +7,16 @@ import (
 	"text/tabwriter"
 
 	"eivfit/api/wire"
+	"eivfit/eiv/study"
 )
 
 // WriteText writes a fit as a table for a terminal.
 func WriteText(w io.Writer, r *wire.FitResponse) error {
 	var b strings.Builder
+	if name := primaryName(r.Fits); name != "" {
+		sum, alerts := fitSummary(r, name, wire.DiagnosticsOut{})
+		writeSummaryText(&b, sum, alerts)
+	}
 	fmt.Fprintf(&b, "n = %d, intervals at %g %%\n\n", r.N, 100*r.Confidence)
 	tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "method\tslope\tse\tCI\tintercept\tse\tCI\tnotes")
@@ -29,7 +34,7 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 		if f.MSWD != nil {
 			notes = append(notes, fmt.Sprintf("MSWD = %.4g, p = %.3g", *f.MSWD, *f.PValue))
 		}
-		fmt.Fprintf(tw, "%s\t%.6g\t%s\t%s\t%.6g\t%s\t%s\t%s\n", name,
+		fmt.Fprintf(tw, "%s\t%.6g\t%s\t%s\t%.6g\t%s\t%s\t%s\n", methodName(name),
 			f.Slope.Estimate, textSE(f.Slope.SE), textCI(f.Slope.CI, "%.6g"),
 			f.Intercept.Estimate, textSE(f.Intercept.SE), textCI(f.Intercept.CI, "%.6g"),
 			strings.Join(notes, "; "))
@@ -61,7 +66,7 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 			return
 		}
 		if !r.SameScale() {
-			fmt.Fprintf(&b, "\n%s at the requested x values:\n", name)
+			fmt.Fprintf(&b, "\n%s at the requested x values:\n", methodName(name))
 			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 			fmt.Fprintln(tw, "  x\tfitted y\tCI")
 			for _, a := range f.At {
@@ -70,7 +75,7 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 			ferr = tw.Flush()
 			return
 		}
-		fmt.Fprintf(&b, "\n%s at decision levels:\n", name)
+		fmt.Fprintf(&b, "\n%s at decision levels:\n", methodName(name))
 		tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 		fmt.Fprintln(tw, "  x\tfitted y\tCI\tbias y − x\tCI")
 		for _, a := range f.At {
@@ -85,21 +90,64 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 	if len(r.OLSBias) > 0 {
 		b.WriteString("\nHow far OLS is off:\n")
 		for _, c := range r.OLSBias {
-			fmt.Fprintf(&b, "  %s\n", c.Summary)
+			fmt.Fprintf(&b, "  %s\n", olsSentence(c, r.Confidence, unitOf(r)))
 		}
 	}
 	if len(r.Warnings) > 0 {
 		b.WriteString("\nWarnings:\n")
 		for _, wn := range r.Warnings {
 			if wn.Method != "" {
-				fmt.Fprintf(&b, "  [%s] %s\n", wn.Method, wn.Message)
+				fmt.Fprintf(&b, "  [%s] %s\n", methodName(wn.Method), wn.Message)
 			} else {
 				fmt.Fprintf(&b, "  %s\n", wn.Message)
 			}
 		}
 	}
+	writeSettingsText(&b, []KV{
+		{Key: "methods", Value: methodsText(r.Fits)},
+		{Key: "λ", Value: lambdaText(r.Fits)},
+		{Key: "confidence", Value: percent(r.Confidence)},
+		{Key: "bootstrap", Value: bootstrapText(r.Fits)}})
 	_, err := io.WriteString(w, b.String())
 	return err
+}
+
+// primaryName is the fit a report draws when none is named: the lowest
+// report rank of the registry among the fits present.
+func primaryName(fs wire.Fits) string {
+	best, rank := "", 0
+	fs.Each(func(name string, _ *wire.MethodFit) {
+		if m := study.MethodNamed(name); m != nil && (best == "" || m.ReportRank < rank) {
+			best, rank = name, m.ReportRank
+		}
+	})
+	return best
+}
+
+// writeSummaryText writes the outcome first, with the warnings that change
+// how it reads.
+func writeSummaryText(b *strings.Builder, summary, alerts []string) {
+	b.WriteString("Summary:\n")
+	for _, s := range summary {
+		fmt.Fprintf(b, "  %s\n", s)
+	}
+	if len(alerts) > 0 {
+		b.WriteString("Read with care:\n")
+		for _, s := range alerts {
+			fmt.Fprintf(b, "  - %s\n", s)
+		}
+	}
+	b.WriteString("\n")
+}
+
+// writeSettingsText writes the settings that change a number.
+func writeSettingsText(b *strings.Builder, kv []KV) {
+	b.WriteString("\nSettings:\n")
+	tw := tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
+	for _, e := range kv {
+		fmt.Fprintf(tw, "  %s\t%s\n", e.Key, e.Value)
+	}
+	_ = tw.Flush()
 }
 
 // textSE prints an optional standard error, "-" where there is none.
@@ -122,11 +170,42 @@ func textCI(c wire.CI, num string) string {
 // WriteCompareText writes a method-comparison study for a terminal.
 func WriteCompareText(w io.Writer, r *wire.CompareResponse) error {
 	var b strings.Builder
+	sum, alerts := compareSummary(r)
+	writeSummaryText(&b, sum, alerts)
 	writeComparisonText(&b, r, &r.Comparison)
 	if r.WithoutExcluded != nil {
 		fmt.Fprintf(&b, "\n==== Without %s ====\n", strings.Join(r.WithoutExcluded.Excluded, ", "))
 		writeComparisonText(&b, r, r.WithoutExcluded)
 	}
+	c := &r.Comparison
+	levels, allow := "none", "none given (no verdicts)"
+	var lv, al []string
+	for _, l := range c.DecisionLevels {
+		lv = append(lv, g(l.Level))
+		if a := l.Allowable; a != nil {
+			al = append(al, fmt.Sprintf("at %s: %s", g(l.Level), allowText(&wire.Allowable{Absolute: a.Absolute, Percent: a.Percent}, r.Unit)))
+		}
+	}
+	if len(lv) > 0 {
+		levels = strings.Join(lv, ", ") + unitAfter(r.Unit)
+	}
+	if len(al) > 0 {
+		allow = strings.Join(al, "; ")
+	}
+	excl := "none"
+	if r.WithoutExcluded != nil {
+		excl = strings.Join(r.WithoutExcluded.Excluded, ", ") + " (analysed with and without)"
+	}
+	writeSettingsText(&b, []KV{
+		{Key: "methods", Value: methodsText(c.Fits)},
+		{Key: "error model", Value: c.ErrorModel.Model + " (" + c.ErrorModel.Source + ")"},
+		{Key: "λ", Value: fmt.Sprintf("%s (%s)", g(c.ErrorModel.Lambda), lambdaSourceText(c.ErrorModel.LambdaSource))},
+		{Key: "confidence", Value: percent(c.Confidence)},
+		{Key: "bootstrap", Value: bootstrapText(c.Fits)},
+		{Key: "decision levels", Value: levels},
+		{Key: "allowable bias", Value: allow},
+		{Key: "limits of agreement", Value: limitsText(&c.Agreement)},
+		{Key: "exclusions", Value: excl}})
 	fmt.Fprintf(&b, "\n%s\n%s\n", r.SignConvention, r.Caution)
 	_, err := io.WriteString(w, b.String())
 	return err
@@ -143,7 +222,7 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 	tw := tabwriter.NewWriter(b, 0, 0, 2, ' ', 0)
 	fmt.Fprintln(tw, "fit\tslope\tCI\tintercept\tCI")
 	c.Fits.Each(func(name string, f *wire.MethodFit) {
-		fmt.Fprintf(tw, "%s\t%.5g\t%s\t%.5g\t%s\n", name, f.Slope.Estimate, textCI(f.Slope.CI, "%.5g"),
+		fmt.Fprintf(tw, "%s\t%.5g\t%s\t%.5g\t%s\n", methodName(name), f.Slope.Estimate, textCI(f.Slope.CI, "%.5g"),
 			f.Intercept.Estimate, textCI(f.Intercept.CI, "%.5g"))
 	})
 	_ = tw.Flush()
@@ -176,7 +255,7 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 				if l.Extrapolated {
 					lv += " (extrapolated)"
 				}
-				fmt.Fprintf(tw, "  %s\t%s\t%.4g\t%s\t%s\t%s\t%s\n", lv, name, f.Bias.Estimate, textCI(f.Bias.CI, "%.4g"),
+				fmt.Fprintf(tw, "  %s\t%s\t%.4g\t%s\t%s\t%s\t%s\n", lv, methodName(name), f.Bias.Estimate, textCI(f.Bias.CI, "%.4g"),
 					pct, allow, v)
 			})
 		}
@@ -191,7 +270,7 @@ func writeComparisonText(b *strings.Builder, r *wire.CompareResponse, c *wire.Co
 	if len(c.OLSBias) > 0 {
 		b.WriteString("\nHow far OLS is off:\n")
 		for _, o := range c.OLSBias {
-			fmt.Fprintf(b, "  %s\n", o.Summary)
+			fmt.Fprintf(b, "  %s\n", olsSentence(o, c.Confidence, r.Unit))
 		}
 	}
 	fmt.Fprintf(b, "\nRecommendation: %s\n", c.Recommendation.Text)

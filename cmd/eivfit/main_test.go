@@ -78,7 +78,7 @@ func TestFitStdinAndText(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"ols", "deming", "λ = 1 (assumed)", "at decision levels", "2.5", "OLS"} {
+	for _, want := range []string{"OLS", "Deming", "λ = 1 (assumed)", "at decision levels", "2.5"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("text output lacks %q:\n%s", want, out)
 		}
