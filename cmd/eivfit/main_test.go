@@ -327,7 +327,17 @@ func TestMain(m *testing.M) {
 		main()
 		return
 	}
-	os.Exit(m.Run())
+	// A command run without --data-dir (serve, studies) keeps its studies
+	// in a temporary directory, not in ./eivfit-data beside the tests.
+	dir, err := os.MkdirTemp("", "eivfit-test-data-")
+	if err != nil {
+		fmt.Fprintln(os.Stderr, err)
+		os.Exit(1)
+	}
+	os.Setenv("EIVFIT_DATA_DIR", dir)
+	code := m.Run()
+	os.RemoveAll(dir)
+	os.Exit(code)
 }
 
 // SIGTERM during in-flight bootstraps: every request in flight completes
