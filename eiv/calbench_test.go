@@ -62,9 +62,8 @@ func BenchmarkCalibrationInverse(b *testing.B) {
 	}
 }
 
-// BenchmarkCoverageK: the coverage factor at 1,000 distinct ν below the
-// expansion's range (each a
-// fresh value, as for unknowns with different ν_eff), against gonum's
+// BenchmarkCoverageK: the coverage factor at 1,000 ν below the expansion's
+// range (uncached, as for unknowns with different ν_eff), against gonum's
 // StudentsT.Quantile (the inverse incomplete beta), which coverageK used
 // before behind a cache that a new ν misses.
 func BenchmarkCoverageK(b *testing.B) {

@@ -159,13 +159,21 @@ func TestShortestInterval(t *testing.T) {
 		name string
 		n    int
 		p    float64
-	}{{"n=1000 p=0.95", 1000, 0.95}, {"n=12345 p=0.99", 12345, 0.99}, {"n=500 p=0.5", 500, 0.5}, {"n=777 p=0.3", 777, 0.3}} {
+		ties int // every ties-th value repeats an earlier one (1: all equal)
+	}{
+		{"n=1000 p=0.95", 1000, 0.95, 50}, {"n=12345 p=0.99", 12345, 0.99, 50},
+		{"n=500 p=0.5", 500, 0.5, 50}, {"n=777 p=0.3", 777, 0.3, 50},
+		// Large enough for the split at sampled thresholds.
+		{"n=200003 p=0.95", 200_003, 0.95, 50}, {"n=100000 p=0.9999", 100_000, 0.9999, 50},
+		// All equal: the sampled thresholds coincide and selection takes over.
+		{"n=100000 all equal", 100_000, 0.95, 1},
+	} {
 		t.Run(tc.name, func(t *testing.T) {
 			v := make([]float64, tc.n)
 			for i := range v {
 				v[i] = math.Exp(r.NormFloat64()) // skewed
-				if i%50 == 0 {
-					v[i] = v[i-i%50] // ties
+				if i%tc.ties == 0 && i > 0 {
+					v[i] = v[(i-1)/tc.ties*tc.ties] // ties
 				}
 			}
 			s := slices.Clone(v)
