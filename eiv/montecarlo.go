@@ -118,7 +118,7 @@ func (c *Calibration) MonteCarlo(ctx context.Context, inv *InverseResult, opt *M
 		var pcg rand.PCG
 		pcg.Seed(opt.Seed, uint64(j))
 		blk := vals[j*MonteCarloBlock : min((j+1)*MonteCarloBlock, M)]
-		draw.fill(rand.New(&pcg), blk)
+		draw.fill(&pcg, blk)
 		var s float64
 		for _, v := range blk {
 			s += v
@@ -204,7 +204,8 @@ type mcDraw struct {
 }
 
 // fill writes one x₀ per element of out.
-func (d *mcDraw) fill(rng *rand.Rand, out []float64) {
+func (d *mcDraw) fill(src *rand.PCG, out []float64) {
+	rng := rand.New(src)
 	if math.IsInf(d.nu, 1) {
 		// ȳ₀ − YRef is the difference of two independent normals, itself
 		// normal with the sum of their variances: one draw instead of two.
@@ -218,7 +219,7 @@ func (d *mcDraw) fill(rng *rand.Rand, out []float64) {
 	for i := range out {
 		c := d.yr + d.uyr*rng.NormFloat64()
 		b := d.b + d.ub*rng.NormFloat64()
-		y := d.y0 + d.uy0*studentT(rng, d.nu)
+		y := d.y0 + d.uy0*studentT(src, d.nu)
 		out[i] = d.xr + (y-c)/b
 	}
 }
@@ -230,10 +231,13 @@ func (d *mcDraw) fill(rng *rand.Rand, out []float64) {
 //
 // W^(−2/ν) − 1 is written without logarithms for the ν of two to five
 // readings: (1 − W²)/W² for ν = 1, (1 − W)/W for ν = 2, 1/√W − 1 for ν = 4.
-func studentT(rng *rand.Rand, nu float64) float64 {
+//
+// The uniforms are drawn from src directly as rand.Rand.Float64 forms them
+// (the low 53 bits over 2⁵³), without the interface call.
+func studentT(src *rand.PCG, nu float64) float64 {
 	for {
-		u := 2*rng.Float64() - 1
-		v := 2*rng.Float64() - 1
+		u := 2*(float64(src.Uint64()<<11>>11)/(1<<53)) - 1
+		v := 2*(float64(src.Uint64()<<11>>11)/(1<<53)) - 1
 		w := u*u + v*v
 		if !(w > 0 && w < 1) {
 			continue
@@ -280,8 +284,8 @@ func shortestInterval(vals []float64, p float64) (lo, hi float64) {
 			low, high = vals[:L], vals[q-1:]
 		}
 		var wg sync.WaitGroup
-		wg.Go(func() { slices.Sort(low) })
-		slices.Sort(high)
+		wg.Go(func() { radixSort(low) })
+		radixSort(high)
 		wg.Wait()
 	}
 	off := len(high) - L
@@ -330,6 +334,60 @@ func splitTails(vals []float64, L int) (low, high []float64, ok bool) {
 		}
 	}
 	return low, high, len(low) >= L && len(high) >= L
+}
+
+// radixSort sorts finite values in ascending order by a least-significant-
+// digit radix sort of their IEEE 754 bits, mapped to unsigned keys whose
+// order is the values' order (negative values: all bits flipped; others:
+// the sign bit set), eight passes of eight bits, a pass skipped when every
+// key has the same digit. O(n), against O(n log n) comparisons.
+func radixSort(a []float64) {
+	n := len(a)
+	if n < 256 {
+		slices.Sort(a)
+		return
+	}
+	keys, tmp := make([]uint64, n), make([]uint64, n)
+	for i, v := range a {
+		k := math.Float64bits(v)
+		if k>>63 == 1 {
+			k = ^k
+		} else {
+			k |= 1 << 63
+		}
+		keys[i] = k
+	}
+	var count [8][256]int
+	for _, k := range keys {
+		for d := range 8 {
+			count[d][byte(k>>(8*d))]++
+		}
+	}
+	for d := range 8 {
+		c := &count[d]
+		if c[byte(keys[0]>>(8*d))] == n {
+			continue
+		}
+		sum := 0
+		for i, v := range c {
+			c[i] = sum
+			sum += v
+		}
+		for _, k := range keys {
+			b := byte(k >> (8 * d))
+			tmp[c[b]] = k
+			c[b]++
+		}
+		keys, tmp = tmp, keys
+	}
+	for i, k := range keys {
+		if k>>63 == 1 {
+			k &^= 1 << 63
+		} else {
+			k = ^k
+		}
+		a[i] = math.Float64frombits(k)
+	}
 }
 
 // selectK reorders a so that a[:k] ≤ a[k] ≤ a[k+1:] (Hoare's selection with
