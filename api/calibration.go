@@ -23,6 +23,24 @@ var calibrationEndpoint = &endpoint[*wire.CalibrationRequest, *study.Calibration
 		return wire.NewCalibrationResponse(req, r)
 	},
 	points: func(r *study.CalibrationResult) int { return r.Line.M + len(r.Unknowns) },
+	record: &recordSpec[*wire.CalibrationRequest, *study.CalibrationResult]{
+		kind:    study.KindCalibration,
+		page:    (*Server).calibrationPage,
+		options: (*wire.CalibrationRequest).CanonicalOptions,
+		patch:   (*wire.CalibrationRequest).PatchOptions,
+		exclude: excludeStandards,
+		seed: func(r *study.CalibrationResult) (uint64, bool) {
+			if r.Seed == nil {
+				return 0, false
+			}
+			return *r.Seed, true
+		},
+		pin: func(req *wire.CalibrationRequest, seed uint64) {
+			if req.MonteCarlo != nil && req.MonteCarlo.Seed == nil {
+				req.MonteCarlo.Seed = &seed
+			}
+		},
+	},
 }
 
 type calibrationAnswer = answer[*wire.CalibrationRequest, *study.CalibrationResult]

@@ -20,6 +20,15 @@ var compareEndpoint = &endpoint[*wire.CompareRequest, *study.Comparison]{
 	},
 	answer: func(req *wire.CompareRequest, c *study.Comparison) any { return wire.NewCompareResponse(req, c) },
 	points: func(c *study.Comparison) int { return c.N },
+	record: &recordSpec[*wire.CompareRequest, *study.Comparison]{
+		kind:    study.KindMethodComparison,
+		page:    (*Server).comparePage,
+		options: (*wire.CompareRequest).CanonicalOptions,
+		patch:   (*wire.CompareRequest).PatchOptions,
+		exclude: excludeSamples,
+		seed:    func(c *study.Comparison) (uint64, bool) { return bootstrapSeed(c.Fits) },
+		pin:     func(req *wire.CompareRequest, seed uint64) { pinBootstrap(req.Bootstrap, seed) },
+	},
 }
 
 type compareAnswer = answer[*wire.CompareRequest, *study.Comparison]

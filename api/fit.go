@@ -22,6 +22,15 @@ var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
 		return wire.NewFitResponse(r).WithUnits(req.XUnit, req.YUnit)
 	},
 	points: func(r *study.FitResult) int { return r.N },
+	record: &recordSpec[*wire.FitRequest, *study.FitResult]{
+		kind:    study.KindFit,
+		page:    (*Server).fitPage,
+		options: (*wire.FitRequest).CanonicalOptions,
+		patch:   (*wire.FitRequest).PatchOptions,
+		exclude: func(req *wire.FitRequest, x []study.Exclusion) error { return excludePoints(&req.Points.Data, x) },
+		seed:    func(r *study.FitResult) (uint64, bool) { return bootstrapSeed(r.Fits) },
+		pin:     func(req *wire.FitRequest, seed uint64) { pinBootstrap(req.Bootstrap, seed) },
+	},
 }
 
 type fitAnswer = answer[*wire.FitRequest, *study.FitResult]

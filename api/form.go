@@ -22,7 +22,7 @@ import (
 func (s *Server) handleIndex(c *gin.Context) {
 	demo, _ := Demo.ReadFile("demo/demo-glucose.csv")
 	s.writeHTML(c, http.StatusOK, func(w io.Writer) error {
-		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, NeedsKey: len(s.keys.hashes) > 0, DemoFit: string(demo)})
+		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, NeedsKey: len(s.keys.keys) > 0, DemoFit: string(demo)})
 	})
 }
 
@@ -35,7 +35,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		return
 	}
 	defer release()
-	if len(s.keys.hashes) > 0 && !s.keys.valid(c.Request.FormValue("api_key")) {
+	if len(s.keys.keys) > 0 && !s.keys.allows(c.Request.FormValue("api_key"), RoleAnalyse) {
 		s.formError(c, http.StatusUnauthorized, "A valid API key is required.")
 		return
 	}
@@ -106,7 +106,7 @@ func (s *Server) formProblem(c *gin.Context, err error) {
 
 func (s *Server) formError(c *gin.Context, status int, msg string) {
 	s.writeHTML(c, status, func(w io.Writer) error {
-		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, NeedsKey: len(s.keys.hashes) > 0, Error: msg,
+		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, NeedsKey: len(s.keys.keys) > 0, Error: msg,
 			DemoFit: c.Request.Form.Get("csv")}) // the form as read, if it was: never parsed here
 	})
 }

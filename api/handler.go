@@ -32,6 +32,9 @@ type endpoint[Req, Res any] struct {
 	compute  func(context.Context, Req, study.Settings) (Res, error)
 	answer   func(Req, Res) any
 	points   func(Res) int
+	// record, when set, lets the endpoint's computations be saved as
+	// studies (studies.go).
+	record *recordSpec[Req, Res]
 }
 
 // answer is a computed request: the study's result, its wire form and the
@@ -48,18 +51,26 @@ type answer[Req, Res any] struct {
 // then encode, which refuses a number that is not finite. Errors are
 // problems located in the client's terms.
 func analyse[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], kind string, body io.Reader, q url.Values) (*answer[Req, Res], error) {
-	var req Req
-	var err error
-	if kind == "csv" {
-		req, err = e.fromCSV(body, q)
-	} else {
-		req, err = e.fromJSON(body)
-	}
+	req, err := decode(e, kind, body, q)
 	if err != nil {
 		return nil, err
 	}
+	return inSlot(s, c, func(ctx context.Context) (*answer[Req, Res], error) { return solve(ctx, s, e, req) })
+}
+
+// decode reads a request as JSON or as CSV with its options in q.
+func decode[Req, Res any](e *endpoint[Req, Res], kind string, body io.Reader, q url.Values) (Req, error) {
+	if kind == "csv" {
+		return e.fromCSV(body, q)
+	}
+	return e.fromJSON(body)
+}
+
+// solve computes a decoded request (the study validates first) and
+// encodes the answer.
+func solve[Req, Res any](ctx context.Context, s *Server, e *endpoint[Req, Res], req Req) (*answer[Req, Res], error) {
 	src := e.source(req)
-	res, err := inSlot(s, c, func(ctx context.Context) (Res, error) { return e.compute(ctx, req, s.settings(0)) })
+	res, err := e.compute(ctx, req, s.settings(0))
 	if err != nil {
 		return nil, src.Problem(err)
 	}
@@ -81,18 +92,35 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		return
 	}
 	defer release()
-	if kind == "json" && len(c.Request.URL.RawQuery) > 0 {
-		s.problem(c, wire.Invalid("query", "a JSON request carries its options in the body, not the query string"))
+	q := c.Request.URL.Query()
+	var rec *saving
+	if e.record != nil && s.store != nil {
+		var p *wire.Problem
+		if rec, body, q, p = s.takeRecord(c, kind, body, q); p != nil {
+			s.problem(c, p)
+			return
+		}
+	}
+	if kind == "json" && len(q) > 0 {
+		s.problem(c, wire.Invalid("query", "a JSON request carries its options in the body, not the query string (save, label and tag excepted)"))
 		return
 	}
 	body, sum := hashingBody(body)
-	a, err := analyse(s, c, e, kind, body, c.Request.URL.Query())
+	a, err := analyse(s, c, e, kind, body, q)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
+	sha := hexSum(sum)
+	if rec != nil {
+		sha = rec.sha // of the body as received
+		if rec.Save {
+			saveStudy(s, c, e.record, a, rec)
+			return
+		}
+	}
 	if page != nil && wantsHTML(c) {
-		pg, err := page(a, hexSum(sum))
+		pg, err := page(a, sha)
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))
 			return
@@ -141,6 +169,17 @@ func (s *Server) problemFor(c *gin.Context, err error) *wire.Problem {
 		return wire.NewProblem(wire.KindDeadline, "the request was cancelled")
 	case errors.As(err, &se), errors.As(err, &sl):
 		return s.problemFor(c, (&wire.Source{Root: ""}).Problem(err))
+	case errors.Is(err, study.ErrNotFound):
+		return wire.NewProblem(wire.KindNotFound, "no study with that id (or no such revision)")
+	case errors.Is(err, study.ErrConflict):
+		return wire.NewProblem(wire.KindConflict, "the study changed meanwhile: another revision or the same signature came first; read its history and retry")
+	case errors.Is(err, study.ErrUnavailable):
+		s.cfg.Logger.Warn("study store unavailable", "route", c.FullPath(), "error", err.Error())
+		p := wire.NewProblem(wire.KindStoreDown, "the study store cannot be reached; computations without save still work")
+		p.RetryAfter = 5
+		return p
+	case errors.Is(err, study.ErrInvalid):
+		return wire.NewProblem(wire.KindInvalid, strings.TrimPrefix(err.Error(), "study: invalid: "))
 	}
 	s.cfg.Logger.Error("internal error", "route", c.FullPath(), "error", err.Error())
 	return wire.NewProblem(wire.KindInternal, "the server met an internal error; it has been logged")

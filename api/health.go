@@ -1,8 +1,10 @@
 package api
 
 import (
+	"context"
 	"embed"
 	"net/http"
+	"time"
 
 	"eivfit/api/wire"
 
@@ -38,11 +40,26 @@ func (s *Server) handleHealthz(c *gin.Context) {
 	s.writeJSON(c, http.StatusOK, map[string]string{"status": "ok", "version": s.cfg.Version})
 }
 
-// handleReadyz serves GET /readyz: 503 while draining.
+// handleReadyz serves GET /readyz: 503 while draining, and while the
+// study store (when there is one) is not open or does not answer a ping
+// within 2 s.
 func (s *Server) handleReadyz(c *gin.Context) {
 	if s.draining.Load() {
 		s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "draining"})
 		return
+	}
+	if s.store != nil {
+		st, err := s.store.get()
+		if err == nil {
+			ctx, cancel := context.WithTimeout(c.Request.Context(), 2*time.Second)
+			err = st.Ping(ctx)
+			cancel()
+		}
+		if err != nil {
+			c.Header("Retry-After", "5")
+			s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "database unavailable"})
+			return
+		}
 	}
 	s.writeJSON(c, http.StatusOK, map[string]any{"status": "ready", "slots": cap(s.slots), "slots_in_use": len(s.slots)})
 }

@@ -20,6 +20,9 @@ type metrics struct {
 	slotWait     prometheus.Histogram
 	inFlight     prometheus.Gauge
 	intakeBytes  prometheus.Gauge
+	// The study store: operation latency and errors.
+	storeDuration *prometheus.HistogramVec
+	storeErrors   *prometheus.CounterVec
 }
 
 func newMetrics(slots int) *metrics {
@@ -76,10 +79,19 @@ func newMetrics(slots int) *metrics {
 			Name: "eivfit_intake_bytes_in_use",
 			Help: "Request-body bytes reserved in the memory budget now.",
 		}),
+		storeDuration: prometheus.NewHistogramVec(prometheus.HistogramOpts{
+			Name:    "eivfit_store_operation_duration_seconds",
+			Help:    "Study store operation latency by operation (save, get, list, add_revision, history, sign, ping).",
+			Buckets: []float64{0.0001, 0.00025, 0.0005, 0.001, 0.002, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 1, 5},
+		}, []string{"op"}),
+		storeErrors: prometheus.NewCounterVec(prometheus.CounterOpts{
+			Name: "eivfit_store_errors_total",
+			Help: "Study store operations that failed, by operation and class (not_found, conflict, unavailable, invalid, other).",
+		}, []string{"op", "class"}),
 	}
 	m.slotsTotal.Set(float64(slots))
 	m.reg.MustRegister(m.requests, m.duration, m.problems, m.fitDuration, m.points, m.resamples,
-		m.slotsInUse, m.slotsTotal, m.slotRejected, m.slotWait, m.inFlight, m.intakeBytes,
+		m.slotsInUse, m.slotsTotal, m.slotRejected, m.slotWait, m.inFlight, m.intakeBytes, m.storeDuration, m.storeErrors,
 		collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))
 	return m
 }

@@ -61,8 +61,14 @@ type Config struct {
 	// Logger receives one line per request (never request data); default
 	// JSON on stderr.
 	Logger *slog.Logger
-	// Version is reported in reports and /healthz.
-	Version string
+	// Version is reported in reports and /healthz, and stored with every
+	// study with VCSRevision (the commit it was built from).
+	Version, VCSRevision string
+	// OpenStore, when set, opens the study store: computations can then be
+	// saved (save=true) and the /v1/studies routes answer.
+	OpenStore OpenStore
+	// MaxStoredBytes bounds the body of a saved study; default 16 MiB.
+	MaxStoredBytes int64
 }
 
 // DefaultConfig holds the defaults, documented in `eivfit serve --help`
@@ -79,6 +85,7 @@ var DefaultConfig = Config{
 	WriteTimeout:      120 * time.Second,
 	IdleTimeout:       120 * time.Second,
 	ShutdownTimeout:   90 * time.Second,
+	MaxStoredBytes:    16 << 20,
 }
 
 func (c Config) withDefaults() Config {
@@ -110,6 +117,9 @@ func (c Config) withDefaults() Config {
 	if c.MaxBatch <= 0 {
 		c.MaxBatch = d.MaxBatch
 	}
+	if c.MaxStoredBytes <= 0 {
+		c.MaxStoredBytes = d.MaxStoredBytes
+	}
 	if c.MaxInFlightBytes <= 0 {
 		c.MaxInFlightBytes = 4 * c.MaxBodyBytes
 	}
@@ -138,6 +148,7 @@ type Server struct {
 	draining atomic.Bool
 	keys     *keyring
 	intake   *budget
+	store    *storeHandle // nil without OpenStore
 }
 
 // NewServer builds the router and its dependencies.
@@ -149,6 +160,9 @@ func NewServer(cfg Config) (*Server, error) {
 	}
 	s := &Server{cfg: cfg, metrics: newMetrics(cfg.Slots), slots: make(chan struct{}, cfg.Slots), keys: keys,
 		intake: newBudget(cfg.MaxInFlightBytes)}
+	if cfg.OpenStore != nil {
+		s.store = s.openStore(cfg.OpenStore)
+	}
 	gin.SetMode(gin.ReleaseMode)
 	e := gin.New()
 	e.HandleMethodNotAllowed = true
@@ -168,6 +182,12 @@ func NewServer(cfg Config) (*Server, error) {
 	v1.POST("/calibration", s.negotiated(jsonType, htmlType), s.handleCalibration)
 	v1.POST("/plan", s.negotiated(jsonType), s.handlePlan)
 	v1.POST("/plots/:kind", s.negotiated("image/svg+xml"), s.handlePlot)
+	get(v1, "/studies", s.negotiated(jsonType), s.handleStudies)
+	get(v1, "/studies/:id", s.negotiated(jsonType, htmlType), s.handleStudy)
+	get(v1, "/studies/:id/input", s.handleStudyInput)
+	get(v1, "/studies/:id/history", s.negotiated(jsonType), s.handleHistory)
+	v1.POST("/studies/:id/revisions", s.negotiated(jsonType), s.handleRevise)
+	v1.POST("/studies/:id/revisions/:n/signatures", s.needSigner, s.negotiated(jsonType), s.handleSign)
 	e.POST("/report", s.negotiated(htmlType), s.plainBody(s.formProblemOf), s.handleFormReport)
 	get(e, "/", s.negotiated(htmlType), s.handleIndex)
 	get(e, "/healthz", s.negotiated(jsonType), s.handleHealthz)

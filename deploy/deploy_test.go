@@ -294,3 +294,50 @@ func TestSystemdUnit(t *testing.T) {
 		t.Errorf("eivfit.env: EIVFIT_METRICS_ADDR %q must be a loopback address apart from EIVFIT_ADDR %q", m, env["EIVFIT_ADDR"])
 	}
 }
+
+// The single-replica SQLite variant: one replica, recreated (never two pods
+// on one ReadWriteOnce volume), the data directory on the claim it defines,
+// and every resource it names present.
+func TestKubernetesSQLiteVariant(t *testing.T) {
+	dir := filepath.Join("kubernetes", "sqlite")
+	var k struct {
+		kustomization
+		Patches []struct {
+			Path string `json:"path"`
+		} `json:"patches"`
+	}
+	strict(t, filepath.Join(dir, "kustomization.yaml"), &k)
+	for _, r := range k.Resources {
+		if _, err := os.Stat(filepath.Join(dir, r)); err != nil {
+			t.Errorf("sqlite/kustomization.yaml lists %s: %v", r, err)
+		}
+	}
+	var pvc corev1.PersistentVolumeClaim
+	strict(t, filepath.Join(dir, "pvc.yaml"), &pvc)
+	if len(k.Patches) != 1 {
+		t.Fatalf("one patch expected, got %d", len(k.Patches))
+	}
+	b, err := os.ReadFile(filepath.Join(dir, k.Patches[0].Path))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var dep appsv1.Deployment // a strategic-merge patch: $patch keys are not fields
+	if err := yaml.Unmarshal(b, &dep); err != nil {
+		t.Fatal(err)
+	}
+	if dep.Spec.Replicas == nil || *dep.Spec.Replicas != 1 || dep.Spec.Strategy.Type != appsv1.RecreateDeploymentStrategyType {
+		t.Error("the SQLite variant must run one replica, recreated")
+	}
+	c := dep.Spec.Template.Spec.Containers[0]
+	dataDir := ""
+	for _, e := range c.Env {
+		if e.Name == "EIVFIT_DATA_DIR" {
+			dataDir = e.Value
+		}
+	}
+	vols := dep.Spec.Template.Spec.Volumes
+	if len(c.VolumeMounts) != 1 || c.VolumeMounts[0].MountPath != dataDir || len(vols) != 1 ||
+		vols[0].PersistentVolumeClaim == nil || vols[0].PersistentVolumeClaim.ClaimName != pvc.Name {
+		t.Errorf("EIVFIT_DATA_DIR %q is not the mount of claim %q", dataDir, pvc.Name)
+	}
+}

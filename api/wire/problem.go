@@ -61,6 +61,9 @@ var (
 	KindDeadline      = Kind{"deadline-exceeded", "The computation ran past the request deadline", http.StatusServiceUnavailable}
 	KindUnauthorized  = Kind{"unauthorized", "Missing or invalid API key", http.StatusUnauthorized}
 	KindInternal      = Kind{"internal", "Internal error", http.StatusInternalServerError}
+	KindForbidden     = Kind{"forbidden", "The API key's role does not allow this", http.StatusForbidden}
+	KindConflict      = Kind{"conflict", "The record changed meanwhile", http.StatusConflict}
+	KindStoreDown     = Kind{"store-unavailable", "The study store is unavailable", http.StatusServiceUnavailable}
 )
 
 // ProblemTypeBase prefixes every problem type URI.

@@ -13,8 +13,14 @@ import (
 	"syscall"
 )
 
-// version is set at build time with -ldflags "-X main.version=...".
-var version = "dev"
+// version and revision are set at build time with -ldflags
+// "-X main.version=$(git describe --tags --always --dirty) -X main.revision=$(git rev-parse HEAD)"
+// (README, deploy/Dockerfile); without them the go command's VCS stamp is
+// used when there is one (see buildVersion).
+var (
+	version  = "dev"
+	revision = ""
+)
 
 func main() {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
@@ -43,6 +49,7 @@ Usage:
   eivfit calibrate [flags] FILE calibrate against standards and evaluate unknowns
   eivfit plan [flags] [FILE]  plan a method-comparison study by simulation
   eivfit serve [flags]        run the HTTP service
+  eivfit studies list|show|verify|export  read, check and export saved studies
   eivfit bench [flags]        time the engine against scipy.odr and numpy
   eivfit load [flags]         load-test a server on loopback
   eivfit version              print the version
@@ -66,12 +73,18 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 		return runPlan(ctx, args[1:], stdin, stdout, stderr)
 	case "serve":
 		return runServe(ctx, args[1:], stdout, stderr)
+	case "studies":
+		return runStudies(ctx, args[1:], stdout, stderr)
 	case "bench":
 		return runBench(ctx, args[1:], stdout, stderr)
 	case "load":
 		return runLoad(ctx, args[1:], stdout, stderr)
 	case "version", "--version", "-version":
-		fmt.Fprintln(stdout, "eivfit", version)
+		v, rev := buildVersion()
+		if rev != "" {
+			v += " (" + rev + ")"
+		}
+		fmt.Fprintln(stdout, "eivfit", v)
 		return nil
 	case "help", "-h", "--help":
 		fmt.Fprint(stdout, usage)
