@@ -51,7 +51,7 @@ func TestCompareAgreementWithReplicates(t *testing.T) {
 	body, x, y := pefrDuplicates(t)
 	rec := h.do("POST", "/v1/method-comparison", "application/json", body)
 	if rec.Code != 200 {
-		t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
+		t.Fatalf("status %d: %s", rec.Code, wire.Truncate(rec.Body.String()))
 	}
 	var r wire.CompareResponse
 	if err := json.Unmarshal(rec.Body.Bytes(), &r); err != nil {
@@ -153,7 +153,7 @@ func TestCompareVerdictPanel(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			rec := h.do("POST", "/v1/method-comparison?decision_levels=2,7,11.1&allowable_percent=5&unit=mmol/L"+tc.query, "text/csv", string(csv))
 			if rec.Code != 200 {
-				t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
+				t.Fatalf("status %d: %s", rec.Code, wire.Truncate(rec.Body.String()))
 			}
 			var r wire.CompareResponse
 			if err := json.Unmarshal(rec.Body.Bytes(), &r); err != nil {

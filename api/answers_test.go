@@ -7,6 +7,8 @@ import (
 	"math/rand/v2"
 	"strings"
 	"testing"
+
+	"eivfit/api/wire"
 )
 
 // Where a quantity does not exist the answer leaves it out, never a zero
@@ -48,7 +50,7 @@ func TestNoPlaceholders(t *testing.T) {
 			h.t = t
 			rec := h.do("POST", c.target, "text/csv", c.body)
 			if rec.Code != 200 {
-				t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
+				t.Fatalf("status %d: %s", rec.Code, wire.Truncate(rec.Body.String()))
 			}
 			var doc any
 			if err := json.Unmarshal(rec.Body.Bytes(), &doc); err != nil {

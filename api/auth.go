@@ -1,8 +1,6 @@
 package api
 
 import (
-	"eivfit/api/wire"
-
 	"bufio"
 	"crypto/sha256"
 	"crypto/subtle"
@@ -11,6 +9,9 @@ import (
 	"io"
 	"net/http"
 	"strings"
+
+	"eivfit/api/report"
+	"eivfit/api/wire"
 
 	"github.com/gin-gonic/gin"
 )
@@ -118,32 +119,71 @@ func (k *keyring) find(token string) *apiKey {
 	return &k.keys[found]
 }
 
-// allows reports whether token is a key with at least role r.
-func (k *keyring) allows(token string, r Role) bool {
-	key := k.find(token)
-	return key != nil && key.role >= r
-}
-
 // keyContext is where authorize leaves the request's key.
 const keyContext = "eivfit.key"
 
+// presentedKey is the key in the Authorization header: "Bearer KEY", or
+// "Basic" with the key as the password (the user name is ignored), which a
+// browser sends for the page's form after asking for it.
+func presentedKey(r *http.Request) string {
+	h := r.Header.Get("Authorization")
+	if token, ok := strings.CutPrefix(h, "Bearer "); ok {
+		return strings.TrimSpace(token)
+	}
+	if _, pass, ok := r.BasicAuth(); ok {
+		return pass
+	}
+	return ""
+}
+
 // authorize requires "Authorization: Bearer KEY" when keys are configured,
 // and a role that allows the request: read for GET and HEAD, analyse for
-// everything else (signing asks for more: see needSigner).
+// everything else (signing asks for more: see needSigner). It runs before
+// the handler, so no byte of an unauthorized body is read.
 func (s *Server) authorize(c *gin.Context) {
 	if len(s.keys.keys) == 0 {
 		return
 	}
-	token, ok := strings.CutPrefix(c.GetHeader("Authorization"), "Bearer ")
-	key := s.keys.find(strings.TrimSpace(token))
-	if !ok || key == nil {
+	key := s.keys.find(presentedKey(c.Request))
+	if key == nil {
+		c.Header("Connection", "close") // the body is left unread
 		s.problem(c, wire.NewProblem(wire.KindUnauthorized, "send a valid API key as \"Authorization: Bearer KEY\""))
 		return
 	}
 	c.Set(keyContext, key)
 	if m := c.Request.Method; m != http.MethodGet && m != http.MethodHead && key.role < RoleAnalyse {
+		c.Header("Connection", "close")
 		s.problem(c, wire.NewProblem(wire.KindForbidden, fmt.Sprintf("the key %q has role read: it may read, not compute or save", key.name)))
 	}
+}
+
+// authorizeForm guards POST /report as authorize guards /v1/*, before the
+// body is read: a browser without a key that may analyse is asked for it
+// (HTTP Basic, the key as the password) and gets the form page with the
+// reason.
+func (s *Server) authorizeForm(c *gin.Context) {
+	if len(s.keys.keys) == 0 {
+		return
+	}
+	key := s.keys.find(presentedKey(c.Request))
+	if key != nil && key.role >= RoleAnalyse {
+		c.Set(keyContext, key)
+		return
+	}
+	reason := "A valid API key is required: enter it as the password when the browser asks (any user name)."
+	if key != nil {
+		reason = fmt.Sprintf("The key %q has role read: it may read, not compute. Enter a key that may analyse.", key.name)
+	}
+	status := http.StatusForbidden
+	if key == nil {
+		status = http.StatusUnauthorized
+		c.Header("WWW-Authenticate", `Basic realm="eivfit", charset="UTF-8"`)
+	}
+	c.Header("Connection", "close")
+	s.writeHTML(c, status, func(w io.Writer) error {
+		return report.WriteForm(w, &report.Form{Version: s.cfg.Version, Error: reason})
+	})
+	c.Abort()
 }
 
 // needSigner guards signing: keys must be configured (a signature names

@@ -1,7 +1,6 @@
 package api
 
 import (
-	"bytes"
 	"context"
 	"encoding/json"
 	"fmt"
@@ -101,8 +100,8 @@ func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Setting
 		res.Status = p.Status
 		return res
 	}
-	var e wire.BatchEntry
-	if err := wire.DecodeStrict(bytes.NewReader(raw), &e); err != nil {
+	e, err := wire.DecodeBatchEntry(raw, wire.Limits{Limits: set.Limits})
+	if err != nil {
 		return fail(err)
 	}
 	if e.Name != "" {
@@ -134,8 +133,8 @@ func (s *Server) handleBatch(c *gin.Context) {
 		return
 	}
 	defer release()
-	var req wire.BatchRequest
-	if err := wire.DecodeStrict(body, &req); err != nil {
+	req, err := wire.DecodeBatch(body)
+	if err != nil {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
@@ -145,7 +144,7 @@ func (s *Server) handleBatch(c *gin.Context) {
 		return
 	}
 	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.RequestTimeout)
-	resp, err := RunBatch(ctx, &req, s.settings(held), s.cfg.MaxBatch)
+	resp, err := RunBatch(ctx, req, s.settings(held), s.cfg.MaxBatch)
 	cancel()
 	free()
 	if err != nil {

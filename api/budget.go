@@ -46,3 +46,10 @@ func (b *budget) release(n int64) {
 	b.wake = make(chan struct{})
 	b.mu.Unlock()
 }
+
+// available is the number of units free now.
+func (b *budget) available() int64 {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	return b.free
+}

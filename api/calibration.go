@@ -45,8 +45,8 @@ var calibrationEndpoint = &endpoint[*wire.CalibrationRequest, *study.Calibration
 
 type calibrationAnswer = answer[*wire.CalibrationRequest, *study.CalibrationResult]
 
-func (s *Server) calibrationPage(a *calibrationAnswer, sha string) (*report.Page, error) {
-	return report.CalibrationReport(a.resp.(*wire.CalibrationResponse), a.res, sha, s.cfg.Version)
+func (s *Server) calibrationPage(ctx context.Context, a *calibrationAnswer, sha string) (*report.Page, error) {
+	return report.CalibrationReport(ctx, a.resp.(*wire.CalibrationResponse), a.res, sha, s.cfg.Version)
 }
 
 // handleCalibration serves POST /v1/calibration: JSON, or CSV with the

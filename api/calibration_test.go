@@ -88,7 +88,7 @@ func TestCalibrationEndpoint(t *testing.T) {
 			h.t = t
 			rec := h.do("POST", c.target, c.ctype, c.body)
 			if rec.Code != c.status {
-				t.Fatalf("status %d, want %d\n%s", rec.Code, c.status, truncate(rec.Body.String()))
+				t.Fatalf("status %d, want %d\n%s", rec.Code, c.status, wire.Truncate(rec.Body.String()))
 			}
 			if c.status != 200 {
 				p := decodeProblem(t, rec)
@@ -222,14 +222,14 @@ func TestFitDifferentUnits(t *testing.T) {
 		t.Fatal(err)
 	}
 	if strings.Contains(rec.Body.String(), `"bias"`) || r.Fits.York.At[0].Y.Estimate == 0 {
-		t.Errorf("bias present or prediction missing: %s", truncate(rec.Body.String()))
+		t.Errorf("bias present or prediction missing: %s", wire.Truncate(rec.Body.String()))
 	}
 	if n := len(r.Warnings); n == 0 || r.Warnings[n-1].Code != wire.WarnUnitsDiffer {
 		t.Errorf("warnings %+v", r.Warnings)
 	}
 	json := `{"points":[{"x":1,"y":3.1},{"x":2,"y":5.2},{"x":3,"y":6.9},{"x":4,"y":9.2}],"at":[2.5],"x_unit":"mg/kg","y_unit":"mV"}`
 	if rec := h.do("POST", "/v1/fit", "application/json", json); rec.Code != 200 || strings.Contains(rec.Body.String(), `"bias"`) {
-		t.Errorf("json: %d %s", rec.Code, truncate(rec.Body.String()))
+		t.Errorf("json: %d %s", rec.Code, wire.Truncate(rec.Body.String()))
 	}
 	if rec := h.do("POST", "/v1/fit?at=2.5", "text/csv", "x,y\n1,3.1\n2,5.2\n3,6.9\n4,9.2\n"); !strings.Contains(rec.Body.String(), `"bias"`) {
 		t.Error("without units the bias is gone too")

@@ -5,7 +5,6 @@ import (
 	"bytes"
 	"compress/gzip"
 	"context"
-	"eivfit/api/wire"
 	"eivfit/eiv/study"
 	"encoding/json"
 	"fmt"
@@ -16,6 +15,8 @@ import (
 	"sync"
 	"testing"
 	"time"
+
+	"eivfit/api/wire"
 )
 
 // The bad-input catalogue: every request goes through the real router, and
@@ -155,11 +156,11 @@ func TestBadInputCatalogue(t *testing.T) {
 				t.Fatal("the request hung")
 			}
 			if status != c.status {
-				t.Fatalf("status %d, want %d: %s", status, c.status, truncate(body))
+				t.Fatalf("status %d, want %d: %s", status, c.status, wire.Truncate(body))
 			}
 			var p wire.Problem
 			if err := json.Unmarshal([]byte(body), &p); err != nil || p.Status != c.status || p.Type == "" || p.Title == "" {
-				t.Fatalf("not a problem document: %v %s", err, truncate(body))
+				t.Fatalf("not a problem document: %v %s", err, wire.Truncate(body))
 			}
 			if c.pointer != "-" && (len(p.Errors) == 0 || p.Errors[0].Pointer != c.pointer) {
 				t.Errorf("errors %+v, want pointer %q", p.Errors, c.pointer)
@@ -187,7 +188,7 @@ func TestOddButValidThroughRouter(t *testing.T) {
 			h.t = t
 			rec := h.do("POST", "/v1/fit", c.ctype, c.body)
 			if rec.Code != 200 {
-				t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
+				t.Fatalf("status %d: %s", rec.Code, wire.Truncate(rec.Body.String()))
 			}
 			if strings.Contains(rec.Body.String(), "NaN") || strings.Contains(rec.Body.String(), "Inf") {
 				t.Error("non-finite number in the answer")
@@ -281,18 +282,7 @@ func TestSaturation(t *testing.T) {
 // ReadHeaderTimeout, a dribbled body by ReadTimeout, and neither holds a
 // compute slot while it lasts.
 func TestSlowClients(t *testing.T) {
-	srv, err := NewServer(Config{ReadHeaderTimeout: 150 * time.Millisecond, ReadTimeout: 400 * time.Millisecond, Slots: 1})
-	if err != nil {
-		t.Fatal(err)
-	}
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	ctx, cancel := context.WithCancel(context.Background())
-	defer cancel()
-	go srv.Serve(ctx, ln, nil)
-	addr := ln.Addr().String()
+	srv, addr := serveTCP(t, Config{ReadHeaderTimeout: 150 * time.Millisecond, ReadTimeout: 400 * time.Millisecond, Slots: 1})
 	closedWithin := func(name string, write func(net.Conn), limit time.Duration) {
 		conn, err := net.Dial("tcp", addr)
 		if err != nil {

@@ -33,8 +33,8 @@ var compareEndpoint = &endpoint[*wire.CompareRequest, *study.Comparison]{
 
 type compareAnswer = answer[*wire.CompareRequest, *study.Comparison]
 
-func (s *Server) comparePage(a *compareAnswer, sha string) (*report.Page, error) {
-	return report.CompareReport(a.resp.(*wire.CompareResponse), a.res, sha, s.cfg.Version)
+func (s *Server) comparePage(ctx context.Context, a *compareAnswer, sha string) (*report.Page, error) {
+	return report.CompareReport(ctx, a.resp.(*wire.CompareResponse), a.res, sha, s.cfg.Version)
 }
 
 // handleCompare serves POST /v1/method-comparison.

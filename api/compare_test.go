@@ -3,7 +3,6 @@ package api
 import (
 	"bytes"
 	"context"
-	"eivfit/api/wire"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -13,6 +12,7 @@ import (
 	"testing"
 
 	"eivfit/api/answertest"
+	"eivfit/api/wire"
 )
 
 func decodeCompare(t *testing.T, body string) *wire.CompareResponse {

@@ -37,7 +37,7 @@ func (s *Server) plainBody(answer func(*gin.Context, *wire.Problem)) gin.Handler
 			return
 		}
 		c.Header("Accept-Encoding", "identity")
-		detail := fmt.Sprintf("Content-Encoding %q is not accepted: send the body uncompressed (no Content-Encoding header)", truncate(coding))
+		detail := fmt.Sprintf("Content-Encoding %q is not accepted: send the body uncompressed (no Content-Encoding header)", wire.Truncate(coding))
 		answer(c, wire.NewProblem(wire.KindMediaType, detail, wire.FieldError{Pointer: "header Content-Encoding", Detail: detail}))
 		c.Abort()
 	}

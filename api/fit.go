@@ -35,8 +35,8 @@ var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
 
 type fitAnswer = answer[*wire.FitRequest, *study.FitResult]
 
-func (s *Server) fitPage(a *fitAnswer, sha string) (*report.Page, error) {
-	return report.FitReport(a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, sha, s.cfg.Version)
+func (s *Server) fitPage(ctx context.Context, a *fitAnswer, sha string) (*report.Page, error) {
+	return report.FitReport(ctx, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, sha, s.cfg.Version)
 }
 
 // handleFit serves POST /v1/fit: JSON, or CSV with the options in the

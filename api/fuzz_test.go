@@ -3,13 +3,14 @@ package api
 import (
 	"bytes"
 	"context"
-	"eivfit/api/wire"
 	"eivfit/eiv/study"
 	"encoding/json"
 	"errors"
 	"net/url"
 	"testing"
 	"time"
+
+	"eivfit/api/wire"
 )
 
 // fuzzSettings keep each fuzzed fit small and quick.

@@ -7,6 +7,7 @@ import (
 	"regexp"
 	"testing"
 
+	"eivfit/api/wire"
 	"eivfit/api/wire/wiretest"
 )
 
@@ -42,7 +43,7 @@ func TestGoldenHTMLReport(t *testing.T) {
 			}
 			rec := h.do("POST", c.path, "text/csv", string(body), "Accept", "text/html")
 			if rec.Code != 200 {
-				t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
+				t.Fatalf("status %d: %s", rec.Code, wire.Truncate(rec.Body.String()))
 			}
 			got := produced.ReplaceAll(rec.Body.Bytes(), []byte("2000-01-01T00:00:00Z"))
 			if m := goIdentifier.Find(got); m != nil {

@@ -7,12 +7,15 @@ import (
 	"encoding/hex"
 	"errors"
 	"fmt"
-	"hash"
 	"io"
 	"mime"
+	"net"
 	"net/http"
 	"net/url"
+	"os"
+	"slices"
 	"strings"
+	"time"
 
 	"eivfit/api/report"
 	"eivfit/api/wire"
@@ -84,19 +87,21 @@ func solve[Req, Res any](ctx context.Context, s *Server, e *endpoint[Req, Res], 
 
 // serve is the handler of an analysis endpoint: the media type, the body
 // within its limits and the memory budget, analyse, then JSON or (for
-// Accept: text/html) the HTML report. An endpoint without fromCSV takes
-// JSON only; a nil page means JSON only.
-func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page func(*answer[Req, Res], string) (*report.Page, error)) {
+// Accept: text/html) the HTML report, drawn in a compute slot. An endpoint
+// without fromCSV takes JSON only; a nil page means JSON only.
+func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page pageOf[Req, Res]) {
 	kind, body, release := s.open(c, e.fromCSV != nil)
 	if kind == "" {
 		return
 	}
 	defer release()
+	raw := body.Bytes()
+	var in io.Reader = body
 	q := c.Request.URL.Query()
 	var rec *saving
 	if e.record != nil && s.store != nil {
 		var p *wire.Problem
-		if rec, body, q, p = s.takeRecord(c, kind, body, q); p != nil {
+		if rec, in, q, p = s.takeRecord(c, kind, body, q); p != nil {
 			s.problem(c, p)
 			return
 		}
@@ -105,22 +110,24 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		s.problem(c, wire.Invalid("query", "a JSON request carries its options in the body, not the query string (save, label and tag excepted)"))
 		return
 	}
-	body, sum := hashingBody(body)
-	a, err := analyse(s, c, e, kind, body, q)
+	a, err := analyse(s, c, e, kind, in, q)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	sha := hexSum(sum)
-	if rec != nil {
-		sha = rec.sha // of the body as received
-		if rec.Save {
-			saveStudy(s, c, e.record, a, rec)
-			return
-		}
+	if rec != nil && rec.Save {
+		saveStudy(s, c, e.record, a, rec)
+		return
 	}
 	if page != nil && wantsHTML(c) {
-		pg, err := page(a, sha)
+		var sha string
+		if rec != nil {
+			sha = rec.sha // of the body as received
+		} else {
+			sum := sha256.Sum256(raw)
+			sha = hex.EncodeToString(sum[:])
+		}
+		pg, err := drawPage(s, c, a, sha, page)
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))
 			return
@@ -135,7 +142,7 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 // "csv"), then the body within its limits and the memory budget. kind is
 // "" after a problem has been written; otherwise the caller must call
 // release when done with the request.
-func (s *Server) open(c *gin.Context, allowCSV bool) (kind string, body io.Reader, release func()) {
+func (s *Server) open(c *gin.Context, allowCSV bool) (kind string, body *wire.Body, release func()) {
 	if kind = s.mediaType(c, allowCSV); kind == "" {
 		return "", nil, nil
 	}
@@ -185,6 +192,38 @@ func (s *Server) problemFor(c *gin.Context, err error) *wire.Problem {
 	return wire.NewProblem(wire.KindInternal, "the server met an internal error; it has been logged")
 }
 
+// pageOf builds the HTML report of an answer; drawing stops when ctx is
+// done.
+type pageOf[Req, Res any] func(ctx context.Context, a *answer[Req, Res], sha string) (*report.Page, error)
+
+// drawPage builds a's report in a compute slot under the deadline (render).
+func drawPage[Req, Res any](s *Server, c *gin.Context, a *answer[Req, Res], sha string, page pageOf[Req, Res]) (*report.Page, error) {
+	return render(s, c, func(ctx context.Context) (*report.Page, error) { return page(ctx, a, sha) })
+}
+
+// render runs a drawing step (a plot, a report's page) in a compute slot
+// under the request deadline, like a fit. A drawing error that is not
+// already a problem becomes a 422; a panic that escapes the report
+// package's own guard is recovered into the same problem (and logged
+// without its value, which may hold the client's data).
+func render[T any](s *Server, c *gin.Context, draw func(context.Context) (T, error)) (T, error) {
+	return inSlot(s, c, func(ctx context.Context) (out T, err error) {
+		defer func() {
+			if r := recover(); r != nil {
+				s.cfg.Logger.Error("panic while drawing", "route", c.FullPath())
+				var zero T
+				out, err = zero, wire.NewProblem(wire.KindUnfittable, report.ErrDraw.Error())
+			}
+		}()
+		out, err = draw(ctx)
+		var p *wire.Problem
+		if err != nil && !errors.As(err, &p) && !errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
+			err = wire.NewProblem(wire.KindUnfittable, "the plot could not be drawn: "+err.Error())
+		}
+		return out, err
+	})
+}
+
 // inSlot runs compute in a compute slot under the request deadline.
 func inSlot[T any](s *Server, c *gin.Context, compute func(context.Context) (T, error)) (T, error) {
 	release, p := s.acquire(c.Request.Context())
@@ -224,46 +263,115 @@ func (s *Server) writeHTML(c *gin.Context, status int, write func(io.Writer) err
 	c.Data(status, "text/html; charset=utf-8", b.Bytes())
 }
 
-// hashingBody reads the body through SHA-256 for the report's record.
-func hashingBody(r io.Reader) (io.Reader, hash.Hash) {
-	h := sha256.New()
-	return io.TeeReader(r, h), h
+// bodyChunk is the step in which a body is charged to the intake budget
+// as it arrives: a request holds at most one chunk more than it has
+// received, so that idle or slow uploads hold next to nothing.
+const bodyChunk = 256 << 10
+
+// body reads the whole request body into memory within the size limit,
+// the intake budget and the body timeouts, and returns it; the caller must
+// call release when done with the request. A declared length above the
+// limit is refused before anything is read. The budget is charged in
+// bodyChunk steps as bytes arrive, never for a declared length up front.
+// A body that stalls for BodyIdleTimeout, or is not complete within
+// ReadTimeout, is answered 408; a body that cannot get budget within
+// SlotWait is answered 503 naming the memory budget.
+func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
+	n := c.Request.ContentLength
+	limit := s.cfg.MaxBodyBytes
+	if n > limit {
+		return nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
+			n, limit))
+	}
+	var held int64
+	release := func() {
+		s.intake.release(held)
+		s.metrics.intakeBytes.Sub(float64(held))
+		held = 0
+	}
+	charge := func(upTo int64) bool {
+		if upTo <= held {
+			return true
+		}
+		ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
+		defer cancel()
+		if !s.intake.acquire(ctx, upTo-held) {
+			return false
+		}
+		s.metrics.intakeBytes.Add(float64(upTo - held))
+		held = upTo
+		return true
+	}
+	tooLarge := func() (*wire.Body, func(), *wire.Problem) {
+		release()
+		return nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", limit))
+	}
+	rc := http.NewResponseController(c.Writer)
+	start := time.Now()
+	whole := start.Add(s.cfg.ReadTimeout)
+	var buf []byte
+	if n >= 0 {
+		buf = make([]byte, 0, n) // pages become resident only as bytes arrive
+	}
+	r := c.Request.Body
+	for {
+		if len(buf) == cap(buf) {
+			if int64(len(buf)) > limit {
+				return tooLarge()
+			}
+			// A declared length is read to its end (then EOF); an
+			// undeclared one grows, within the limit plus one byte to
+			// detect an overrun.
+			grow := max(int64(cap(buf)), bodyChunk)
+			buf = slices.Grow(buf, int(min(grow, limit+1-int64(len(buf)))))
+		}
+		// Charge the next chunk before its pages are touched.
+		end := min(int64(len(buf))+bodyChunk, int64(cap(buf)))
+		if !charge(end) {
+			release()
+			p := wire.NewProblem(wire.KindBodyBudget, fmt.Sprintf("the server is holding as many request-body bytes as its memory budget (%d bytes) allows, and none were freed within %v; retry later",
+				s.cfg.MaxInFlightBytes, s.cfg.SlotWait))
+			p.RetryAfter = 1
+			return nil, nil, p
+		}
+		_ = rc.SetReadDeadline(earliest(whole, time.Now().Add(s.cfg.BodyIdleTimeout)))
+		k, err := r.Read(buf[len(buf):end])
+		buf = buf[:len(buf)+k]
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			release()
+			// The deadline stays in the past: the server then drops the
+			// rest of the body with the connection instead of reading it.
+			_ = rc.SetReadDeadline(time.Now())
+			return nil, nil, s.bodyReadProblem(c, err, time.Since(start))
+		}
+	}
+	_ = rc.SetReadDeadline(time.Time{})
+	if int64(len(buf)) > limit {
+		return tooLarge()
+	}
+	return wire.NewBody(buf, &s.limits), release, nil
 }
 
-func hexSum(h hash.Hash) string { return hex.EncodeToString(h.Sum(nil)) }
+func earliest(a, b time.Time) time.Time {
+	if a.Before(b) {
+		return a
+	}
+	return b
+}
 
-// body wraps the request body with the size limit and reserves its bytes
-// in the intake budget; the caller must call release when done with the
-// request. A declared length above the limit is refused before anything is
-// read.
-func (s *Server) body(c *gin.Context) (io.Reader, func(), *wire.Problem) {
-	n := c.Request.ContentLength
-	if n > s.cfg.MaxBodyBytes {
-		return nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
-			n, s.cfg.MaxBodyBytes))
+// bodyReadProblem maps a failed body read: a timeout is 408 (and the
+// connection is closed), anything else 400.
+func (s *Server) bodyReadProblem(c *gin.Context, err error, took time.Duration) *wire.Problem {
+	var ne net.Error
+	if errors.Is(err, os.ErrDeadlineExceeded) || (errors.As(err, &ne) && ne.Timeout()) {
+		c.Header("Connection", "close")
+		return wire.NewProblem(wire.KindBodyTimeout, fmt.Sprintf("the body did not arrive in time (no byte for %v, or not complete within %v; %v elapsed)",
+			s.cfg.BodyIdleTimeout, s.cfg.ReadTimeout, took.Round(time.Millisecond)))
 	}
-	want := n
-	if want < 0 {
-		want = s.cfg.MaxBodyBytes
-	}
-	ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
-	defer cancel()
-	if !s.intake.acquire(ctx, want) {
-		s.metrics.slotRejected.Inc()
-		p := wire.NewProblem(wire.KindBusy, fmt.Sprintf("the server is reading as many request bodies as its memory budget (%d bytes) allows; retry later", s.cfg.MaxInFlightBytes))
-		p.RetryAfter = 1
-		return nil, nil, p
-	}
-	s.metrics.intakeBytes.Add(float64(want))
-	release := func() {
-		s.intake.release(want)
-		s.metrics.intakeBytes.Sub(float64(want))
-	}
-	r := http.MaxBytesReader(c.Writer, c.Request.Body, s.cfg.MaxBodyBytes)
-	if n > 0 {
-		return wire.SizedReader{Reader: r, N: n}, release, nil
-	}
-	return r, release, nil
+	return wire.Invalid("", "the body could not be read: the connection failed or the body ended early")
 }
 
 // mediaType returns the request's media type: "json", "csv", or "" after

@@ -41,14 +41,21 @@ func (s *Server) handleHealthz(c *gin.Context) {
 }
 
 // handleReadyz serves GET /readyz: 503 while draining, and while the
-// study store (when there is one) is not open or does not answer a ping
-// within 2 s.
+// intake budget could not take one more maximum-size body (the pod is then
+// saturated with uploads and a load balancer should prefer another), and
+// while the study store (when there is one) is not open or does not answer
+// a ping within 2 s; it reports the compute slots and the body budget in
+// use.
 func (s *Server) handleReadyz(c *gin.Context) {
-	if s.draining.Load() {
-		s.writeJSON(c, http.StatusServiceUnavailable, map[string]string{"status": "draining"})
-		return
+	status, code := "ready", http.StatusOK
+	free := s.intake.available()
+	switch {
+	case s.draining.Load():
+		status, code = "draining", http.StatusServiceUnavailable
+	case free < min(s.cfg.MaxBodyBytes, s.cfg.MaxInFlightBytes):
+		status, code = "body budget full", http.StatusServiceUnavailable
 	}
-	if s.store != nil {
+	if code == http.StatusOK && s.store != nil {
 		st, err := s.store.get()
 		if err == nil {
 			ctx, cancel := context.WithTimeout(c.Request.Context(), 2*time.Second)
@@ -61,5 +68,6 @@ func (s *Server) handleReadyz(c *gin.Context) {
 			return
 		}
 	}
-	s.writeJSON(c, http.StatusOK, map[string]any{"status": "ready", "slots": cap(s.slots), "slots_in_use": len(s.slots)})
+	s.writeJSON(c, code, map[string]any{"status": status, "slots": cap(s.slots), "slots_in_use": len(s.slots),
+		"body_budget_bytes": s.cfg.MaxInFlightBytes, "body_bytes_in_use": s.cfg.MaxInFlightBytes - free})
 }

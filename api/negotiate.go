@@ -132,9 +132,9 @@ func (s *Server) accepts(c *gin.Context, offers ...string) string {
 	if ok {
 		return mt
 	}
-	detail := fmt.Sprintf("the Accept header %q admits none of what this resource can answer: %s", truncate(accept), strings.Join(offers, ", "))
+	detail := fmt.Sprintf("the Accept header %q admits none of what this resource can answer: %s", wire.Truncate(accept), strings.Join(offers, ", "))
 	if _, valid := parseAccept(accept); !valid {
-		detail = fmt.Sprintf("the Accept header %q is malformed: list media ranges such as application/json or text/html;q=0.5 (q from 0 to 1)", truncate(accept))
+		detail = fmt.Sprintf("the Accept header %q is malformed: list media ranges such as application/json or text/html;q=0.5 (q from 0 to 1)", wire.Truncate(accept))
 	}
 	s.problem(c, wire.NewProblem(wire.KindNotAcceptable, detail, wire.FieldError{Pointer: "header Accept", Detail: detail}))
 	return ""

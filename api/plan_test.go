@@ -14,8 +14,11 @@ import (
 // validated against the OpenAPI document and the answer walk).
 func TestPlanEndpoint(t *testing.T) {
 	h := newHarness(t, Config{})
-	const base = `"low":3,"high":25,"error_x":{"sd":0.1,"cv_percent":2.5},"lambda":1,"replicates":{"x":2,"y":2},` +
-		`"decision_levels":[7,11.1],"allowable_bias":{"percent":5},"trials":200,"seed":1,"unit":"mmol/L"`
+	// Keys are given once: the decoder refuses a repeated key, so the
+	// cases that change trials start from common, which has none.
+	const common = `"low":3,"high":25,"error_x":{"sd":0.1,"cv_percent":2.5},"lambda":1,"replicates":{"x":2,"y":2},` +
+		`"decision_levels":[7,11.1],"allowable_bias":{"percent":5},"seed":1,"unit":"mmol/L"`
+	const base = common + `,"trials":200`
 	cases := []struct {
 		name    string
 		body    string
@@ -24,7 +27,9 @@ func TestPlanEndpoint(t *testing.T) {
 	}{
 		{"sizes", `{` + base + `,"sizes":[20,60],"differences":[{"constant":0,"proportional_percent":2}],"no_difference":true}`, 200, ""},
 		{"target power", `{` + base + `,"target_power":0.8,"differences":[{"constant":0,"proportional_percent":4}],"max_n":400}`, 200, ""},
-		{"passing_bablok", `{` + base + `,"sizes":[30],"estimator":"passing_bablok","trials":50}`, 200, ""},
+		{"passing_bablok", `{` + common + `,"sizes":[30],"estimator":"passing_bablok","trials":50}`, 200, ""},
+		{"repeated key", `{` + base + `,"sizes":[30],"trials":50}`, 400, "/trials"},
+		{"too many sizes", `{` + base + `,"sizes":[` + strings.Repeat("40,", 50) + `40]}`, 400, "/sizes"},
 		{"missing error_x", `{"low":3,"high":25,"sizes":[40],"lambda":1}`, 400, "/error_x"},
 		{"bad size", `{` + base + `,"sizes":[40,2]}`, 400, "/sizes/1"},
 		{"repeated size", `{` + base + `,"sizes":[40,40]}`, 400, "/sizes/1"},
@@ -32,14 +37,14 @@ func TestPlanEndpoint(t *testing.T) {
 		{"unknown field", `{` + base + `,"sizes":[40],"n":5}`, 400, "/n"},
 		{"bad estimator", `{` + base + `,"sizes":[40],"estimator":"york"}`, 400, "/estimator"},
 		{"level without allowable", `{"low":3,"high":25,"error_x":{"sd":0.1},"lambda":1,"sizes":[40],"decision_levels":[7]}`, 400, "/decision_levels/0"},
-		{"too much work", `{` + base + `,"sizes":[20000,19999,19998],"trials":100000}`, 413, "/trials"},
+		{"too much work", `{` + common + `,"sizes":[20000,19999,19998],"trials":100000}`, 413, "/trials"},
 		{"not JSON", `{"low":3,`, 400, ""},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			rec := h.do("POST", "/v1/plan", "application/json", tc.body)
 			if rec.Code != tc.status {
-				t.Fatalf("status %d, want %d: %s", rec.Code, tc.status, truncate(rec.Body.String()))
+				t.Fatalf("status %d, want %d: %s", rec.Code, tc.status, wire.Truncate(rec.Body.String()))
 			}
 			if tc.status != 200 {
 				p := decodeProblem(t, rec)
@@ -53,7 +58,7 @@ func TestPlanEndpoint(t *testing.T) {
 				t.Fatal(err)
 			}
 			if r.Sentence == "" || len(r.Scenarios) == 0 {
-				t.Fatalf("no sentence or scenarios: %s", truncate(rec.Body.String()))
+				t.Fatalf("no sentence or scenarios: %s", wire.Truncate(rec.Body.String()))
 			}
 			for _, sc := range r.Scenarios {
 				for _, s := range sc.Sizes {

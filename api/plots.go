@@ -1,7 +1,7 @@
 package api
 
 import (
-	"errors"
+	"context"
 	"fmt"
 	"net/http"
 	"slices"
@@ -19,7 +19,7 @@ import (
 func (s *Server) handlePlot(c *gin.Context) {
 	kind := c.Param("kind")
 	if !slices.Contains(report.PlotKinds, kind) {
-		s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("no plot %q; plots: %s", truncate(kind), strings.Join(report.PlotKinds, ", "))))
+		s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("no plot %q; plots: %s", wire.Truncate(kind), strings.Join(report.PlotKinds, ", "))))
 		return
 	}
 	mt, body, release := s.open(c, true)
@@ -39,25 +39,22 @@ func (s *Server) handlePlot(c *gin.Context) {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	b, ok, err := report.FitPlot(kind, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, method)
-	var wp *wire.Problem
+	type drawn struct {
+		b  []byte
+		ok bool
+	}
+	out, err := render(s, c, func(ctx context.Context) (drawn, error) {
+		b, ok, err := report.FitPlot(ctx, kind, a.resp.(*wire.FitResponse), a.res, &a.req.Points.Data, method)
+		return drawn{b, ok}, err
+	})
+	b, ok := out.b, out.ok
 	switch {
-	case errors.As(err, &wp):
-		s.problem(c, wp)
 	case err != nil:
-		s.problem(c, wire.NewProblem(wire.KindUnfittable, "the plot could not be drawn: "+err.Error()))
+		s.problem(c, s.problemFor(c, err))
 	case !ok:
 		s.problem(c, wire.Invalid("/bootstrap/resamples", "the bootstrap plot needs a bootstrap: ask for resamples"))
 	default:
 		c.Header("Content-Security-Policy", report.ContentSecurityPolicy)
 		c.Data(http.StatusOK, "image/svg+xml", b)
 	}
-}
-
-// truncate shortens a client's string for a message.
-func truncate(s string) string {
-	if len(s) > 40 {
-		return s[:37] + "..."
-	}
-	return s
 }

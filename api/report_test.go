@@ -3,7 +3,7 @@ package api
 import (
 	"bytes"
 	"crypto/sha256"
-	"eivfit/eiv/study"
+	"encoding/base64"
 	"encoding/hex"
 	"encoding/xml"
 	"io"
@@ -11,6 +11,9 @@ import (
 	"os"
 	"strings"
 	"testing"
+
+	"eivfit/api/wire"
+	"eivfit/eiv/study"
 )
 
 // svgOK parses the SVG as XML and returns its text content and the number
@@ -63,7 +66,7 @@ func TestPlots(t *testing.T) {
 			h.t = t
 			rec := h.do("POST", "/v1/plots/"+c.kind+"?resamples=300&seed=2", "text/csv", string(csv))
 			if rec.Code != 200 || rec.Header().Get("Content-Type") != "image/svg+xml" {
-				t.Fatalf("status %d %s: %s", rec.Code, rec.Header().Get("Content-Type"), truncate(rec.Body.String()))
+				t.Fatalf("status %d %s: %s", rec.Code, rec.Header().Get("Content-Type"), wire.Truncate(rec.Body.String()))
 			}
 			text, markers := svgOK(t, rec.Body.Bytes())
 			for _, l := range c.labels {
@@ -162,8 +165,8 @@ func TestFormPage(t *testing.T) {
 	if rec := keyed.do("POST", "/report", "application/x-www-form-urlencoded", form.Encode()); rec.Code != 401 {
 		t.Errorf("keyless form with keys configured: %d", rec.Code)
 	}
-	form.Set("api_key", "k1")
-	if rec := keyed.do("POST", "/report", "application/x-www-form-urlencoded", form.Encode()); rec.Code != 200 {
-		t.Errorf("keyed form: %d %s", rec.Code, truncate(rec.Body.String()))
+	basic := "Basic " + base64.StdEncoding.EncodeToString([]byte("any:k1"))
+	if rec := keyed.do("POST", "/report", "application/x-www-form-urlencoded", form.Encode(), "Authorization", basic); rec.Code != 200 {
+		t.Errorf("keyed form: %d %s", rec.Code, wire.Truncate(rec.Body.String()))
 	}
 }

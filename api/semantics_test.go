@@ -85,7 +85,7 @@ func TestAcceptThroughRouter(t *testing.T) {
 			h.t = t
 			rec := h.do(c.method, c.path, c.ctype, c.body, "Accept", c.accept)
 			if rec.Code != c.status || rec.Header().Get("Content-Type") != c.ctypeOut {
-				t.Fatalf("status %d %q, want %d %q: %s", rec.Code, rec.Header().Get("Content-Type"), c.status, c.ctypeOut, truncate(rec.Body.String()))
+				t.Fatalf("status %d %q, want %d %q: %s", rec.Code, rec.Header().Get("Content-Type"), c.status, c.ctypeOut, wire.Truncate(rec.Body.String()))
 			}
 		})
 	}
@@ -281,7 +281,7 @@ func TestBatchDeadlineKeepsFinished(t *testing.T) {
 		t.Errorf("took %v", d)
 	}
 	if rec.Code != 200 {
-		t.Fatalf("status %d: %s", rec.Code, truncate(rec.Body.String()))
+		t.Fatalf("status %d: %s", rec.Code, wire.Truncate(rec.Body.String()))
 	}
 	var resp wire.BatchResponse
 	if err := json.Unmarshal(rec.Body.Bytes(), &resp); err != nil {

@@ -43,15 +43,20 @@ type Config struct {
 	SlotWait time.Duration
 	// MaxBatch bounds the datasets of one batch request; default 1000.
 	MaxBatch int
-	// MaxInFlightBytes bounds the request bodies being read or held at
-	// once (each counted at its Content-Length, or MaxBodyBytes when it
-	// declares none), so that memory stays bounded however many large
-	// requests arrive: past it a request waits SlotWait, then gets 503.
+	// MaxInFlightBytes bounds the request-body bytes held in memory at
+	// once, so that memory stays bounded however many large requests
+	// arrive. A body is charged as its bytes arrive (in 256 KiB steps),
+	// not for its declared length, so idle uploads hold next to nothing;
+	// a body that cannot get budget within SlotWait gets 503.
 	// Default 4 × MaxBodyBytes.
 	MaxInFlightBytes int64
 	// ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout protect
-	// against slow clients; defaults 5 s, 60 s, 120 s, 120 s.
+	// against slow clients; defaults 5 s, 60 s, 120 s, 120 s. A body not
+	// complete within ReadTimeout is answered 408.
 	ReadHeaderTimeout, ReadTimeout, WriteTimeout, IdleTimeout time.Duration
+	// BodyIdleTimeout answers 408 to a body from which no byte arrives for
+	// this long; default 10 s.
+	BodyIdleTimeout time.Duration
 	// ShutdownTimeout bounds the drain on SIGTERM; default 90 s.
 	ShutdownTimeout time.Duration
 	// APIKeys, when not empty, are required as "Authorization: Bearer KEY"
@@ -84,6 +89,7 @@ var DefaultConfig = Config{
 	ReadTimeout:       60 * time.Second,
 	WriteTimeout:      120 * time.Second,
 	IdleTimeout:       120 * time.Second,
+	BodyIdleTimeout:   10 * time.Second,
 	ShutdownTimeout:   90 * time.Second,
 	MaxStoredBytes:    16 << 20,
 }
@@ -125,6 +131,7 @@ func (c Config) withDefaults() Config {
 	}
 	for _, p := range []struct{ v, d *time.Duration }{{&c.ReadHeaderTimeout, &d.ReadHeaderTimeout},
 		{&c.ReadTimeout, &d.ReadTimeout}, {&c.WriteTimeout, &d.WriteTimeout}, {&c.IdleTimeout, &d.IdleTimeout},
+		{&c.BodyIdleTimeout, &d.BodyIdleTimeout},
 		{&c.ShutdownTimeout, &d.ShutdownTimeout}} {
 		if *p.v <= 0 {
 			*p.v = *p.d
@@ -148,7 +155,9 @@ type Server struct {
 	draining atomic.Bool
 	keys     *keyring
 	intake   *budget
-	store    *storeHandle // nil without OpenStore
+	// limits are what the decoders count a body's lists against.
+	limits wire.Limits
+	store  *storeHandle // nil without OpenStore
 }
 
 // NewServer builds the router and its dependencies.
@@ -159,7 +168,7 @@ func NewServer(cfg Config) (*Server, error) {
 		return nil, err
 	}
 	s := &Server{cfg: cfg, metrics: newMetrics(cfg.Slots), slots: make(chan struct{}, cfg.Slots), keys: keys,
-		intake: newBudget(cfg.MaxInFlightBytes)}
+		intake: newBudget(cfg.MaxInFlightBytes), limits: wire.Limits{Limits: cfg.Limits, MaxBatch: cfg.MaxBatch}}
 	if cfg.OpenStore != nil {
 		s.store = s.openStore(cfg.OpenStore)
 	}
@@ -188,7 +197,7 @@ func NewServer(cfg Config) (*Server, error) {
 	get(v1, "/studies/:id/history", s.negotiated(jsonType), s.handleHistory)
 	v1.POST("/studies/:id/revisions", s.negotiated(jsonType), s.handleRevise)
 	v1.POST("/studies/:id/revisions/:n/signatures", s.needSigner, s.negotiated(jsonType), s.handleSign)
-	e.POST("/report", s.negotiated(htmlType), s.plainBody(s.formProblemOf), s.handleFormReport)
+	e.POST("/report", s.authorizeForm, s.negotiated(htmlType), s.plainBody(s.formProblemOf), s.handleFormReport)
 	get(e, "/", s.negotiated(htmlType), s.handleIndex)
 	get(e, "/healthz", s.negotiated(jsonType), s.handleHealthz)
 	get(e, "/readyz", s.negotiated(jsonType), s.handleReadyz)

@@ -3,7 +3,6 @@ package api
 import (
 	"bytes"
 	"context"
-	"eivfit/api/wire"
 	"eivfit/eiv/study"
 	"encoding/json"
 	"fmt"
@@ -17,6 +16,7 @@ import (
 	"time"
 
 	"eivfit/api/answertest"
+	"eivfit/api/wire"
 	"eivfit/openapi"
 
 	"github.com/getkin/kin-openapi/openapi3"
@@ -120,7 +120,7 @@ func (h *harness) validate(req *http.Request, body string, rec *httptest.Respons
 	answertest.Check(h.t, rec.Body.Bytes())
 	out.SetBodyBytes(rec.Body.Bytes())
 	if err := openapi3filter.ValidateResponse(context.Background(), out); err != nil {
-		h.t.Errorf("%s %s → %d: answer does not match the OpenAPI document: %v\n%s", req.Method, req.URL, rec.Code, err, truncate(rec.Body.String()))
+		h.t.Errorf("%s %s → %d: answer does not match the OpenAPI document: %v\n%s", req.Method, req.URL, rec.Code, err, wire.Truncate(rec.Body.String()))
 	}
 }
 
@@ -195,7 +195,7 @@ func TestEndpoints(t *testing.T) {
 			h.t = t
 			rec := h.do(c.method, c.target, c.ctype, c.body)
 			if rec.Code != c.status {
-				t.Fatalf("status %d, want %d\n%s", rec.Code, c.status, truncate(rec.Body.String()))
+				t.Fatalf("status %d, want %d\n%s", rec.Code, c.status, wire.Truncate(rec.Body.String()))
 			}
 			if rec.Header().Get("X-Content-Type-Options") != "nosniff" {
 				t.Error("no nosniff header")

@@ -29,7 +29,7 @@ import (
 // stored input gives the stored answer.
 type recordSpec[Req, Res any] struct {
 	kind    study.StudyKind
-	page    func(*Server, *answer[Req, Res], string) (*report.Page, error)
+	page    func(*Server, context.Context, *answer[Req, Res], string) (*report.Page, error)
 	options func(Req) ([]byte, error)
 	patch   func(Req, []byte) error
 	exclude func(Req, []study.Exclusion) error
@@ -101,7 +101,7 @@ func (s *Server) takeRecord(c *gin.Context, kind string, body io.Reader, q url.V
 			return nil, nil, nil, s.problemFor(c, err)
 		}
 	}
-	return sv, bytes.NewReader(dec), rest, nil
+	return sv, wire.NewBody(dec, &s.limits), rest, nil
 }
 
 // saveStudy stores a computed request as revision 0 of a new study and
@@ -121,7 +121,8 @@ func saveStudy[Req, Res any](s *Server, c *gin.Context, r *recordSpec[Req, Res],
 	html := wantsHTML(c)
 	var pg *report.Page
 	if html { // rendered before the save, so that a failure leaves no record
-		if pg, err = r.page(s, a, sv.sha); err != nil {
+		pg, err = render(s, c, func(ctx context.Context) (*report.Page, error) { return r.page(s, ctx, a, sv.sha) })
+		if err != nil {
 			s.problem(c, s.problemFor(c, err))
 			return
 		}
@@ -175,7 +176,7 @@ type studyKind interface {
 // recomputed is a stored study computed again: its answer and its report.
 type recomputed struct {
 	json []byte
-	page func(sha string) (*report.Page, error)
+	page func(ctx context.Context, sha string) (*report.Page, error)
 }
 
 func (r *recordSpec[Req, Res]) recompute(ctx context.Context, s *Server, st *study.Study, changes []study.Change) (*recomputed, error) {
@@ -193,7 +194,7 @@ func (r *recordSpec[Req, Res]) recompute(ctx context.Context, s *Server, st *stu
 	} else if q, err = wire.StripRecordQuery(st.Query); err != nil {
 		return nil, err
 	}
-	req, err := decode(e, kind, bytes.NewReader(body), q)
+	req, err := decode(e, kind, wire.NewBody(body, &s.limits), q)
 	if err != nil {
 		return nil, err
 	}
@@ -218,7 +219,7 @@ func (r *recordSpec[Req, Res]) recompute(ctx context.Context, s *Server, st *stu
 	if err != nil {
 		return nil, err
 	}
-	return &recomputed{json: a.json, page: func(sha string) (*report.Page, error) { return r.page(s, a, sha) }}, nil
+	return &recomputed{json: a.json, page: func(ctx context.Context, sha string) (*report.Page, error) { return r.page(s, ctx, a, sha) }}, nil
 }
 
 // studyKinds maps each kind of study to its endpoint's record.
@@ -322,7 +323,9 @@ func (s *Server) handleStudy(c *gin.Context) {
 		r, err := inSlot(s, c, func(ctx context.Context) (*recomputed, error) { return s.recomputeAt(ctx, st, revs, n) })
 		var pg *report.Page
 		if err == nil {
-			pg, err = r.page(hex.EncodeToString(st.InputSHA256[:]))
+			pg, err = render(s, c, func(ctx context.Context) (*report.Page, error) {
+				return r.page(ctx, hex.EncodeToString(st.InputSHA256[:]))
+			})
 		}
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"math/bits"
 	"math/rand/v2"
 	"runtime"
 	"slices"
@@ -155,20 +156,26 @@ func Bootstrap(ctx context.Context, s Sample, ests []Estimator, opt *BootstrapOp
 				}
 				for i := start; i < min(start+chunk, B); i++ {
 					w.pcg.Seed(opt.Seed, uint64(i))
-					if scheme == SchemePairs {
-						w.drawPairs(s)
-					} else {
-						w.drawParametric(s, xh, yh)
-					}
 					out := res.lines[i*k : (i+1)*k]
-					ok := true
-					for j, f := range w.fitters {
-						a, b, err := f.FitLine(w.s)
-						if err != nil || !allFinite(a, b) {
-							ok = false
-							break
+					done, ok := false, true
+					if scheme == SchemePairs && w.lambdas != nil {
+						done, ok = w.fitMoments(s.X, s.Y, opt.Seed, uint64(i), out)
+					}
+					if !done {
+						ok = true
+						if scheme == SchemePairs {
+							w.drawPairs(s)
+						} else {
+							w.drawParametric(s, xh, yh)
 						}
-						out[j] = Line{a, b}
+						for j, f := range w.fitters {
+							a, b, err := f.FitLine(w.s)
+							if err != nil || !allFinite(a, b) {
+								ok = false
+								break
+							}
+							out[j] = Line{a, b}
+						}
 					}
 					if !ok {
 						failed.Add(1)
@@ -212,6 +219,9 @@ type bootWorker struct {
 	rng     *rand.Rand
 	s       Sample
 	fitters []LineFitter
+	// lambdas holds λ of every fitter (+Inf for OLS) when all of them fit
+	// from the moments of (x, y) alone (Deming, OLS); nil otherwise.
+	lambdas []float64
 }
 
 func newBootWorker(s Sample, ests []Estimator, n int) *bootWorker {
@@ -230,13 +240,137 @@ func newBootWorker(s Sample, ests []Estimator, n int) *bootWorker {
 	for _, e := range ests {
 		w.fitters = append(w.fitters, e.NewFitter(n))
 	}
+	if is32bit { // math/rand/v2 bounds its numbers differently there
+		return w
+	}
+	for _, f := range w.fitters {
+		var lam float64
+		switch f := f.(type) {
+		case demingFitter:
+			lam = f.lambda
+		case olsFitter:
+			lam = math.Inf(1)
+		default:
+			w.lambdas = nil
+			return w
+		}
+		w.lambdas = append(w.lambdas, lam)
+	}
 	return w
+}
+
+// is32bit: math/rand/v2 draws bounded integers differently there.
+const is32bit = ^uint(0)>>32 == 0
+
+// intN is w.rng.IntN(n), the same number from the same stream (Lemire's
+// multiply-and-reject, as math/rand/v2's uint64n), with the generator
+// called directly rather than through the rand.Source interface so that
+// it inlines into the draw loops.
+func (w *bootWorker) intN(n int) int {
+	if is32bit {
+		return w.rng.IntN(n)
+	}
+	un := uint64(n)
+	if un&(un-1) == 0 {
+		return int(w.pcg.Uint64() & (un - 1))
+	}
+	hi, lo := bits.Mul64(w.pcg.Uint64(), un)
+	if lo < un {
+		thresh := -un % un
+		for lo < thresh {
+			hi, lo = bits.Mul64(w.pcg.Uint64(), un)
+		}
+	}
+	return int(hi)
+}
+
+// pcgStep advances the state (hi, lo) of a rand.PCG by one step and returns
+// the new state and its output, as (*rand.PCG).Uint64 does (a 128-bit LCG
+// with the DXSM output function; the constants are those of math/rand/v2),
+// but with the state in local variables, so that a draw loop keeps it in
+// registers. rand.PCG.Seed(s1, s2) is the state (s1, s2).
+func pcgStep(hi, lo uint64) (nhi, nlo, v uint64) {
+	const (
+		mulHi    = 2549297995355413924
+		mulLo    = 4865540595714422341
+		incHi    = 6364136223846793005
+		incLo    = 1442695040888963407
+		cheapMul = 0xda942042e4dd58b5
+	)
+	h, l := bits.Mul64(lo, mulLo)
+	h += hi*mulLo + lo*mulHi
+	l, c := bits.Add64(l, incLo, 0)
+	h, _ = bits.Add64(h, incHi, c)
+	v = h
+	v ^= v >> 32
+	v *= cheapMul
+	v ^= v >> 48
+	v *= l | 1
+	return h, l, v
+}
+
+// fitMoments draws the pairs resample of the PCG state (s1, s2) and fits
+// every estimator of w.lambdas to it, writing the lines to out, without
+// materialising the resample: one pass draws each index (the numbers
+// rand.New(rand.NewPCG(s1, s2)).IntN(n) gives) and adds the point to the
+// sums of shiftedMoments about the first point drawn, in the order that
+// shiftedMoments would sum the materialised resample, so that the lines
+// are the same bit for bit. It returns done false, with out untouched,
+// when the moments need the points themselves (the first point lies far
+// from the rest, or the sums leave the safe band of demingFitter): the
+// caller then draws the resample again from the same seed and fits it as
+// usual. ok is false when an estimator cannot fit the resample.
+func (w *bootWorker) fitMoments(x, y []float64, s1, s2 uint64, out []Line) (done, ok bool) {
+	n := len(x)
+	y = y[:n]
+	un := uint64(n)
+	pow2 := un&(un-1) == 0
+	hi, lo := s1, s2
+	var sx, sy, sxx, syy, sxy, x0, y0 float64
+	for i := range n {
+		var v, j uint64
+		hi, lo, v = pcgStep(hi, lo)
+		if pow2 { // math/rand/v2's uint64n: a mask, else multiply and reject
+			j = v & (un - 1)
+		} else {
+			var l uint64
+			j, l = bits.Mul64(v, un)
+			if l < un {
+				thresh := -un % un
+				for l < thresh {
+					hi, lo, v = pcgStep(hi, lo)
+					j, l = bits.Mul64(v, un)
+				}
+			}
+		}
+		if i == 0 {
+			x0, y0 = x[j], y[j]
+		}
+		dx, dy := x[j]-x0, y[j]-y0
+		sx += dx
+		sy += dy
+		sxx += dx * dx
+		syy += dy * dy
+		sxy += dx * dy
+	}
+	m, far := shiftedSums(n, x0, y0, sx, sy, sxx, syy, sxy)
+	if far || !safeMoments(m) {
+		return false, false
+	}
+	for i, lam := range w.lambdas {
+		a, b, err := lineFrom(m, lam)
+		if err != nil || !allFinite(a, b) {
+			return true, false
+		}
+		out[i] = Line{a, b}
+	}
+	return true, true
 }
 
 func (w *bootWorker) drawPairs(s Sample) {
 	n := len(s.X)
 	for i := range n {
-		j := w.rng.IntN(n)
+		j := w.intN(n)
 		w.s.X[i], w.s.Y[i] = s.X[j], s.Y[j]
 		if s.SX != nil {
 			w.s.SX[i] = s.SX[j]
@@ -360,9 +494,10 @@ func (res *BootstrapResult) Summarize(stat Statistic) (BootSummary, error) {
 	if float64(res.Resamples-len(vals)) > MaxFailedShare*float64(res.Resamples) {
 		return sum, ErrTooManyFailures
 	}
-	slices.Sort(vals)
+	var fixed [8]int // the four quantiles need at most eight order statistics
+	ord := orderStats{v: vals, fixed: fixed[:0]}
 	lo, hi := (1-res.Confidence)/2, (1+res.Confidence)/2
-	sum.Percentile = &Interval{Lower: quantile7(vals, lo), Upper: quantile7(vals, hi),
+	sum.Percentile = &Interval{Lower: ord.quantile7(lo), Upper: ord.quantile7(hi),
 		Level: res.Confidence, Method: "percentile"}
 
 	// Bias correction: mid-rank share of replicates below the estimate.
@@ -406,7 +541,7 @@ func (res *BootstrapResult) Summarize(stat Statistic) (BootSummary, error) {
 	}
 	a1, a2 := adj(lo), adj(hi)
 	if allFinite(a1, a2) {
-		sum.BCa = &Interval{Lower: quantile7(vals, a1), Upper: quantile7(vals, a2),
+		sum.BCa = &Interval{Lower: ord.quantile7(a1), Upper: ord.quantile7(a2),
 			Level: res.Confidence, Method: "BCa"}
 	}
 	return sum, nil
@@ -424,6 +559,88 @@ func quantile7(sorted []float64, p float64) float64 {
 		return sorted[len(sorted)-1]
 	}
 	return sorted[lo] + (h-float64(lo))*(sorted[lo+1]-sorted[lo])
+}
+
+// orderStats reads order statistics of v by selection rather than by
+// sorting it all: a bootstrap interval needs four quantiles of B values.
+// fixed lists the indices already selected: v[f] holds the f-th smallest
+// value, every element before it is ≤ and every one after is ≥, so that a
+// later selection works between the two nearest of them.
+type orderStats struct {
+	v     []float64
+	fixed []int
+}
+
+// nth returns the k-th smallest value (from 0).
+func (o *orderStats) nth(k int) float64 {
+	lo, hi := 0, len(o.v)
+	for _, f := range o.fixed {
+		switch {
+		case f == k:
+			return o.v[k]
+		case f < k:
+			lo = max(lo, f+1)
+		default:
+			hi = min(hi, f)
+		}
+	}
+	selectNth(o.v[lo:hi], k-lo)
+	o.fixed = append(o.fixed, k)
+	return o.v[k]
+}
+
+// quantile7 is quantile7 of the sorted values.
+func (o *orderStats) quantile7(p float64) float64 {
+	n := len(o.v)
+	h := p * float64(n-1)
+	lo := int(math.Floor(h))
+	if lo < 0 {
+		return o.nth(0)
+	}
+	if lo >= n-1 {
+		return o.nth(n - 1)
+	}
+	a, b := o.nth(lo), o.nth(lo+1)
+	return a + (h-float64(lo))*(b-a)
+}
+
+// selectNth reorders v so that v[k] is its k-th smallest value with every
+// element before it ≤ and every one after ≥ (quickselect with a median of
+// three and a three-way partition, so that ties cost nothing; it sorts
+// instead after more rounds than a balanced split needs, which bounds the
+// worst case at O(n log n)). v holds no NaN.
+func selectNth(v []float64, k int) {
+	for depth := 2*bits.Len(uint(len(v))) + 8; len(v) > 12; depth-- {
+		if depth == 0 {
+			slices.Sort(v)
+			return
+		}
+		a, b, c := v[0], v[len(v)/2], v[len(v)-1]
+		pivot := max(min(a, b), min(max(a, b), c))
+		lt, i, gt := 0, 0, len(v)
+		for i < gt {
+			switch x := v[i]; {
+			case x < pivot:
+				v[lt], v[i] = x, v[lt]
+				lt++
+				i++
+			case x > pivot:
+				gt--
+				v[i], v[gt] = v[gt], x
+			default:
+				i++
+			}
+		}
+		switch {
+		case k < lt:
+			v = v[:lt]
+		case k >= gt:
+			v, k = v[gt:], k-gt
+		default:
+			return
+		}
+	}
+	slices.Sort(v)
 }
 
 // Replicates returns the statistic on every successful resample, in

@@ -60,6 +60,65 @@ func TestBootstrapDeterministic(t *testing.T) {
 	}
 }
 
+// opaqueFitter hides an estimator's fitter from the bootstrap's fused
+// Deming/OLS path, so that every resample is materialised and fitted.
+type opaqueEstimator struct{ eiv.Estimator }
+type opaqueFitter struct{ f eiv.LineFitter }
+
+func (e opaqueEstimator) NewFitter(n int) eiv.LineFitter {
+	return opaqueFitter{e.Estimator.NewFitter(n)}
+}
+func (f opaqueFitter) FitLine(s eiv.Sample) (float64, float64, error) { return f.f.FitLine(s) }
+
+// The fused draw-and-sum path of Deming and OLS gives the same lines bit for
+// bit as materialising each resample and fitting it, including the
+// resamples it hands back (first point far from the rest, values outside
+// the moments' safe band) and the ones that cannot be fitted.
+func TestBootstrapFusedMomentsMatchMaterialised(t *testing.T) {
+	far := sampleOf(randomData(31, 30, false))
+	far.X[3], far.Y[3] = 1e4, 2e4 // resamples that start with it take the two-pass moments
+	tiny := sampleOf(randomData(32, 25, false))
+	for i := range tiny.X {
+		tiny.X[i] *= 0x1p-450 // s_xx below 2^-800: the rescaled fit
+		tiny.Y[i] *= 0x1p-450
+	}
+	few := eiv.Sample{X: []float64{1, 1, 1, 2}, Y: []float64{1, 1.2, 0.9, 2.1}} // constant-x resamples fail
+	for _, c := range []struct {
+		name string
+		s    eiv.Sample
+	}{{"ordinary", sampleOf(randomData(30, 40, true))}, {"far point", far}, {"tiny values", tiny}, {"failures", few}} {
+		t.Run(c.name, func(t *testing.T) {
+			fused := []eiv.Estimator{eiv.DemingEstimator{Lambda: 1.7}, eiv.OLSEstimator{}}
+			plain := []eiv.Estimator{opaqueEstimator{fused[0]}, opaqueEstimator{fused[1]}}
+			opt := &eiv.BootstrapOptions{Resamples: 3000, Seed: 5, Workers: 2}
+			rf, err := eiv.Bootstrap(context.Background(), c.s, fused, opt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			rp, err := eiv.Bootstrap(context.Background(), c.s, plain, opt)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if rf.Failed != rp.Failed {
+				t.Errorf("failed resamples: fused %d, materialised %d", rf.Failed, rp.Failed)
+			}
+			for j := range fused {
+				for _, st := range []eiv.Statistic{eiv.SlopeOf(j), eiv.InterceptOf(j)} {
+					a, b := rf.Replicates(st), rp.Replicates(st)
+					if len(a) != len(b) {
+						t.Fatalf("estimator %d: %d vs %d replicates", j, len(a), len(b))
+					}
+					for i := range a {
+						if math.Float64bits(a[i]) != math.Float64bits(b[i]) {
+							t.Fatalf("estimator %d, replicate %d: fused %v, materialised %v", j, i, a[i], b[i])
+						}
+					}
+				}
+			}
+		})
+	}
+}
+
 // The hot loop allocates nothing per resample: the allocations of a whole
 // bootstrap do not grow with B.
 func TestBootstrapAllocationsIndependentOfB(t *testing.T) {

@@ -227,17 +227,25 @@ func (m moments) ssr(x, y []float64, b float64) float64 {
 // file). Then the moments are recomputed about the mean in two passes, so
 // that no result depends on the order of the rows beyond rounding.
 func shiftedResult(x, y []float64, x0, y0, sx, sy, sxx, syy, sxy float64) moments {
-	fn := float64(len(x))
-	ax, ay := sx/fn, sy/fn
-	cx, cy := sx*ax, sy*ay // n·(x̄ − x₀)², the part the shift removes
-	m := moments{n: fn, sxx: math.Max(0, sxx-cx), syy: math.Max(0, syy-cy), sxy: sxy - sx*ay}
-	m.mx, m.lx = twoSum(x0, ax)
-	m.my, m.ly = twoSum(y0, ay)
-	if cx > 4*m.sxx || cy > 4*m.syy {
+	m, far := shiftedSums(len(x), x0, y0, sx, sy, sxx, syy, sxy)
+	if far {
 		m = centredMoments(x, y)
 		m.centred = true
 	}
 	return m
+}
+
+// shiftedSums is shiftedResult's arithmetic on the sums of n points; far
+// reports that (x0, y0) lies too far from the rest for the moments to be
+// kept, so that they must be recomputed about the mean.
+func shiftedSums(n int, x0, y0, sx, sy, sxx, syy, sxy float64) (m moments, far bool) {
+	fn := float64(n)
+	ax, ay := sx/fn, sy/fn
+	cx, cy := sx*ax, sy*ay // n·(x̄ − x₀)², the part the shift removes
+	m = moments{n: fn, sxx: math.Max(0, sxx-cx), syy: math.Max(0, syy-cy), sxy: sxy - sx*ay}
+	m.mx, m.lx = twoSum(x0, ax)
+	m.my, m.ly = twoSum(y0, ay)
+	return m, cx > 4*m.sxx || cy > 4*m.syy
 }
 
 // shiftedMoments computes the same moments in one pass, from sums of the

@@ -77,7 +77,7 @@ type demingFitter struct{ lambda float64 }
 // rescaled by powers of two instead, allocating the rescaled copy.
 func (f demingFitter) FitLine(s Sample) (float64, float64, error) {
 	m := shiftedMoments(s.X, s.Y)
-	if !allFinite(m.sxx, m.syy, m.sxy, m.mx, m.my) || m.sxx < 0x1p-800 || m.syy > 0x1p800 || m.sxx > 0x1p800 {
+	if !safeMoments(m) {
 		sc := Scale{X: magnitude(s.X), Y: magnitude(s.Y)}
 		if sc.IsZero() || !finiteColumns(s.X, s.Y) {
 			return lineFrom(m, f.lambda)
@@ -86,6 +86,12 @@ func (f demingFitter) FitLine(s Sample) (float64, float64, error) {
 		return math.Ldexp(a, sc.Y), math.Ldexp(b, sc.Y-sc.X), err
 	}
 	return lineFrom(m, f.lambda)
+}
+
+// safeMoments reports that m lies in the band where demingFitter fits
+// from the moments as they are.
+func safeMoments(m moments) bool {
+	return allFinite(m.sxx, m.syy, m.sxy, m.mx, m.my) && m.sxx >= 0x1p-800 && m.syy <= 0x1p800 && m.sxx <= 0x1p800
 }
 
 func finiteColumns(cols ...[]float64) bool {

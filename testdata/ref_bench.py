@@ -6,7 +6,8 @@ bootstrap.
 
 Usage: ref_bench.py DIR. DIR holds little-endian float64 files written by
 `eivfit bench`: big_{x,y,sx,sy}.bin (n = 10^6) and small_{x,y,sx,sy}.bin
-(n = 100), and idx.bin (int32, B x 100 pairs-bootstrap indices, the same
+(n = 100), big.csv (the same n = 10^6 points as CSV, x,y,sx,sy: its fit
+is timed alone, after reading it, against eivfit's whole run), and idx.bin (int32, B x 100 pairs-bootstrap indices, the same
 resamples eivfit draws are not needed: the cost is what is compared). Prints
 JSON with the best of three wall times in seconds.
 """
@@ -70,6 +71,10 @@ def main():
     out = {}
     out["york_fit_1e6"] = best(lambda: odr_fit(bx, by, bsx, bsy), reps=1)
     out["deming_fit_1e6"] = best(lambda: deming(bx, by, lam))
+    csv = os.path.join(d, "big.csv")
+    if os.path.exists(csv):
+        cx, cy, csx, csy = np.loadtxt(csv, delimiter=",", skiprows=1, unpack=True)
+        out["york_fit_csv_1e6"] = best(lambda: odr_fit(cx, cy, csx, csy), reps=1)
 
     def odr_boot():
         for row in idx:

@@ -1,6 +1,7 @@
 package report
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"slices"
@@ -32,8 +33,9 @@ func (ps *plotSet) line() Line {
 	if len(ps.x) > 1 {
 		lo, hi := slices.Min(ps.x), slices.Max(ps.x)
 		for k := range 41 {
-			x0 := lo + (hi-lo)*float64(k)/40
-			if a, b, ok := ps.res.Band(x0); ok {
+			t := float64(k) / 40
+			x0 := lo*(1-t) + hi*t // never overflows, unlike lo + (hi−lo)·t
+			if a, b, ok := ps.res.Band(x0); ok && !math.IsInf(a, 0) && !math.IsInf(b, 0) && !math.IsNaN(a) && !math.IsNaN(b) {
 				l.BandX, l.BandLo, l.BandHi = append(l.BandX, x0), append(l.BandLo, a), append(l.BandHi, b)
 			}
 		}
@@ -42,8 +44,11 @@ func (ps *plotSet) line() Line {
 }
 
 // plot renders one kind; ok is false when the kind does not apply (no
-// bootstrap ran).
-func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
+// bootstrap ran). Drawing stops when ctx is done.
+func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) {
+	if err := ctx.Err(); err != nil {
+		return nil, false, err
+	}
 	d := ps.diag
 	level := make([]float64, len(d.Residuals))
 	resid := make([]float64, len(d.Residuals))
@@ -57,20 +62,20 @@ func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
 		if ps.ols != nil && ps.fitName != "ols" {
 			ols = &Line{Name: "OLS", Intercept: ps.ols.Intercept.Estimate, Slope: ps.ols.Slope.Estimate}
 		}
-		b, err := DataPlot(ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes)
+		b, err := DataPlot(ctx, ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes)
 		return b, true, err
 	case "residuals":
-		b, err := ResidualPlot(level, resid, ps.axes, d.Scale)
+		b, err := ResidualPlot(ctx, level, resid, ps.axes, d.Scale)
 		return b, true, err
 	case "run-order":
-		b, err := RunOrderPlot(order, resid, ps.axes, d.Scale)
+		b, err := RunOrderPlot(ctx, order, resid, ps.axes, d.Scale)
 		return b, true, err
 	case "qq":
 		th, sm := make([]float64, len(d.Normality.QQ)), make([]float64, len(d.Normality.QQ))
 		for i, q := range d.Normality.QQ {
 			th[i], sm[i] = q.Theoretical, q.Sample
 		}
-		b, err := QQPlot(th, sm)
+		b, err := QQPlot(ctx, th, sm)
 		return b, true, err
 	case "difference":
 		if !ps.axes.SameScale() {
@@ -79,13 +84,13 @@ func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
 		a := ps.agreement
 		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
 		for i := range ps.x {
-			mean[i], diff[i] = (ps.x[i]+ps.y[i])/2, ps.y[i]-ps.x[i]
+			mean[i], diff[i] = ps.x[i]/2+ps.y[i]/2, ps.y[i]-ps.x[i] // never overflows
 		}
 		if f, ok := differenceForm(a); ok {
-			b, err := DifferencePlotForm(mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes)
+			b, err := DifferencePlotForm(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes)
 			return b, true, err
 		}
-		b, err := DifferencePlot(mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
+		b, err := DifferencePlot(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
 		return b, true, err
 	case "bootstrap":
 		bs := ps.fit.Bootstrap
@@ -103,7 +108,7 @@ func (ps *plotSet) plot(kind string) ([]byte, bool, error) {
 		if iv == nil {
 			return nil, false, nil
 		}
-		b, err := BootstrapPlot(slopes, ps.fit.Slope.Estimate, iv.Lower, iv.Upper, name)
+		b, err := BootstrapPlot(ctx, slopes, ps.fit.Slope.Estimate, iv.Lower, iv.Upper, name)
 		return b, true, err
 	}
 	return nil, false, fmt.Errorf("unknown plot %q", kind)
@@ -123,7 +128,7 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 	pm := res.Primary()
 	if method != "" {
 		if pm = res.Get(method); pm == nil {
-			return nil, wire.Invalid("query parameter method", fmt.Sprintf("%q was not fitted; choose one of the fitted methods", truncate(method)))
+			return nil, wire.Invalid("query parameter method", fmt.Sprintf("%q was not fitted; choose one of the fitted methods", wire.Truncate(method)))
 		}
 	}
 	ag, err := study.AgreementOf(d.X, d.Y, res.Confidence, false)
@@ -140,13 +145,14 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 }
 
 // FitPlot draws one plot of a line fit; method "" means the primary fit.
-// ok is false when the kind does not apply (no bootstrap ran).
-func FitPlot(kind string, resp *wire.FitResponse, res *study.FitResult, d *study.Data, method string) ([]byte, bool, error) {
+// ok is false when the kind does not apply (no bootstrap ran). Drawing
+// stops when ctx is done.
+func FitPlot(ctx context.Context, kind string, resp *wire.FitResponse, res *study.FitResult, d *study.Data, method string) ([]byte, bool, error) {
 	ps, err := fitPlots(resp, res, d, method)
 	if err != nil {
 		return nil, false, err
 	}
-	return ps.plot(kind)
+	return ps.plot(ctx, kind)
 }
 
 func comparePlots(resp *wire.CompareResponse, c *study.Comparison) *plotSet {
@@ -155,14 +161,6 @@ func comparePlots(resp *wire.CompareResponse, c *study.Comparison) *plotSet {
 		fit: resp.Fits.Get(pm.Method.Name), res: pm, ols: resp.Fits.OLS,
 		diag: resp.Diagnostics, agreement: &resp.Agreement,
 		axes: Axes{X: resp.XName + " (x)", Y: resp.YName + " (y)", Unit: resp.Unit}}
-}
-
-// truncate shortens a client's string for a message.
-func truncate(s string) string {
-	if len(s) > 40 {
-		return s[:37] + "..."
-	}
-	return s
 }
 
 func g(v float64) string {
@@ -293,18 +291,36 @@ func diagSection(d wire.DiagnosticsOut) Section {
 	return s
 }
 
-func (ps *plotSet) figures() ([]Figure, error) {
+// caption is the report's caption of one plot of n points; it says when
+// the points are binned.
+func caption(kind string, n int) string {
+	c := plotCaptions[kind]
+	if kind == "bootstrap" || !Binned(n) {
+		return c
+	}
+	c += fmt.Sprintf(" The %d points are more than the %d drawn one by one, so they are shown as a density: counts in %d × %d bins, darker for more (log scale).",
+		n, MaxMarkers, DensityCols, DensityRows)
+	switch kind {
+	case "data":
+		c += " Error bars are left out."
+	case "run-order":
+		c += " The line joins the mean residual of each column."
+	}
+	return c
+}
+
+func (ps *plotSet) figures(ctx context.Context) ([]Figure, error) {
 	var out []Figure
 	for _, k := range PlotKinds {
 		if k == "difference" && !ps.axes.SameScale() {
 			continue
 		}
-		b, ok, err := ps.plot(k)
+		b, ok, err := ps.plot(ctx, k)
 		if err != nil {
 			return nil, err
 		}
 		if ok {
-			c := plotCaptions[k]
+			c := caption(k, len(ps.x))
 			if k == "data" && !ps.axes.SameScale() {
 				c = strings.Replace(c, ", the OLS line and the identity line.", " and the OLS line (x and y are in different units: no identity line).", 1)
 			}
@@ -326,8 +342,9 @@ func warningTexts(ws []wire.Warning) []string {
 	return out
 }
 
-// FitReport builds the HTML report of a line fit.
-func FitReport(resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha, version string) (*Page, error) {
+// FitReport builds the HTML report of a line fit; drawing its plots stops
+// when ctx is done.
+func FitReport(ctx context.Context, resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha, version string) (*Page, error) {
 	ps, err := fitPlots(resp, res, d, "")
 	if err != nil {
 		return nil, err
@@ -384,7 +401,7 @@ func FitReport(resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha,
 		p.Sections = append(p.Sections, *s)
 	}
 	p.Sections = append(p.Sections, diagSection(ps.diag))
-	figs, err := ps.figures()
+	figs, err := ps.figures(ctx)
 	if err != nil {
 		return nil, err
 	}
@@ -392,8 +409,9 @@ func FitReport(resp *wire.FitResponse, res *study.FitResult, d *study.Data, sha,
 	return p, nil
 }
 
-// CompareReport builds the HTML report of a method-comparison study.
-func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, version string) (*Page, error) {
+// CompareReport builds the HTML report of a method-comparison study;
+// drawing its plots stops when ctx is done.
+func CompareReport(ctx context.Context, resp *wire.CompareResponse, sc *study.Comparison, sha, version string) (*Page, error) {
 	ps := comparePlots(resp, sc)
 	c := &resp.Comparison
 	unit := ""
@@ -456,7 +474,7 @@ func CompareReport(resp *wire.CompareResponse, sc *study.Comparison, sha, versio
 		p.Sections = append(p.Sections, *s)
 	}
 	p.Sections = append(p.Sections, diagSection(c.Diagnostics))
-	figs, err := ps.figures()
+	figs, err := ps.figures(ctx)
 	if err != nil {
 		return nil, err
 	}

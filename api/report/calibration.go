@@ -1,9 +1,11 @@
 package report
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 	"text/tabwriter"
@@ -25,82 +27,99 @@ var inkUnknown = inkOLS // bluish green: the unknowns
 
 // CalibrationPlot draws the standards with their x and y error bars (±1
 // standard uncertainty), the calibration line with its band, and the
-// unknowns at (x₀, ȳ₀) with their expanded uncertainty U(x₀) as bars.
-func CalibrationPlot(x, y, ux, uy []float64, line Line, x0, y0, U []float64, ax Axes) ([]byte, error) {
+// unknowns at (x₀, ȳ₀) with their expanded uncertainty U(x₀) as bars. Like
+// every plot it maps its data onto the unit square itself (see axis) and
+// clips what it draws; above MaxMarkers standards they are a density
+// without error bars.
+func CalibrationPlot(ctx context.Context, x, y, ux, uy []float64, line Line, x0, y0, U []float64, ax Axes) ([]byte, error) {
 	if len(x) == 0 {
 		return nil, ErrNoData
 	}
-	if err := finite(x, y, ux, uy, x0, y0, U, line.BandLo, line.BandHi); err != nil {
+	if err := finite(x, y, ux, uy, x0, y0, U, line.BandX, line.BandLo, line.BandHi); err != nil {
 		return nil, err
 	}
-	p := newPlot("Calibration line", ax.label(ax.X), ax.labelY(ax.Y))
-	all := append(append([]float64{}, x...), x0...)
-	for i := range x0 {
-		all = append(all, x0[i]-U[i], x0[i]+U[i])
-	}
-	lo, hi := span(all)
-	addBand(p, line)
-	fl := straight(line, lo, hi, inkFit, nil)
-	p.Add(fl)
-	p.Legend.Add(fmt.Sprintf("%s: y = %.5g + %.5g x", line.Name, line.Intercept, line.Slope), fl)
-	addErrorBars(p, x, y, ux, uy)
-	s, err := points(x, y)
-	if err != nil {
-		return nil, err
-	}
-	p.Add(s)
-	p.Legend.Add("standards (bars ±1 u)", s)
-	if len(x0) > 0 {
-		xb := make(plotter.XErrors, len(x0))
-		for i := range xb {
-			xb[i].Low, xb[i].High = -U[i], U[i]
+	return drawn(func() (*figure, error) {
+		xv := [][]float64{x, x0}
+		for i := range x0 {
+			xv = append(xv, []float64{x0[i] - U[i], x0[i] + U[i]})
 		}
-		if eb, err := plotter.NewXErrorBars(struct {
-			plotter.XYs
-			plotter.XErrors
-		}{xys(x0, y0), xb}); err == nil {
-			eb.LineStyle = draw.LineStyle{Color: inkUnknown, Width: vg.Points(1.2)}
-			eb.CapWidth = vg.Points(5)
-			p.Add(eb)
+		xa := newAxis(xv...)
+		lo, hi := math.Min(slices.Min(x), minOr(x0, math.Inf(1))), math.Max(slices.Max(x), maxOr(x0, math.Inf(-1)))
+		f := newFigure("Calibration line", ax.label(ax.X), ax.labelY(ax.Y), xa,
+			newAxis(y, y0, line.BandLo, line.BandHi, lineEnds(line, lo, hi)))
+		f.band(line)
+		f.line(line, lo, hi, inkFit, nil, fmt.Sprintf("%s: y = %.5g + %.5g x", line.Name, line.Intercept, line.Slope))
+		if !Binned(len(x)) {
+			f.errorBars(x, y, ux, uy)
 		}
-		u, err := plotter.NewScatter(xys(x0, y0))
-		if err != nil {
+		if _, err := f.points(ctx, x, y, "standards (bars ±1 u)"); err != nil {
 			return nil, err
 		}
-		u.GlyphStyle = draw.GlyphStyle{Color: inkUnknown, Radius: vg.Points(3.5), Shape: draw.TriangleGlyph{}}
-		p.Add(u)
-		p.Legend.Add("unknowns x₀ (bars ±U)", u)
+		if len(x0) > 0 {
+			bars := &segments{style: draw.LineStyle{Color: inkUnknown, Width: vg.Points(1.2)}, cap: vg.Points(5)}
+			for i := range x0 {
+				bars.add(f.x.u(x0[i]-U[i]), f.y.u(y0[i]), f.x.u(x0[i]+U[i]), f.y.u(y0[i]), true)
+			}
+			if len(bars.a) > 0 {
+				f.add(lines, bars)
+			}
+			u, v := make([]float64, len(x0)), make([]float64, len(x0))
+			for i := range x0 {
+				u[i], v[i] = f.x.u(x0[i]), f.y.u(y0[i])
+			}
+			s, err := plotter.NewScatter(unitXYs(u, v))
+			if err != nil {
+				return nil, err
+			}
+			s.GlyphStyle = draw.GlyphStyle{Color: inkUnknown, Radius: vg.Points(3.5), Shape: draw.TriangleGlyph{}}
+			f.add(markers, s)
+			f.p.Legend.Add("unknowns x₀ (bars ±U)", s)
+		}
+		return f, nil
+	})
+}
+
+func minOr(v []float64, empty float64) float64 {
+	if len(v) == 0 {
+		return empty
 	}
-	return render(p)
+	return slices.Min(v)
+}
+
+func maxOr(v []float64, empty float64) float64 {
+	if len(v) == 0 {
+		return empty
+	}
+	return slices.Max(v)
 }
 
 // StandardizedResidualPlot draws the standards' standardized residuals
-// against x with the zero line and ±2.
-func StandardizedResidualPlot(x, z []float64, ax Axes) ([]byte, error) {
+// against x with the zero line and ±2; the y view is symmetric, at least
+// ±3, so that ±2 is always inside.
+func StandardizedResidualPlot(ctx context.Context, x, z []float64, ax Axes) ([]byte, error) {
 	if len(x) == 0 {
 		return nil, ErrNoData
 	}
 	if err := finite(x, z); err != nil {
 		return nil, err
 	}
-	p := newPlot("Standardized residuals of the standards", ax.label(ax.X), "standardized residual")
-	x0, x1 := span(x)
-	p.Add(hline(0, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)}))
-	lim := hline(2, x0, x1, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)})
-	p.Add(lim, hline(-2, x0, x1, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)}))
-	p.Legend.Add("±2", lim)
-	p.Legend.Top, p.Legend.Left = false, false
-	top := 3.0 // whole ticks, ±2 inside
-	for _, v := range z {
-		top = math.Max(top, math.Ceil(math.Abs(v)*1.1))
-	}
-	p.Y.Min, p.Y.Max = -top, top
-	s, err := points(x, z)
-	if err != nil {
-		return nil, err
-	}
-	p.Add(s)
-	return render(p)
+	return drawn(func() (*figure, error) {
+		top := 3.0
+		for _, v := range z {
+			if t := math.Ceil(math.Abs(v) * 1.1); t > top && !math.IsInf(t, 0) {
+				top = t
+			}
+		}
+		f := newFigure("Standardized residuals of the standards", ax.label(ax.X), "standardized residual",
+			newAxis(x), newAxis(z, []float64{-top, top}))
+		lo, hi := slices.Min(x), slices.Max(x)
+		f.hline(0, lo, hi, inkIdentity, dashRef, "")
+		f.hline(2, lo, hi, inkLimit, dashLimit, "±2")
+		f.hline(-2, lo, hi, inkLimit, dashLimit, "")
+		f.p.Legend.Top, f.p.Legend.Left = false, false
+		_, err := f.points(ctx, x, z, "")
+		return f, err
+	})
 }
 
 func calAxes(r *wire.CalibrationResponse) Axes {
@@ -129,7 +148,7 @@ func dofText(v *float64) string {
 }
 
 // calPlots draws the calibration plot and the residual plot.
-func calPlots(r *wire.CalibrationResponse, res *study.CalibrationResult) ([]Figure, error) {
+func calPlots(ctx context.Context, r *wire.CalibrationResponse, res *study.CalibrationResult) ([]Figure, error) {
 	ax := calAxes(r)
 	n := len(r.Standards)
 	x, y, ux, uy, z := make([]float64, n), make([]float64, n), make([]float64, n), make([]float64, n), make([]float64, n)
@@ -141,33 +160,48 @@ func calPlots(r *wire.CalibrationResponse, res *study.CalibrationResult) ([]Figu
 		x0, y0, U = append(x0, u.X.Estimate), append(y0, u.Y.Estimate), append(U, u.X.Expanded)
 	}
 	line := Line{Name: r.Line.Model, Intercept: r.Line.Intercept.Estimate, Slope: r.Line.Slope.Estimate}
-	lo, hi := span(append(append([]float64{}, x...), x0...))
-	k := res.BandK
-	for j := range 41 {
-		xv := lo + (hi-lo)*float64(j)/40
-		f, err := res.Line.Forward(xv, 0)
-		if err != nil {
-			break
-		}
-		line.BandX = append(line.BandX, xv)
-		line.BandLo, line.BandHi = append(line.BandLo, f.Y.Value-k*f.ULine), append(line.BandHi, f.Y.Value+k*f.ULine)
+	if n > 0 {
+		lo, hi := math.Min(slices.Min(x), minOr(x0, math.Inf(1))), math.Max(slices.Max(x), maxOr(x0, math.Inf(-1)))
+		line.BandX, line.BandLo, line.BandHi = calBand(res, lo, hi)
 	}
-	cp, err := CalibrationPlot(x, y, ux, uy, line, x0, y0, U, ax)
+	cp, err := CalibrationPlot(ctx, x, y, ux, uy, line, x0, y0, U, ax)
 	if err != nil {
 		return nil, err
 	}
-	rp, err := StandardizedResidualPlot(x, z, ax)
+	rp, err := StandardizedResidualPlot(ctx, x, z, ax)
 	if err != nil {
 		return nil, err
 	}
 	return []Figure{
-		{Caption: fmt.Sprintf("The standards with bars of ±1 standard uncertainty in x and y, the %s line with its band of ±%.3g·u(ŷ) (the line's own uncertainty), and each unknown at (x₀, ȳ₀) with its expanded uncertainty U(x₀).", r.Line.Model, k), SVG: SVG(cp)},
+		{Caption: fmt.Sprintf("The standards with bars of ±1 standard uncertainty in x and y, the %s line with its band of ±%.3g·u(ŷ) (the line's own uncertainty), and each unknown at (x₀, ȳ₀) with its expanded uncertainty U(x₀).", r.Line.Model, res.BandK), SVG: SVG(cp)},
 		{Caption: "Standardized residuals of the standards against x: under the model each has unit variance, so points beyond ±2 are unusual; a curve means the relation is not a straight line.", SVG: SVG(rp)},
 	}, nil
 }
 
+// calBand is the line's band of ±k·u(ŷ) at 41 points from lo to hi; none
+// when a point of it is not finite (the band is left out, the line is
+// still drawn). The points are interpolated as lo·(1 − t) + hi·t, which
+// never overflows.
+func calBand(res *study.CalibrationResult, lo, hi float64) (bx, blo, bhi []float64) {
+	k := res.BandK
+	for j := range 41 {
+		t := float64(j) / 40
+		xv := lo*(1-t) + hi*t
+		f, err := res.Line.Forward(xv, 0)
+		if err != nil {
+			return nil, nil, nil
+		}
+		l, h := f.Y.Value-k*f.ULine, f.Y.Value+k*f.ULine
+		if finite([]float64{xv, l, h}) != nil {
+			return nil, nil, nil
+		}
+		bx, blo, bhi = append(bx, xv), append(blo, l), append(bhi, h)
+	}
+	return bx, blo, bhi
+}
+
 // CalibrationReport builds the calibration record.
-func CalibrationReport(r *wire.CalibrationResponse, res *study.CalibrationResult, sha, version string) (*Page, error) {
+func CalibrationReport(ctx context.Context, r *wire.CalibrationResponse, res *study.CalibrationResult, sha, version string) (*Page, error) {
 	xu, yu := unitSuffix(r.XUnit), unitSuffix(r.YUnit)
 	ax := calAxes(r)
 	l := r.Line
@@ -220,7 +254,7 @@ func CalibrationReport(r *wire.CalibrationResponse, res *study.CalibrationResult
 		"At the centre the line's value and its slope are uncorrelated: u²(ŷ(x)) = u²(ŷ_c) + (x − x_c)²·u²(b).",
 	}, Tables: []Table{lt}})
 
-	figs, err := calPlots(r, res)
+	figs, err := calPlots(ctx, r, res)
 	if err != nil {
 		return nil, err
 	}

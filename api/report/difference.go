@@ -1,7 +1,10 @@
 package report
 
 import (
+	"context"
 	"fmt"
+	"image/color"
+	"slices"
 
 	"gonum.org/v1/plot/vg"
 )
@@ -23,52 +26,70 @@ type DifferenceForm struct {
 	Ratio, RatioLower, RatioUpper float64
 }
 
+// DifferencePlot is the Bland–Altman plot: y − x against the mean of the
+// two, with the mean difference and the limits of agreement.
+func DifferencePlot(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, ax Axes) ([]byte, error) {
+	return DifferencePlotForm(ctx, mean, diff, meanDiff, lower, upper, DifferenceForm{Form: "constant"}, ax)
+}
+
 // DifferencePlotForm is DifferencePlot with the limits of the form the
 // analysis chose and, with a proportional bias, the regression of the
-// differences on the means.
-func DifferencePlotForm(mean, diff []float64, meanDiff, lower, upper float64, f DifferenceForm, ax Axes) ([]byte, error) {
+// differences on the means. Like every plot it maps its data onto the unit
+// square itself (see axis): the y view holds the differences, zero and
+// each drawn line at the ends of the means' range, and the lines are
+// clipped to the view.
+func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, f DifferenceForm, ax Axes) ([]byte, error) {
 	if len(mean) == 0 {
 		return nil, ErrNoData
 	}
 	if err := finite(mean, diff, []float64{meanDiff, lower, upper, f.B0, f.B1, f.K, f.C0, f.C1, f.Ratio, f.RatioLower, f.RatioUpper}); err != nil {
 		return nil, err
 	}
-	p := newPlot("Difference plot (Bland–Altman)", ax.label("mean of x and y"), ax.label("difference y − x"))
-	x0, x1 := span(mean)
-	dash := []vg.Length{vg.Points(6), vg.Points(3)}
-	p.Add(hline(0, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)}))
-	ratioLine := func(r float64) Line { return Line{Slope: 2 * (r - 1) / (r + 1)} }
-	switch f.Form {
-	case "regression":
-		bias := straight(Line{Intercept: f.B0, Slope: f.B1}, x0, x1, inkFit, nil)
-		lo := straight(Line{Intercept: f.B0 - f.K*f.C0, Slope: f.B1 - f.K*f.C1}, x0, x1, inkLimit, dash)
-		hi := straight(Line{Intercept: f.B0 + f.K*f.C0, Slope: f.B1 + f.K*f.C1}, x0, x1, inkLimit, dash)
-		p.Add(bias, lo, hi)
-		p.Legend.Add(fmt.Sprintf("bias %.4g %+.4g·A", f.B0, f.B1), bias)
-		p.Legend.Add("regression-based limits of agreement", lo)
-	case "ratio":
-		bias := straight(ratioLine(f.Ratio), x0, x1, inkFit, nil)
-		lo := straight(ratioLine(f.RatioLower), x0, x1, inkLimit, dash)
-		hi := straight(ratioLine(f.RatioUpper), x0, x1, inkLimit, dash)
-		p.Add(bias, lo, hi)
-		p.Legend.Add(fmt.Sprintf("ratio y/x %.4g", f.Ratio), bias)
-		p.Legend.Add(fmt.Sprintf("ratio limits %.4g, %.4g", f.RatioLower, f.RatioUpper), lo)
-	default:
-		md := hline(meanDiff, x0, x1, inkFit, nil)
-		lo, hi := hline(lower, x0, x1, inkLimit, dash), hline(upper, x0, x1, inkLimit, dash)
-		p.Add(md, lo, hi)
-		p.Legend.Add(fmt.Sprintf("mean difference %.4g", meanDiff), md)
-		p.Legend.Add(fmt.Sprintf("limits of agreement %.4g, %.4g", lower, upper), lo)
-	}
-	if f.Proportional && f.Form != "regression" {
-		reg := straight(Line{Intercept: f.B0, Slope: f.B1}, x0, x1, inkOLS, []vg.Length{vg.Points(2), vg.Points(2)})
-		p.Add(reg)
-		p.Legend.Add(fmt.Sprintf("differences on means %.4g %+.4g·A", f.B0, f.B1), reg)
-	}
-	s, err := points(mean, diff)
-	if err != nil {
-		return nil, err
-	}
-	p.Add(s)
-	return render(p)
+	return drawn(func() (*figure, error) {
+		lo, hi := slices.Min(mean), slices.Max(mean)
+		type drawnLine struct {
+			l      Line
+			ink    color.Color
+			dash   []vg.Length
+			legend string
+		}
+		ratioLine := func(r float64) Line { return Line{Slope: 2 * (r - 1) / (r + 1)} }
+		var ls []drawnLine
+		switch f.Form {
+		case "regression":
+			ls = []drawnLine{
+				{Line{Intercept: f.B0, Slope: f.B1}, inkFit, nil, fmt.Sprintf("bias %.4g %+.4g·A", f.B0, f.B1)},
+				{Line{Intercept: f.B0 - f.K*f.C0, Slope: f.B1 - f.K*f.C1}, inkLimit, dashLimit, "regression-based limits of agreement"},
+				{Line{Intercept: f.B0 + f.K*f.C0, Slope: f.B1 + f.K*f.C1}, inkLimit, dashLimit, ""},
+			}
+		case "ratio":
+			ls = []drawnLine{
+				{ratioLine(f.Ratio), inkFit, nil, fmt.Sprintf("ratio y/x %.4g", f.Ratio)},
+				{ratioLine(f.RatioLower), inkLimit, dashLimit, fmt.Sprintf("ratio limits %.4g, %.4g", f.RatioLower, f.RatioUpper)},
+				{ratioLine(f.RatioUpper), inkLimit, dashLimit, ""},
+			}
+		default:
+			ls = []drawnLine{
+				{Line{Intercept: meanDiff}, inkFit, nil, fmt.Sprintf("mean difference %.4g", meanDiff)},
+				{Line{Intercept: lower}, inkLimit, dashLimit, fmt.Sprintf("limits of agreement %.4g, %.4g", lower, upper)},
+				{Line{Intercept: upper}, inkLimit, dashLimit, ""},
+			}
+		}
+		if f.Proportional && f.Form != "regression" {
+			ls = append(ls, drawnLine{Line{Intercept: f.B0, Slope: f.B1}, inkOLS, []vg.Length{vg.Points(2), vg.Points(2)},
+				fmt.Sprintf("differences on means %.4g %+.4g·A", f.B0, f.B1)})
+		}
+		yv := [][]float64{diff, {0}}
+		for _, d := range ls {
+			yv = append(yv, lineEnds(d.l, lo, hi))
+		}
+		fg := newFigure("Difference plot (Bland–Altman)", ax.label("mean of x and y"), ax.label("difference y − x"),
+			newAxis(mean), newAxis(yv...))
+		fg.hline(0, lo, hi, inkIdentity, dashRef, "")
+		for _, d := range ls {
+			fg.line(d.l, lo, hi, d.ink, d.dash, d.legend)
+		}
+		_, err := fg.points(ctx, mean, diff, "")
+		return fg, err
+	})
 }

@@ -1,17 +1,23 @@
 // Package report renders eivfit's plots (SVG, with gonum.org/v1/plot) and
 // its self-contained HTML report. It knows nothing of HTTP or of the API's
 // types: callers pass plain series and a Page.
+//
+// The plot library only draws: every plot maps its data onto the unit
+// square itself (see axis), places its own ticks, clips its own lines, and
+// bins its points above MaxMarkers, so that no input can make the library
+// loop, panic or write an SVG that grows with the number of points. A
+// panic that escapes all the same is returned as ErrDraw.
 package report
 
 import (
 	"bytes"
+	"context"
 	"errors"
 	"fmt"
 	"image/color"
 	"math"
 	"regexp"
 	"slices"
-	"strconv"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
@@ -44,6 +50,11 @@ func init() {
 const (
 	plotW = 5.6 * vg.Inch
 	plotH = 4.0 * vg.Inch
+)
+
+var (
+	dashRef   = []vg.Length{vg.Points(2), vg.Points(3)}
+	dashLimit = []vg.Length{vg.Points(6), vg.Points(3)}
 )
 
 // Axes names the quantities on the axes, with their unit. YUnit, when set
@@ -81,105 +92,132 @@ type Line struct {
 	BandX, BandLo, BandHi []float64
 }
 
+func (l Line) at(x float64) float64 { return l.Intercept + l.Slope*x }
+
 // ErrNoData is returned for a plot with nothing to draw.
 var ErrNoData = errors.New("report: nothing to plot")
 
-// ticks places ticks as gonum's defaults do, but labels them with the
-// decimals that the tick spacing needs, so that neighbours never print alike.
-type ticks struct{}
+// ErrDraw is returned when the plot library panicked on the input.
+var ErrDraw = errors.New("report: the plot could not be drawn for these values")
 
-func (ticks) Ticks(lo, hi float64) []plot.Tick {
-	ts := plot.DefaultTicks{}.Ticks(lo, hi)
-	var major []float64
-	for _, t := range ts {
-		if t.Label != "" {
-			major = append(major, t.Value)
-		}
-	}
-	dec := 0
-	if len(major) > 1 {
-		step := math.Abs(major[1] - major[0])
-		if step > 0 && step < 1 {
-			dec = int(math.Ceil(-math.Log10(step) - 1e-9))
-		}
-	}
-	big := len(major) > 0 && (math.Abs(major[len(major)-1]) >= 1e6 || math.Abs(major[0]) >= 1e6)
-	for i, t := range ts {
-		if t.Label == "" {
-			continue
-		}
-		switch {
-		case big:
-			ts[i].Label = strconv.FormatFloat(t.Value, 'g', 4, 64)
-		default:
-			v := t.Value
-			if math.Abs(v) < 1e-12*math.Max(1, math.Abs(hi-lo)) {
-				v = 0
-			}
-			ts[i].Label = strconv.FormatFloat(v, 'f', dec, 64)
-		}
-	}
-	return ts
+// Binned reports whether a plot of n points draws a binned density
+// instead of one marker per point.
+func Binned(n int) bool { return n > MaxMarkers }
+
+// figure is a plot whose data live in the unit square of two axes.
+type figure struct {
+	p    *plot.Plot
+	x, y axis
+	// Layers, drawn in order: areas (bands, densities, bars), lines,
+	// markers.
+	layers [3][]plot.Plotter
 }
 
-func newPlot(title, xl, yl string) *plot.Plot {
+const (
+	areas = iota
+	lines
+	markers
+)
+
+func (f *figure) add(layer int, ps ...plot.Plotter) { f.layers[layer] = append(f.layers[layer], ps...) }
+
+func newFigure(title, xl, yl string, x, y axis) *figure {
 	p := plot.New()
-	p.X.Tick.Marker = ticks{}
-	p.Y.Tick.Marker = ticks{}
+	f := &figure{p: p, x: x, y: y}
+	p.X.Tick.Marker = &f.x
+	p.Y.Tick.Marker = &f.y
 	p.Title.Text = title
 	p.Title.TextStyle.Font.Size = vg.Points(13)
-	p.X.Label.Text = xl
-	p.Y.Label.Text = yl
+	p.X.Label.Text = f.x.label(xl)
+	p.Y.Label.Text = f.y.label(yl)
 	p.X.Label.TextStyle.Font.Size = vg.Points(11)
 	p.Y.Label.TextStyle.Font.Size = vg.Points(11)
 	p.Add(plotter.NewGrid())
 	p.Legend.Top = true
 	p.Legend.Left = true
 	p.Legend.TextStyle.Font.Size = vg.Points(9)
-	return p
+	return f
 }
 
-func xys(x, y []float64) plotter.XYs {
-	out := make(plotter.XYs, len(x))
-	for i := range x {
-		out[i].X, out[i].Y = x[i], y[i]
+// segment returns the line from (x0, y0) to (x1, y1), in data units,
+// clipped to the view; nil when nothing of it is in view.
+func (f *figure) segment(x0, y0, x1, y1 float64, c color.Color, width vg.Length, dash []vg.Length) *plotter.Line {
+	a, b, ok := clip([2]float64{f.x.u(x0), f.y.u(y0)}, [2]float64{f.x.u(x1), f.y.u(y1)})
+	if !ok {
+		return nil
 	}
-	return out
+	ln, err := plotter.NewLine(plotter.XYs{{X: a[0], Y: a[1]}, {X: b[0], Y: b[1]}})
+	if err != nil {
+		return nil
+	}
+	ln.LineStyle = draw.LineStyle{Color: c, Width: width, Dashes: dash}
+	return ln
 }
 
-func points(x, y []float64) (*plotter.Scatter, error) {
-	s, err := plotter.NewScatter(xys(x, y))
+// line draws a fitted line across the data's x range and names it in the
+// legend.
+func (f *figure) line(l Line, xlo, xhi float64, c color.Color, dash []vg.Length, legend string) {
+	if ln := f.segment(xlo, l.at(xlo), xhi, l.at(xhi), c, vg.Points(1.6), dash); ln != nil {
+		f.add(lines, ln)
+		if legend != "" {
+			f.p.Legend.Add(legend, ln)
+		}
+	}
+}
+
+// hline draws y = v across the view; x values are only needed for their
+// range.
+func (f *figure) hline(v float64, xlo, xhi float64, c color.Color, dash []vg.Length, legend string) {
+	f.line(Line{Intercept: v}, xlo, xhi, c, dash, legend)
+}
+
+// points draws the points one by one up to MaxMarkers, else as a binned
+// density; the legend entry names which.
+func (f *figure) points(ctx context.Context, xs, ys []float64, legend string) (*density, error) {
+	u, v := make([]float64, len(xs)), make([]float64, len(xs))
+	for i := range xs {
+		u[i], v[i] = f.x.u(xs[i]), f.y.u(ys[i])
+	}
+	if Binned(len(xs)) {
+		d, err := binned(ctx, u, v)
+		if err != nil {
+			return nil, err
+		}
+		f.add(areas, d)
+		f.p.Legend.Add(d.legend(), d)
+		return d, nil
+	}
+	s, err := plotter.NewScatter(unitXYs(u, v))
 	if err != nil {
 		return nil, err
 	}
 	s.GlyphStyle = draw.GlyphStyle{Color: inkPoint, Radius: vg.Points(2.6), Shape: draw.CircleGlyph{}}
-	return s, nil
-}
-
-func straight(l Line, x0, x1 float64, c color.Color, dash []vg.Length) *plotter.Line {
-	ln, _ := plotter.NewLine(plotter.XYs{{X: x0, Y: l.Intercept + l.Slope*x0}, {X: x1, Y: l.Intercept + l.Slope*x1}})
-	ln.LineStyle = draw.LineStyle{Color: c, Width: vg.Points(1.6), Dashes: dash}
-	return ln
-}
-
-func hline(y, x0, x1 float64, c color.Color, dash []vg.Length) *plotter.Line {
-	return straight(Line{Intercept: y}, x0, x1, c, dash)
-}
-
-func span(v []float64) (lo, hi float64) {
-	lo, hi = slices.Min(v), slices.Max(v)
-	if lo == hi {
-		lo, hi = lo-1, hi+1
+	f.add(markers, s)
+	if legend != "" {
+		f.p.Legend.Add(legend, s)
 	}
-	pad := 0.03 * (hi - lo)
-	return lo - pad, hi + pad
+	return nil, nil
+}
+
+func unitXYs(u, v []float64) plotter.XYs {
+	out := make(plotter.XYs, len(u))
+	for i := range u {
+		out[i].X, out[i].Y = u[i], v[i]
+	}
+	return out
 }
 
 var xmlHeader = regexp.MustCompile(`(?s)^<\?xml[^>]*\?>\s*(<!--.*?-->\s*)?`)
 
-// render draws p as SVG for inline use: the XML declaration is dropped and
-// the size given in CSS pixels' proportions so the page can scale it.
-func render(p *plot.Plot) ([]byte, error) {
+// render draws the figure as SVG for inline use: the XML declaration is
+// dropped and the size given in CSS pixels' proportions so the page can
+// scale it.
+func (f *figure) render() ([]byte, error) {
+	p := f.p
+	for _, l := range f.layers {
+		p.Add(l...)
+	}
+	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = 0, 1, 0, 1
 	c := vgsvg.New(plotW, plotH)
 	p.Draw(draw.New(c))
 	var b bytes.Buffer
@@ -187,6 +225,20 @@ func render(p *plot.Plot) ([]byte, error) {
 		return nil, err
 	}
 	return xmlHeader.ReplaceAll(b.Bytes(), nil), nil
+}
+
+// drawn runs build and renders its figure, turning a panic into ErrDraw.
+func drawn(build func() (*figure, error)) (b []byte, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			b, err = nil, ErrDraw
+		}
+	}()
+	f, err := build()
+	if err != nil {
+		return nil, err
+	}
+	return f.render()
 }
 
 func finite(v ...[]float64) error {
@@ -200,60 +252,163 @@ func finite(v ...[]float64) error {
 	return nil
 }
 
-// DataPlot draws the points with their σx and σy error bars (when given),
-// the errors-in-variables line with its confidence band, the OLS line and
-// the identity line y = x.
-func DataPlot(x, y, sx, sy []float64, fit Line, ols *Line, ax Axes) ([]byte, error) {
+// lineEnds returns l at lo and hi when both are finite.
+func lineEnds(l Line, lo, hi float64) []float64 {
+	a, b := l.at(lo), l.at(hi)
+	if math.IsInf(a, 0) || math.IsNaN(a) || math.IsInf(b, 0) || math.IsNaN(b) {
+		return nil
+	}
+	return []float64{a, b}
+}
+
+// DataPlot draws the points with their σx and σy error bars (when given,
+// and up to MaxMarkers points), the errors-in-variables line with its
+// confidence band, the OLS line and the identity line y = x.
+func DataPlot(ctx context.Context, x, y, sx, sy []float64, fit Line, ols *Line, ax Axes) ([]byte, error) {
 	if len(x) == 0 {
 		return nil, ErrNoData
 	}
 	if err := finite(x, y, sx, sy, fit.BandLo, fit.BandHi); err != nil {
 		return nil, err
 	}
-	p := newPlot("Data and fitted lines", ax.label(ax.X), ax.labelY(ax.Y))
-	x0, x1 := span(x)
-	addBand(p, fit)
-	if ax.SameScale() {
-		id := straight(Line{Slope: 1}, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)})
-		p.Add(id)
-		p.Legend.Add("identity y = x", id)
+	return drawn(func() (*figure, error) {
+		xlo, xhi := slices.Min(x), slices.Max(x)
+		yv := [][]float64{y, fit.BandLo, fit.BandHi, lineEnds(fit, xlo, xhi)}
+		if ols != nil {
+			yv = append(yv, lineEnds(*ols, xlo, xhi))
+		}
+		f := newFigure("Data and fitted lines", ax.label(ax.X), ax.labelY(ax.Y), newAxis(x), newAxis(yv...))
+		f.band(fit)
+		// The identity line across the view: its ends are found in unit
+		// coordinates, so no data value is formed outside float64. Only
+		// when x and y share a unit.
+		if id := f.identity(); id != nil && ax.SameScale() {
+			f.add(lines, id)
+			f.p.Legend.Add("identity y = x", id)
+		}
+		if ols != nil {
+			f.line(*ols, xlo, xhi, inkOLS, dashLimit, fmt.Sprintf("OLS: y = %.4g + %.4g x", ols.Intercept, ols.Slope))
+		}
+		f.line(fit, xlo, xhi, inkFit, nil, fmt.Sprintf("%s: y = %.4g + %.4g x", fit.Name, fit.Intercept, fit.Slope))
+		if !Binned(len(x)) {
+			f.errorBars(x, y, sx, sy)
+		}
+		if _, err := f.points(ctx, x, y, "samples"); err != nil {
+			return nil, err
+		}
+		return f, nil
+	})
+}
+
+// band draws the line's pointwise band, clipped to the view, when it has
+// one.
+func (f *figure) band(l Line) {
+	if len(l.BandX) < 2 {
+		return
 	}
-	if ols != nil {
-		l := straight(*ols, x0, x1, inkOLS, []vg.Length{vg.Points(6), vg.Points(3)})
-		p.Add(l)
-		p.Legend.Add(fmt.Sprintf("OLS: y = %.4g + %.4g x", ols.Intercept, ols.Slope), l)
+	poly := make([][2]float64, 0, 2*len(l.BandX))
+	for i := range l.BandX {
+		poly = append(poly, [2]float64{f.x.u(l.BandX[i]), f.y.u(l.BandHi[i])})
 	}
-	fl := straight(fit, x0, x1, inkFit, nil)
-	p.Add(fl)
-	p.Legend.Add(fmt.Sprintf("%s: y = %.4g + %.4g x", fit.Name, fit.Intercept, fit.Slope), fl)
-	addErrorBars(p, x, y, sx, sy)
-	s, err := points(x, y)
-	if err != nil {
-		return nil, err
+	for i := len(l.BandX) - 1; i >= 0; i-- {
+		poly = append(poly, [2]float64{f.x.u(l.BandX[i]), f.y.u(l.BandLo[i])})
 	}
-	p.Add(s)
-	p.Legend.Add("samples", s)
-	return render(p)
+	if pts := clipPolygon(poly); len(pts) > 2 {
+		if band, err := plotter.NewPolygon(pts); err == nil {
+			band.Color = inkBand
+			band.LineStyle.Width = 0
+			f.add(areas, band)
+		}
+	}
+}
+
+// identity is y = x clipped to the view, found from the data values at
+// the view's corners in each axis's scaled units.
+func (f *figure) identity() *plotter.Line {
+	// Points of y = x at the x view's ends, in data units, if finite.
+	xa, xb := math.Ldexp(f.x.lo, f.x.e), math.Ldexp(f.x.lo+f.x.w, f.x.e)
+	if math.IsInf(xa, 0) || math.IsInf(xb, 0) {
+		return nil
+	}
+	return f.segment(xa, xa, xb, xb, inkIdentity, vg.Points(1.6), dashRef)
+}
+
+// errorBars draws ±σ bars, clipped to the view, with caps where a bar ends
+// in view.
+func (f *figure) errorBars(x, y, sx, sy []float64) {
+	bars := &segments{style: draw.LineStyle{Color: inkError, Width: vg.Points(0.8)}, cap: vg.Points(3)}
+	for i := range x {
+		if sy != nil {
+			bars.add(f.x.u(x[i]), f.y.u(y[i]-sy[i]), f.x.u(x[i]), f.y.u(y[i]+sy[i]), false)
+		}
+		if sx != nil {
+			bars.add(f.x.u(x[i]-sx[i]), f.y.u(y[i]), f.x.u(x[i]+sx[i]), f.y.u(y[i]), true)
+		}
+	}
+	if len(bars.a) > 0 {
+		f.add(lines, bars)
+	}
+}
+
+// segments are line pieces in unit coordinates, each with caps at the ends
+// that lie in view.
+type segments struct {
+	a, b       [][2]float64
+	capA, capB []bool
+	horiz      []bool
+	style      draw.LineStyle
+	cap        vg.Length
+}
+
+func (s *segments) add(x0, y0, x1, y1 float64, horizontal bool) {
+	p, q := [2]float64{x0, y0}, [2]float64{x1, y1}
+	a, b, ok := clip(p, q)
+	if !ok {
+		return
+	}
+	s.a, s.b = append(s.a, a), append(s.b, b)
+	s.capA, s.capB = append(s.capA, a == p), append(s.capB, b == q)
+	s.horiz = append(s.horiz, horizontal)
+}
+
+// Plot implements plot.Plotter.
+func (s *segments) Plot(c draw.Canvas, p *plot.Plot) {
+	trX, trY := p.Transforms(&c)
+	h := s.cap / 2
+	for i := range s.a {
+		a := vg.Point{X: trX(s.a[i][0]), Y: trY(s.a[i][1])}
+		b := vg.Point{X: trX(s.b[i][0]), Y: trY(s.b[i][1])}
+		c.StrokeLine2(s.style, a.X, a.Y, b.X, b.Y)
+		for _, e := range []struct {
+			pt vg.Point
+			on bool
+		}{{a, s.capA[i]}, {b, s.capB[i]}} {
+			switch {
+			case !e.on:
+			case s.horiz[i]:
+				c.StrokeLine2(s.style, e.pt.X, e.pt.Y-h, e.pt.X, e.pt.Y+h)
+			default:
+				c.StrokeLine2(s.style, e.pt.X-h, e.pt.Y, e.pt.X+h, e.pt.Y)
+			}
+		}
+	}
 }
 
 // ResidualPlot draws residuals against level with the zero line.
-func ResidualPlot(level, resid []float64, ax Axes, scale string) ([]byte, error) {
+func ResidualPlot(ctx context.Context, level, resid []float64, ax Axes, scale string) ([]byte, error) {
 	if len(level) == 0 {
 		return nil, ErrNoData
 	}
 	if err := finite(level, resid); err != nil {
 		return nil, err
 	}
-	yl := residualLabel(ax, scale)
-	p := newPlot("Residuals against level", ax.label("level, mean of x and y"), yl)
-	x0, x1 := span(level)
-	p.Add(hline(0, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)}))
-	s, err := points(level, resid)
-	if err != nil {
-		return nil, err
-	}
-	p.Add(s)
-	return render(p)
+	return drawn(func() (*figure, error) {
+		f := newFigure("Residuals against level", ax.label("level, mean of x and y"), residualLabel(ax, scale),
+			newAxis(level), newAxis(resid, []float64{0}))
+		f.hline(0, slices.Min(level), slices.Max(level), inkIdentity, dashRef, "")
+		_, err := f.points(ctx, level, resid, "")
+		return f, err
+	})
 }
 
 func residualLabel(ax Axes, scale string) string {
@@ -267,177 +422,226 @@ func residualLabel(ax Axes, scale string) string {
 }
 
 // RunOrderPlot draws residuals in run order, joined, with the zero line.
-func RunOrderPlot(order, resid []float64, ax Axes, scale string) ([]byte, error) {
+// Above MaxMarkers points it draws their density and joins the mean
+// residual of each column instead.
+func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale string) ([]byte, error) {
 	if len(order) == 0 {
 		return nil, ErrNoData
 	}
 	if err := finite(order, resid); err != nil {
 		return nil, err
 	}
-	idx := make([]int, len(order))
-	for i := range idx {
-		idx[i] = i
-	}
-	slices.SortStableFunc(idx, func(a, b int) int {
-		switch {
-		case order[a] < order[b]:
-			return -1
-		case order[a] > order[b]:
-			return 1
+	return drawn(func() (*figure, error) {
+		f := newFigure("Residuals in run order", "run order", residualLabel(ax, scale),
+			newAxis(order), newAxis(resid, []float64{0}))
+		f.hline(0, slices.Min(order), slices.Max(order), inkIdentity, dashRef, "")
+		u, v := make([]float64, len(order)), make([]float64, len(order))
+		for i := range order {
+			u[i], v[i] = f.x.u(order[i]), f.y.u(resid[i])
 		}
-		return 0
+		var ju, jv []float64
+		legend := ""
+		if Binned(len(order)) {
+			var err error
+			if ju, jv, err = columnMeans(ctx, u, v); err != nil {
+				return nil, err
+			}
+			legend = fmt.Sprintf("mean residual in each of %d columns", DensityCols)
+		} else {
+			idx := make([]int, len(order))
+			for i := range idx {
+				idx[i] = i
+			}
+			slices.SortStableFunc(idx, func(a, b int) int {
+				switch {
+				case order[a] < order[b]:
+					return -1
+				case order[a] > order[b]:
+					return 1
+				}
+				return 0
+			})
+			ju, jv = make([]float64, len(idx)), make([]float64, len(idx))
+			for k, i := range idx {
+				ju[k], jv[k] = u[i], v[i]
+			}
+		}
+		if ln, err := plotter.NewLine(unitXYs(ju, jv)); err == nil {
+			ln.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.7)}
+			if legend != "" {
+				ln.LineStyle = draw.LineStyle{Color: inkFit, Width: vg.Points(1.2)}
+				f.p.Legend.Add(legend, ln)
+			}
+			f.add(lines, ln)
+		}
+		_, err := f.points(ctx, order, resid, "")
+		return f, err
 	})
-	o, r := make([]float64, len(idx)), make([]float64, len(idx))
-	for k, i := range idx {
-		o[k], r[k] = order[i], resid[i]
-	}
-	yl := residualLabel(ax, scale)
-	p := newPlot("Residuals in run order", "run order", yl)
-	x0, x1 := span(o)
-	p.Add(hline(0, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)}))
-	if ln, err := plotter.NewLine(xys(o, r)); err == nil {
-		ln.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.7)}
-		p.Add(ln)
-	}
-	s, err := points(o, r)
-	if err != nil {
-		return nil, err
-	}
-	p.Add(s)
-	return render(p)
 }
 
 // QQPlot draws ordered standardized residuals against normal quantiles
 // with the reference line of slope 1 through the origin.
-func QQPlot(theoretical, sample []float64) ([]byte, error) {
+func QQPlot(ctx context.Context, theoretical, sample []float64) ([]byte, error) {
 	if len(theoretical) == 0 {
 		return nil, ErrNoData
 	}
 	if err := finite(theoretical, sample); err != nil {
 		return nil, err
 	}
-	p := newPlot("Normal Q-Q plot of standardized residuals", "standard normal quantile", "standardized residual")
-	lo, hi := span(append(slices.Clone(theoretical), sample...))
-	ref := straight(Line{Slope: 1}, lo, hi, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)})
-	p.Add(ref)
-	p.Legend.Add("normal reference", ref)
-	s, err := points(theoretical, sample)
-	if err != nil {
-		return nil, err
-	}
-	p.Add(s)
-	return render(p)
-}
-
-// DifferencePlot is the Bland–Altman plot: y − x against the mean of the
-// two, with the mean difference and the limits of agreement.
-func DifferencePlot(mean, diff []float64, meanDiff, lower, upper float64, ax Axes) ([]byte, error) {
-	if len(mean) == 0 {
-		return nil, ErrNoData
-	}
-	if err := finite(mean, diff, []float64{meanDiff, lower, upper}); err != nil {
-		return nil, err
-	}
-	p := newPlot("Difference plot (Bland–Altman)", ax.label("mean of x and y"), ax.label("difference y − x"))
-	x0, x1 := span(mean)
-	p.Add(hline(0, x0, x1, inkIdentity, []vg.Length{vg.Points(2), vg.Points(3)}))
-	md := hline(meanDiff, x0, x1, inkFit, nil)
-	p.Add(md)
-	p.Legend.Add(fmt.Sprintf("mean difference %.4g", meanDiff), md)
-	lo := hline(lower, x0, x1, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)})
-	hi := hline(upper, x0, x1, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)})
-	p.Add(lo, hi)
-	p.Legend.Add(fmt.Sprintf("limits of agreement %.4g, %.4g", lower, upper), lo)
-	s, err := points(mean, diff)
-	if err != nil {
-		return nil, err
-	}
-	p.Add(s)
-	return render(p)
+	return drawn(func() (*figure, error) {
+		both := newAxis(theoretical, sample)
+		f := newFigure("Normal Q-Q plot of standardized residuals", "standard normal quantile", "standardized residual", both, both)
+		if ref := f.identity(); ref != nil {
+			f.add(lines, ref)
+			f.p.Legend.Add("normal reference", ref)
+		}
+		_, err := f.points(ctx, theoretical, sample, "")
+		return f, err
+	})
 }
 
 // BootstrapPlot is the histogram of the bootstrap slopes with the
-// estimate and the interval marked.
-func BootstrapPlot(slopes []float64, estimate, lower, upper float64, method string) ([]byte, error) {
+// estimate and the interval marked. The bins are the histogram's own,
+// equal in unit coordinates, so equal or nearly equal slopes still draw.
+func BootstrapPlot(ctx context.Context, slopes []float64, estimate, lower, upper float64, method string) ([]byte, error) {
 	if len(slopes) < 2 {
 		return nil, ErrNoData
 	}
 	if err := finite(slopes, []float64{estimate, lower, upper}); err != nil {
 		return nil, err
 	}
-	p := newPlot("Bootstrap distribution of the slope", "slope", "resamples")
-	bins := max(10, min(60, int(math.Sqrt(float64(len(slopes))))))
-	h, err := plotter.NewHist(plotter.Values(slopes), bins)
-	if err != nil {
-		return nil, err
-	}
-	h.FillColor = inkBar
-	h.LineStyle = draw.LineStyle{Color: color.White, Width: vg.Points(0.5)}
-	p.Add(h)
-	top := 0.0
-	for _, b := range h.Bins {
-		top = math.Max(top, b.Weight)
-	}
-	vline := func(x float64, c color.Color, dash []vg.Length) *plotter.Line {
-		ln, _ := plotter.NewLine(plotter.XYs{{X: x, Y: 0}, {X: x, Y: top * 1.05}})
-		ln.LineStyle = draw.LineStyle{Color: c, Width: vg.Points(1.6), Dashes: dash}
-		return ln
-	}
-	e := vline(estimate, inkFit, nil)
-	l, u := vline(lower, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)}), vline(upper, inkLimit, []vg.Length{vg.Points(6), vg.Points(3)})
-	p.Add(e, l, u)
-	p.Legend.Add(fmt.Sprintf("estimate %.4g", estimate), e)
-	p.Legend.Add(fmt.Sprintf("%s interval %.4g to %.4g", method, lower, upper), l)
-	return render(p)
+	return drawn(func() (*figure, error) {
+		xa := newAxis(slopes, []float64{estimate, lower, upper})
+		nb := max(10, min(60, int(math.Sqrt(float64(len(slopes))))))
+		smin, smax := math.Inf(1), math.Inf(-1)
+		for i, s := range slopes {
+			if i%checkEvery == 0 {
+				if err := ctx.Err(); err != nil {
+					return nil, err
+				}
+			}
+			u := xa.u(s)
+			smin, smax = math.Min(smin, u), math.Max(smax, u)
+		}
+		width := (smax - smin) / float64(nb)
+		if !(width > 0) { // every slope the same: one bar
+			nb, width = 1, 1.0/32
+			smin -= width / 2
+		}
+		counts := make([]float64, nb)
+		for _, s := range slopes {
+			k := int((xa.u(s) - smin) / width)
+			counts[min(max(k, 0), nb-1)]++
+		}
+		top := slices.Max(counts)
+		f := newFigure("Bootstrap distribution of the slope", "slope", "resamples", xa, newAxis([]float64{0, top * 1.05}))
+		bars := &rects{fill: inkBar, edge: draw.LineStyle{Color: color.White, Width: vg.Points(0.5)}}
+		for k, c := range counts {
+			if c == 0 {
+				continue
+			}
+			bars.x0 = append(bars.x0, smin+float64(k)*width)
+			bars.x1 = append(bars.x1, smin+float64(k+1)*width)
+			bars.y0 = append(bars.y0, f.y.u(0))
+			bars.y1 = append(bars.y1, f.y.u(c))
+		}
+		f.add(areas, bars)
+		vline := func(x float64, c color.Color, dash []vg.Length, legend string) {
+			if ln := f.segment(x, 0, x, top*1.05, c, vg.Points(1.6), dash); ln != nil {
+				f.add(lines, ln)
+				if legend != "" {
+					f.p.Legend.Add(legend, ln)
+				}
+			}
+		}
+		vline(estimate, inkFit, nil, fmt.Sprintf("estimate %.4g", estimate))
+		vline(lower, inkLimit, dashLimit, fmt.Sprintf("%s interval %.4g to %.4g", method, lower, upper))
+		vline(upper, inkLimit, dashLimit, "")
+		return f, nil
+	})
 }
 
-// addBand draws the line's pointwise band, when it has one.
-func addBand(p *plot.Plot, fit Line) {
-	if len(fit.BandX) < 2 {
-		return
+// clip cuts the segment p–q to the unit square (Liang & Barsky 1984);
+// ok is false when no part of it is inside or a coordinate is NaN.
+func clip(p, q [2]float64) (a, b [2]float64, ok bool) {
+	t0, t1 := 0.0, 1.0
+	d := [2]float64{q[0] - p[0], q[1] - p[1]}
+	for k := range 2 {
+		if math.IsNaN(p[k]) || math.IsNaN(q[k]) {
+			return a, b, false
+		}
+		for _, e := range [2]struct{ pp, qq float64 }{{-d[k], p[k]}, {d[k], 1 - p[k]}} {
+			if e.pp == 0 {
+				if e.qq < 0 {
+					return a, b, false
+				}
+				continue
+			}
+			r := e.qq / e.pp
+			if e.pp < 0 {
+				t0 = math.Max(t0, r)
+			} else {
+				t1 = math.Min(t1, r)
+			}
+		}
 	}
-	poly := make(plotter.XYs, 0, 2*len(fit.BandX))
-	for i := range fit.BandX {
-		poly = append(poly, plotter.XY{X: fit.BandX[i], Y: fit.BandHi[i]})
+	if t0 > t1 {
+		return a, b, false
 	}
-	for i := len(fit.BandX) - 1; i >= 0; i-- {
-		poly = append(poly, plotter.XY{X: fit.BandX[i], Y: fit.BandLo[i]})
+	// A cut end lies on the square's edge up to rounding (of order 1e−7
+	// for ends 1e9 away): clamp it onto the square.
+	in := func(x [2]float64) [2]float64 {
+		return [2]float64{math.Min(1, math.Max(0, x[0])), math.Min(1, math.Max(0, x[1]))}
 	}
-	if band, err := plotter.NewPolygon(poly); err == nil {
-		band.Color = inkBand
-		band.LineStyle.Width = 0
-		p.Add(band)
+	a, b = p, q
+	if t0 > 0 {
+		a = in([2]float64{p[0] + t0*d[0], p[1] + t0*d[1]})
 	}
+	if t1 < 1 {
+		b = in([2]float64{p[0] + t1*d[0], p[1] + t1*d[1]})
+	}
+	return a, b, true
 }
 
-// addErrorBars draws ±sy and ±sx bars at the points (either may be nil).
-func addErrorBars(p *plot.Plot, x, y, sx, sy []float64) {
-	if sy != nil {
-		yb := make(plotter.YErrors, len(x))
-		for i := range yb {
-			yb[i].Low, yb[i].High = -sy[i], sy[i]
-		}
-		if eb, err := plotter.NewYErrorBars(struct {
-			plotter.XYs
-			plotter.YErrors
-		}{xys(x, y), yb}); err == nil {
-			eb.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.8)}
-			eb.CapWidth = vg.Points(3)
-			p.Add(eb)
+// clipPolygon cuts a polygon to the unit square (Sutherland & Hodgman
+// 1974).
+func clipPolygon(in [][2]float64) plotter.XYs {
+	for _, pt := range in {
+		if math.IsNaN(pt[0]) || math.IsNaN(pt[1]) {
+			return nil
 		}
 	}
-	if sx != nil {
-		xb := make(plotter.XErrors, len(x))
-		for i := range xb {
-			xb[i].Low, xb[i].High = -sx[i], sx[i]
+	type edge struct {
+		k    int
+		v    float64
+		keep func(float64) bool
+	}
+	for _, e := range []edge{
+		{0, 0, func(x float64) bool { return x >= 0 }}, {0, 1, func(x float64) bool { return x <= 1 }},
+		{1, 0, func(x float64) bool { return x >= 0 }}, {1, 1, func(x float64) bool { return x <= 1 }},
+	} {
+		var out [][2]float64
+		for i := range in {
+			cur, prev := in[i], in[(i+len(in)-1)%len(in)]
+			cin, pin := e.keep(cur[e.k]), e.keep(prev[e.k])
+			if cin != pin {
+				t := (e.v - prev[e.k]) / (cur[e.k] - prev[e.k])
+				x := [2]float64{prev[0] + t*(cur[0]-prev[0]), prev[1] + t*(cur[1]-prev[1])}
+				x[e.k] = e.v
+				out = append(out, x)
+			}
+			if cin {
+				out = append(out, cur)
+			}
 		}
-		if eb, err := plotter.NewXErrorBars(struct {
-			plotter.XYs
-			plotter.XErrors
-		}{xys(x, y), xb}); err == nil {
-			eb.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.8)}
-			eb.CapWidth = vg.Points(3)
-			p.Add(eb)
+		in = out
+		if len(in) == 0 {
+			return nil
 		}
 	}
+	xy := make(plotter.XYs, len(in))
+	for i, p := range in {
+		xy[i].X, xy[i].Y = p[0], p[1]
+	}
+	return xy
 }

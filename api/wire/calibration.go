@@ -1,8 +1,6 @@
 package wire
 
 import (
-	"bytes"
-	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -37,151 +35,299 @@ type CalibrationRequest struct {
 	stdRows, unkRows []int
 }
 
-// calJSON is the wire form, decoded strictly field by field.
-type calJSON struct {
-	Standards           []json.RawMessage `json:"standards"`
-	SharedComponents    []json.RawMessage `json:"shared_components"`
-	XCovariance         [][]float64       `json:"x_covariance"`
-	Unknowns            []json.RawMessage `json:"unknowns"`
-	XName               string            `json:"x_name"`
-	YName               string            `json:"y_name"`
-	XUnit               string            `json:"x_unit"`
-	YUnit               string            `json:"y_unit"`
-	Model               string            `json:"model"`
-	OnInconsistent      string            `json:"on_inconsistent"`
-	CoverageFactor      *float64          `json:"coverage_factor"`
-	CoverageProbability *float64          `json:"coverage_probability"`
-	Confidence          *float64          `json:"confidence"`
-	MonteCarlo          *monteCarloJSON   `json:"monte_carlo"`
-	Forward             []json.RawMessage `json:"forward"`
-}
+var calKeys = []string{"standards", "shared_components", "x_covariance", "unknowns", "x_name", "y_name", "x_unit", "y_unit",
+	"model", "on_inconsistent", "coverage_factor", "coverage_probability", "confidence", "monte_carlo", "forward"}
 
-type monteCarloJSON struct {
-	Trials int     `json:"trials"`
-	Seed   *uint64 `json:"seed"`
-}
+var (
+	calStandardKeys = []string{"id", "x", "ux", "y", "uy", "r"}
+	calUnknownKeys  = []string{"id", "y", "uy"}
+	sharedKeys      = []string{"name", "relative_u", "standards"}
+	forwardKeys     = []string{"x", "ux"}
+	monteCarloKeys  = []string{"trials", "seed"}
+)
 
-type calStandardJSON struct {
-	ID json.RawMessage `json:"id"`
-	X  *float64        `json:"x"`
-	UX *float64        `json:"ux"`
-	Y  json.RawMessage `json:"y"`
-	UY *float64        `json:"uy"`
-	R  *float64        `json:"r"`
-}
-
-type calUnknownJSON struct {
-	ID json.RawMessage `json:"id"`
-	Y  json.RawMessage `json:"y"`
-	UY *float64        `json:"uy"`
-}
-
-type sharedJSON struct {
-	Name      string   `json:"name"`
-	RelativeU *float64 `json:"relative_u"`
-	Standards []string `json:"standards"`
-}
-
-type forwardJSON struct {
-	X  *float64 `json:"x"`
-	UX *float64 `json:"ux"`
-}
-
-// DecodeCalibrationJSON reads a CalibrationRequest strictly: unknown
-// fields, non-numbers and numbers outside the double range are errors
-// naming the field's JSON pointer.
+// DecodeCalibrationJSON reads a CalibrationRequest strictly, in one pass:
+// unknown, repeated or case-variant keys, non-numbers and numbers outside
+// the double range are errors naming the field's JSON pointer, and every
+// list (standards, unknowns, replicate readings, shared components and
+// their members, covariance rows and columns, forward evaluations) is
+// counted against its limit as it is read.
 func DecodeCalibrationJSON(r io.Reader) (*CalibrationRequest, error) {
-	var w calJSON
-	if err := decodeStrict(r, &w); err != nil {
+	lim := limitsOf(r)
+	body, err := readBody(r)
+	if err != nil {
 		return nil, err
 	}
-	req := &CalibrationRequest{XName: w.XName, YName: w.YName, XUnit: w.XUnit, YUnit: w.YUnit, Model: w.Model,
-		OnInconsistent: w.OnInconsistent, CoverageFactor: w.CoverageFactor, CoverageProbability: w.CoverageProbability,
-		Confidence: w.Confidence}
-	req.Data.XCovariance = w.XCovariance
-	if w.MonteCarlo != nil {
-		req.MonteCarlo = &study.CalMonteCarlo{Trials: w.MonteCarlo.Trials, Seed: w.MonteCarlo.Seed}
-	}
-	for i, raw := range w.Standards {
-		ptr := fmt.Sprintf("/standards/%d", i)
-		var sj calStandardJSON
-		if err := decodeStrict(bytes.NewReader(raw), &sj); err != nil {
-			return nil, prefixedErr(err, ptr)
-		}
-		var s study.CalStandard
-		var err error
-		if s.ID, err = parseID(sj.ID); err != nil {
-			return nil, Invalid(ptr+"/id", err.Error())
-		}
-		if sj.X == nil {
-			return nil, Invalid(ptr+"/x", "required: the standard's assigned value")
-		}
-		s.X = *sj.X
-		if sj.UX != nil {
-			s.UX = *sj.UX
-		}
-		if sj.R != nil {
-			s.R = *sj.R
-		}
-		if s.Y, err = parseValues(sj.Y, ptr+"/y"); err != nil {
-			return nil, err
-		}
-		s.UY = sj.UY
-		req.Data.Standards = append(req.Data.Standards, s)
-	}
-	for i, raw := range w.Unknowns {
-		ptr := fmt.Sprintf("/unknowns/%d", i)
-		var uj calUnknownJSON
-		if err := decodeStrict(bytes.NewReader(raw), &uj); err != nil {
-			return nil, prefixedErr(err, ptr)
-		}
-		var u study.CalUnknown
-		var err error
-		if u.ID, err = parseID(uj.ID); err != nil {
-			return nil, Invalid(ptr+"/id", err.Error())
-		}
-		if u.Y, err = parseValues(uj.Y, ptr+"/y"); err != nil {
-			return nil, err
-		}
-		u.UY = uj.UY
-		req.Data.Unknowns = append(req.Data.Unknowns, u)
-	}
-	for k, raw := range w.SharedComponents {
-		ptr := fmt.Sprintf("/shared_components/%d", k)
-		var sj sharedJSON
-		if err := decodeStrict(bytes.NewReader(raw), &sj); err != nil {
-			return nil, prefixedErr(err, ptr)
-		}
-		if sj.RelativeU == nil {
-			return nil, Invalid(ptr+"/relative_u", "required: the component's relative standard uncertainty")
-		}
-		req.Data.Shared = append(req.Data.Shared, study.CalShared{Name: sj.Name, RelativeU: *sj.RelativeU, Standards: sj.Standards})
-	}
-	for i, raw := range w.Forward {
-		ptr := fmt.Sprintf("/forward/%d", i)
-		raw = bytes.TrimSpace(raw)
-		if len(raw) > 0 && raw[0] != '{' {
-			v, err := parseNumber(raw)
-			if err != nil {
-				return nil, Invalid(ptr, err.Error())
-			}
-			req.Forward = append(req.Forward, study.CalForward{X: v})
-			continue
-		}
-		var fj forwardJSON
-		if err := decodeStrict(bytes.NewReader(raw), &fj); err != nil {
-			return nil, prefixedErr(err, ptr)
-		}
-		if fj.X == nil {
-			return nil, Invalid(ptr+"/x", "required: the x value at which to evaluate the line")
-		}
-		f := study.CalForward{X: *fj.X}
-		if fj.UX != nil {
-			f.UX = *fj.UX
-		}
-		req.Forward = append(req.Forward, f)
+	p := &pointParser{b: body, lim: lim}
+	req := &CalibrationRequest{}
+	err = p.document("", func(key []byte) error { return p.calMember(req, key) }, calKeys)
+	if err != nil {
+		return nil, err
 	}
 	return req, nil
+}
+
+// calMember reads the value of one member of a calibration request.
+func (p *pointParser) calMember(req *CalibrationRequest, key []byte) error {
+	d := &req.Data
+	var err error
+	switch string(key) {
+	case "standards":
+		d.Standards = nil
+		return p.array("/standards", p.lim.MaxPoints, KindTooLarge, "standards", func(i int) error {
+			s, err := p.calStandard(i)
+			d.Standards = append(d.Standards, s)
+			return err
+		})
+	case "unknowns":
+		d.Unknowns = nil
+		return p.array("/unknowns", p.lim.MaxPoints, KindTooLarge, "unknowns", func(i int) error {
+			u, err := p.calUnknown(i)
+			d.Unknowns = append(d.Unknowns, u)
+			return err
+		})
+	case "shared_components":
+		d.Shared = nil
+		return p.array("/shared_components", study.MaxSharedComponents, KindTooLarge, "shared components", func(k int) error {
+			c, err := p.calShared(fmt.Sprintf("/shared_components/%d", k))
+			d.Shared = append(d.Shared, c)
+			return err
+		})
+	case "x_covariance":
+		d.XCovariance = nil
+		if p.null() {
+			return nil
+		}
+		d.XCovariance = [][]float64{}
+		return p.array("/x_covariance", study.MaxCovarianceStandards, KindTooLarge, "rows (standards with an x covariance)", func(i int) error {
+			row := []float64{}
+			err := p.array(fmt.Sprintf("/x_covariance/%d", i), study.MaxCovarianceStandards, KindTooLarge, "columns (standards with an x covariance)", func(j int) error {
+				v, err := p.lazyNumber(func() string { return fmt.Sprintf("/x_covariance/%d/%d", i, j) })
+				row = append(row, v)
+				return err
+			})
+			d.XCovariance = append(d.XCovariance, row)
+			return err
+		})
+	case "forward":
+		req.Forward = nil
+		return p.array("/forward", p.lim.MaxAt, KindTooLarge, "forward evaluations", func(i int) error {
+			f, err := p.calForward(fmt.Sprintf("/forward/%d", i))
+			req.Forward = append(req.Forward, f)
+			return err
+		})
+	case "monte_carlo":
+		req.MonteCarlo = nil
+		if p.null() {
+			return nil
+		}
+		req.MonteCarlo = &study.CalMonteCarlo{}
+		return p.monteCarlo("/monte_carlo", req.MonteCarlo)
+	case "x_name":
+		req.XName, err = p.text("/x_name", true)
+	case "y_name":
+		req.YName, err = p.text("/y_name", true)
+	case "x_unit":
+		req.XUnit, err = p.text("/x_unit", true)
+	case "y_unit":
+		req.YUnit, err = p.text("/y_unit", true)
+	case "model":
+		req.Model, err = p.text("/model", true)
+	case "on_inconsistent":
+		req.OnInconsistent, err = p.text("/on_inconsistent", true)
+	case "coverage_factor":
+		err = p.optNumber("/coverage_factor", &req.CoverageFactor)
+	case "coverage_probability":
+		err = p.optNumber("/coverage_probability", &req.CoverageProbability)
+	case "confidence":
+		err = p.optNumber("/confidence", &req.Confidence)
+	default:
+		return p.unknownKey("", key, calKeys)
+	}
+	return err
+}
+
+// notObject is the problem for a list entry that is not an object; the
+// value is read over first, so that a syntax error is named as such.
+func (p *pointParser) notObject(ptr, example string) error {
+	if _, err := p.skip(0); err != nil {
+		return err
+	}
+	return Invalid(ptr, "each entry must be an object such as "+example)
+}
+
+// calStandard reads one standard: {"id", "x", "ux", "y", "uy", "r"}.
+func (p *pointParser) calStandard(i int) (study.CalStandard, error) {
+	var s study.CalStandard
+	ptr := samplePtr{i: i, list: "standards"}
+	if p.pos >= len(p.b) || p.b[p.pos] != '{' {
+		return s, p.notObject(ptr.String(), `{"x": 1.0, "y": [2.01, 2.03]}`)
+	}
+	var x *float64
+	err := p.object(ptr.String(), func(key []byte) error {
+		fp := samplePtr{i: i, field: string(key), list: "standards"}
+		var err error
+		switch string(key) {
+		case "id":
+			s.ID, err = p.sampleID(fp)
+		case "x":
+			x, err = p.optLazyNumber(fp.String)
+		case "ux":
+			var v *float64
+			v, err = p.optLazyNumber(fp.String)
+			if v != nil {
+				s.UX = *v
+			}
+		case "y":
+			s.Y, err = p.values(fp)
+		case "uy":
+			s.UY, err = p.optLazyNumber(fp.String)
+		case "r":
+			var v *float64
+			v, err = p.optLazyNumber(fp.String)
+			if v != nil {
+				s.R = *v
+			}
+		default:
+			return p.unknownKey(ptr.String(), key, calStandardKeys)
+		}
+		return err
+	}, calStandardKeys)
+	if err != nil {
+		return s, err
+	}
+	if x == nil {
+		return s, Invalid(ptr.String()+"/x", "required: the standard's assigned value")
+	}
+	s.X = *x
+	if s.Y == nil {
+		return s, Invalid(ptr.String()+"/y", "required: a number, or an array of replicate numbers")
+	}
+	return s, nil
+}
+
+// calUnknown reads one unknown: {"id", "y", "uy"}.
+func (p *pointParser) calUnknown(i int) (study.CalUnknown, error) {
+	var u study.CalUnknown
+	ptr := samplePtr{i: i, list: "unknowns"}
+	if p.pos >= len(p.b) || p.b[p.pos] != '{' {
+		return u, p.notObject(ptr.String(), `{"id": "U1", "y": [5.1, 5.2]}`)
+	}
+	err := p.object(ptr.String(), func(key []byte) error {
+		fp := samplePtr{i: i, field: string(key), list: "unknowns"}
+		var err error
+		switch string(key) {
+		case "id":
+			u.ID, err = p.sampleID(fp)
+		case "y":
+			u.Y, err = p.values(fp)
+		case "uy":
+			u.UY, err = p.optLazyNumber(fp.String)
+		default:
+			return p.unknownKey(ptr.String(), key, calUnknownKeys)
+		}
+		return err
+	}, calUnknownKeys)
+	if err != nil {
+		return u, err
+	}
+	if u.Y == nil {
+		return u, Invalid(ptr.String()+"/y", "required: a number, or an array of replicate numbers")
+	}
+	return u, nil
+}
+
+// calShared reads one shared component: {"name", "relative_u", "standards"}.
+func (p *pointParser) calShared(ptr string) (study.CalShared, error) {
+	var c study.CalShared
+	if p.pos >= len(p.b) || p.b[p.pos] != '{' {
+		return c, p.notObject(ptr, `{"name": "balance", "relative_u": 0.001, "standards": ["S1", "S2"]}`)
+	}
+	var ru *float64
+	err := p.object(ptr, func(key []byte) error {
+		var err error
+		switch string(key) {
+		case "name":
+			c.Name, err = p.text(ptr+"/name", true)
+		case "relative_u":
+			err = p.optNumber(ptr+"/relative_u", &ru)
+		case "standards":
+			c.Standards = nil
+			return p.array(ptr+"/standards", study.MaxCovarianceStandards, KindTooLarge, "standards per shared component", func(j int) error {
+				id, err := p.text(fmt.Sprintf("%s/standards/%d", ptr, j), false)
+				c.Standards = append(c.Standards, id)
+				return err
+			})
+		default:
+			return p.unknownKey(ptr, key, sharedKeys)
+		}
+		return err
+	}, sharedKeys)
+	if err != nil {
+		return c, err
+	}
+	if ru == nil {
+		return c, Invalid(ptr+"/relative_u", "required: the component's relative standard uncertainty")
+	}
+	c.RelativeU = *ru
+	return c, nil
+}
+
+// calForward reads a forward evaluation: a number x, or {"x", "ux"}.
+func (p *pointParser) calForward(ptr string) (study.CalForward, error) {
+	var f study.CalForward
+	if p.pos < len(p.b) && p.b[p.pos] != '{' {
+		v, err := p.number(ptr)
+		f.X = v
+		return f, err
+	}
+	var x, ux *float64
+	err := p.object(ptr, func(key []byte) error {
+		switch string(key) {
+		case "x":
+			return p.optNumber(ptr+"/x", &x)
+		case "ux":
+			return p.optNumber(ptr+"/ux", &ux)
+		}
+		return p.unknownKey(ptr, key, forwardKeys)
+	}, forwardKeys)
+	if err != nil {
+		return f, err
+	}
+	if x == nil {
+		return f, Invalid(ptr+"/x", "required: the x value at which to evaluate the line")
+	}
+	f.X = *x
+	if ux != nil {
+		f.UX = *ux
+	}
+	return f, nil
+}
+
+// monteCarlo reads {"trials", "seed"}.
+func (p *pointParser) monteCarlo(ptr string, m *study.CalMonteCarlo) error {
+	return p.object(ptr, func(key []byte) error {
+		switch string(key) {
+		case "trials":
+			if p.null() {
+				m.Trials = 0
+				return nil
+			}
+			v, err := p.integer(ptr+"/trials", false)
+			m.Trials = int(v)
+			return err
+		case "seed":
+			if p.null() {
+				m.Seed = nil
+				return nil
+			}
+			v, err := p.integer(ptr+"/seed", true)
+			u := uint64(v)
+			m.Seed = &u
+			return err
+		}
+		return p.unknownKey(ptr, key, monteCarloKeys)
+	}, monteCarloKeys)
 }
 
 // Options are the study's options with the server's settings.
@@ -268,6 +414,7 @@ var unitHeader = regexp.MustCompile(`^([a-z_0-9]+)\s*\((.*)\)$`)
 // (optional). A unit in parentheses after x or y ("x (mg/kg)") is taken
 // as the axis's unit. Lines starting with '#' are comments.
 func DecodeCalibrationCSV(r io.Reader) (*CalibrationRequest, error) {
+	lim := limitsOf(r)
 	body, err := csvBody(r)
 	if err != nil {
 		return nil, err
@@ -299,7 +446,7 @@ func DecodeCalibrationCSV(r io.Reader) (*CalibrationRequest, error) {
 			}
 		}
 		if seen[name] {
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(name)), fmt.Sprintf("column %q appears twice", name))
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(name)), fmt.Sprintf("column %q appears twice", name))
 		}
 		seen[name] = true
 		names[j] = name
@@ -309,16 +456,29 @@ func DecodeCalibrationCSV(r io.Reader) (*CalibrationRequest, error) {
 		case replicateColumn.MatchString(name) && replicateColumn.FindStringSubmatch(name)[1] == "y":
 			cols[j] = "y"
 		default:
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
-				"unknown column %q (known: role, id, x, ux, y or y1, y2, …, uy, r)", truncate(h)))
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(h)), fmt.Sprintf(
+				"unknown column %q (known: role, id, x, ux, y or y1, y2, …, uy, r)", Truncate(h)))
 		}
 		if unit != "" {
+			if err := nameLength(fmt.Sprintf("row %d, column %s", line, name), unit); err != nil {
+				return nil, err
+			}
 			switch cols[j] {
 			case "x":
 				req.XUnit = unit
 			case "y":
 				req.YUnit = unit
 			}
+		}
+	}
+	ny := 0
+	for j, c := range cols {
+		if c == "y" {
+			ny++
+		}
+		if ny > maxReplicates {
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(header[j])),
+				fmt.Sprintf("at most %d replicate columns y1, y2, …", maxReplicates))
 		}
 	}
 	for _, need := range []string{"role", "x", "y"} {
@@ -345,8 +505,8 @@ func DecodeCalibrationCSV(r io.Reader) (*CalibrationRequest, error) {
 			case "role":
 				role = strings.ToLower(f)
 			case "id":
-				if !utf8.ValidString(f) {
-					return nil, Invalid(where, "the id is not valid UTF-8 text")
+				if err := csvID([]byte(f), row); err != nil {
+					return nil, err
 				}
 				id = f
 			default:
@@ -379,6 +539,9 @@ func DecodeCalibrationCSV(r io.Reader) (*CalibrationRequest, error) {
 			if len(ys) == 0 {
 				return nil, Invalid(fmt.Sprintf("row %d, column y", row), "a standard needs at least one reading y")
 			}
+			if lim.MaxPoints > 0 && len(req.Data.Standards) >= lim.MaxPoints {
+				return nil, tooManyRows(row, lim.MaxPoints, "standards")
+			}
 			s := study.CalStandard{ID: id, X: *x, Y: ys, UY: uy}
 			if ux != nil {
 				s.UX = *ux
@@ -400,10 +563,13 @@ func DecodeCalibrationCSV(r io.Reader) (*CalibrationRequest, error) {
 					return nil, Invalid(fmt.Sprintf("row %d, column %s", row, c.name), "an unknown has no "+c.name+": leave the cell empty")
 				}
 			}
+			if lim.MaxPoints > 0 && len(req.Data.Unknowns) >= lim.MaxPoints {
+				return nil, tooManyRows(row, lim.MaxPoints, "unknowns")
+			}
 			req.Data.Unknowns = append(req.Data.Unknowns, study.CalUnknown{ID: id, Y: ys, UY: uy})
 			req.unkRows = append(req.unkRows, row)
 		default:
-			return nil, Invalid(fmt.Sprintf("row %d, column role", row), fmt.Sprintf("the role must be standard or unknown, not %q", truncate(role)))
+			return nil, Invalid(fmt.Sprintf("row %d, column role", row), fmt.Sprintf("the role must be standard or unknown, not %q", Truncate(role)))
 		}
 	}
 	return req, nil
@@ -430,6 +596,11 @@ func CalibrationOptionsFromQuery(q url.Values, req *CalibrationRequest) error {
 	}{{"model", &req.Model}, {"on_inconsistent", &req.OnInconsistent}, {"x_name", &req.XName}, {"y_name", &req.YName}} {
 		*f.to = q.Get(f.name)
 	}
+	for _, name := range []string{"x_name", "y_name", "x_unit", "y_unit", "shared_name"} {
+		if err := nameLength("query parameter "+name, q.Get(name)); err != nil {
+			return err
+		}
+	}
 	for _, f := range []struct {
 		name string
 		to   *string
@@ -452,14 +623,14 @@ func CalibrationOptionsFromQuery(q url.Values, req *CalibrationRequest) error {
 		if s := q.Get("trials"); s != "" {
 			n, err := strconv.Atoi(s)
 			if err != nil {
-				return Invalid("query parameter trials", fmt.Sprintf("%q is not an integer", truncate(s)))
+				return Invalid("query parameter trials", fmt.Sprintf("%q is not an integer", Truncate(s)))
 			}
 			req.MonteCarlo.Trials = n
 		}
 		if s := q.Get("seed"); s != "" {
 			v, err := strconv.ParseUint(s, 10, 64)
 			if err != nil {
-				return Invalid("query parameter seed", fmt.Sprintf("%q is not a non-negative integer", truncate(s)))
+				return Invalid("query parameter seed", fmt.Sprintf("%q is not a non-negative integer", Truncate(s)))
 			}
 			req.MonteCarlo.Seed = &v
 		}

@@ -2,10 +2,9 @@ package wire
 
 import (
 	"bytes"
-	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
+	"math"
 	"net/url"
 	"regexp"
 	"slices"
@@ -95,171 +94,309 @@ func (a *Allowable) allowable() *study.Allowable {
 
 // UnmarshalJSON decodes an allowable bias strictly.
 func (a *Allowable) UnmarshalJSON(b []byte) error {
-	type plain Allowable
-	var p plain
-	if err := decodeStrict(bytes.NewReader(b), &p); err != nil {
-		return err
-	}
-	*a = Allowable(p)
-	return nil
+	p := &pointParser{b: b}
+	*a = Allowable{}
+	return p.document("", func(key []byte) error { return p.allowableMember(a, key, "") }, allowableKeys)
 }
 
-// UnmarshalJSON takes a number or an object.
-func (l *DecisionLevel) UnmarshalJSON(b []byte) error {
-	b = bytes.TrimSpace(b)
-	if len(b) > 0 && b[0] != '{' {
-		if err := json.Unmarshal(b, &l.Level); err != nil {
-			return Invalid("", "a decision level is a number or {\"level\": ..., \"allowable_bias\": {...}}")
+var allowableKeys = []string{"absolute", "percent"}
+
+func (p *pointParser) allowableMember(a *Allowable, key []byte, ptr string) error {
+	switch string(key) {
+	case "absolute":
+		return p.optNumber(ptr+"/absolute", &a.Absolute)
+	case "percent":
+		return p.optNumber(ptr+"/percent", &a.Percent)
+	}
+	return p.unknownKey(ptr, key, allowableKeys)
+}
+
+// allowable reads an allowable bias or null.
+func (p *pointParser) allowable(ptr string) (*Allowable, error) {
+	if p.null() {
+		return nil, nil
+	}
+	a := &Allowable{}
+	return a, p.object(ptr, func(key []byte) error { return p.allowableMember(a, key, ptr) }, allowableKeys)
+}
+
+var levelKeys = []string{"level", "allowable_bias"}
+
+// decisionLevel reads a number or {"level": ..., "allowable_bias": {...}}.
+func (p *pointParser) decisionLevel(ptr string) (DecisionLevel, error) {
+	var l DecisionLevel
+	if p.pos < len(p.b) && p.b[p.pos] != '{' {
+		v, err := p.number(ptr)
+		if err != nil {
+			err = Invalid(ptr, "a decision level is a number or {\"level\": ..., \"allowable_bias\": {...}}")
 		}
-		return nil
+		l.Level = v
+		return l, err
 	}
-	var o struct {
-		Level         *float64   `json:"level"`
-		AllowableBias *Allowable `json:"allowable_bias"`
+	var level *float64
+	err := p.object(ptr, func(key []byte) error {
+		switch string(key) {
+		case "level":
+			return p.optNumber(ptr+"/level", &level)
+		case "allowable_bias":
+			a, err := p.allowable(ptr + "/allowable_bias")
+			l.AllowableBias = a
+			return err
+		}
+		return p.unknownKey(ptr, key, levelKeys)
+	}, levelKeys)
+	if err != nil {
+		return l, err
 	}
-	if err := decodeStrict(bytes.NewReader(b), &o); err != nil {
-		return err
+	if level == nil {
+		return l, Invalid(ptr+"/level", "level is required")
 	}
-	if o.Level == nil {
-		return Invalid("/level", "level is required")
-	}
-	l.Level, l.AllowableBias = *o.Level, o.AllowableBias
-	return nil
+	l.Level = *level
+	return l, nil
 }
 
-// compareJSON is the wire form, decoded field by field so that every
-// error names its place.
-type compareJSON struct {
-	Samples        []json.RawMessage `json:"samples"`
-	XName          string            `json:"x_name"`
-	YName          string            `json:"y_name"`
-	Unit           string            `json:"unit"`
-	DecisionLevels []json.RawMessage `json:"decision_levels"`
-	AllowableBias  json.RawMessage   `json:"allowable_bias"`
-	ErrorModel     string            `json:"error_model"`
-	Lambda         *float64          `json:"lambda"`
-	Confidence     *float64          `json:"confidence"`
-	Bootstrap      *BootstrapOptions `json:"bootstrap"`
-	Exclude        []string          `json:"exclude"`
-}
+var compareKeys = []string{"samples", "x_name", "y_name", "unit", "decision_levels", "allowable_bias",
+	"error_model", "lambda", "confidence", "bootstrap", "exclude"}
 
-type sampleJSON struct {
-	ID    json.RawMessage `json:"id"`
-	X     json.RawMessage `json:"x"`
-	Y     json.RawMessage `json:"y"`
-	SX    *float64        `json:"sx"`
-	SY    *float64        `json:"sy"`
-	Order *float64        `json:"order"`
-}
+var sampleKeys = []string{"id", "x", "y", "sx", "sy", "order"}
 
-// DecodeCompareJSON reads a CompareRequest strictly.
+// DecodeCompareJSON reads a CompareRequest strictly, in one pass: every
+// list (samples, replicates, decision levels, excluded ids) is counted
+// against its limit as it is read.
 func DecodeCompareJSON(r io.Reader) (*CompareRequest, error) {
-	var w compareJSON
-	if err := decodeStrict(r, &w); err != nil {
+	lim := limitsOf(r)
+	body, err := readBody(r)
+	if err != nil {
 		return nil, err
 	}
-	req := &CompareRequest{XName: w.XName, YName: w.YName, Unit: w.Unit, ErrorModel: w.ErrorModel,
-		Lambda: w.Lambda, Confidence: w.Confidence, Bootstrap: w.Bootstrap, Exclude: w.Exclude}
-	for i, raw := range w.Samples {
-		ptr := fmt.Sprintf("/samples/%d", i)
-		var sj sampleJSON
-		if err := decodeStrict(bytes.NewReader(raw), &sj); err != nil {
-			return nil, prefixedErr(err, ptr)
-		}
-		s := Sample{SX: sj.SX, SY: sj.SY, Order: sj.Order}
-		var err error
-		if s.ID, err = parseID(sj.ID); err != nil {
-			return nil, Invalid(ptr+"/id", err.Error())
-		}
-		if s.X, err = parseValues(sj.X, ptr+"/x"); err != nil {
-			return nil, err
-		}
-		if s.Y, err = parseValues(sj.Y, ptr+"/y"); err != nil {
-			return nil, err
-		}
-		req.Samples = append(req.Samples, s)
-	}
-	for i, raw := range w.DecisionLevels {
-		var l DecisionLevel
-		if err := l.UnmarshalJSON(raw); err != nil {
-			return nil, prefixedErr(err, fmt.Sprintf("/decision_levels/%d", i))
-		}
-		req.DecisionLevels = append(req.DecisionLevels, l)
-	}
-	if len(w.AllowableBias) > 0 && string(w.AllowableBias) != "null" {
-		var a Allowable
-		if err := a.UnmarshalJSON(w.AllowableBias); err != nil {
-			return nil, prefixedErr(err, "/allowable_bias")
-		}
-		req.AllowableBias = &a
+	p := &pointParser{b: body, lim: lim}
+	req := &CompareRequest{}
+	err = p.document("", func(key []byte) error { return p.compareMember(req, key) }, compareKeys)
+	if err != nil {
+		return nil, err
 	}
 	return req, nil
 }
 
-func prefixedErr(err error, prefix string) error {
-	var p *Problem
-	if errors.As(err, &p) {
-		return Prefixed(p, prefix)
+// compareMember reads the value of one member of a comparison request.
+func (p *pointParser) compareMember(req *CompareRequest, key []byte) error {
+	var err error
+	switch string(key) {
+	case "samples":
+		req.Samples = nil
+		if n := bytes.Count(p.b[p.pos:], []byte{'{'}); n > 0 {
+			req.Samples = make([]Sample, 0, min(n, capLimit(p.lim.MaxPoints)))
+		}
+		return p.array("/samples", p.lim.MaxPoints, KindTooLarge, "samples", func(i int) error {
+			s, err := p.sample(i)
+			req.Samples = append(req.Samples, s)
+			return err
+		})
+	case "x_name":
+		req.XName, err = p.text("/x_name", true)
+	case "y_name":
+		req.YName, err = p.text("/y_name", true)
+	case "unit":
+		req.Unit, err = p.text("/unit", true)
+	case "error_model":
+		req.ErrorModel, err = p.text("/error_model", true)
+	case "decision_levels":
+		req.DecisionLevels = nil
+		return p.array("/decision_levels", p.lim.MaxAt, KindInvalid, "decision levels", func(i int) error {
+			l, err := p.decisionLevel(fmt.Sprintf("/decision_levels/%d", i))
+			req.DecisionLevels = append(req.DecisionLevels, l)
+			return err
+		})
+	case "allowable_bias":
+		req.AllowableBias, err = p.allowable("/allowable_bias")
+	case "lambda":
+		err = p.optNumber("/lambda", &req.Lambda)
+	case "confidence":
+		err = p.optNumber("/confidence", &req.Confidence)
+	case "bootstrap":
+		req.Bootstrap = nil
+		if !p.null() {
+			req.Bootstrap = &BootstrapOptions{}
+			err = p.bootstrap("/bootstrap", req.Bootstrap)
+		}
+	case "exclude":
+		req.Exclude = nil
+		return p.array("/exclude", p.lim.MaxPoints, KindTooLarge, "excluded ids", func(i int) error {
+			s, err := p.text(fmt.Sprintf("/exclude/%d", i), false)
+			req.Exclude = append(req.Exclude, s)
+			return err
+		})
+	default:
+		return p.unknownKey("", key, compareKeys)
 	}
 	return err
 }
 
-func parseID(raw json.RawMessage) (string, error) {
-	if len(raw) == 0 || string(raw) == "null" {
+// capLimit is a limit as a capacity bound (0: none).
+func capLimit(n int) int {
+	if n <= 0 {
+		return math.MaxInt
+	}
+	return n
+}
+
+// samplePtr is /list/i[/field[/k]] (list "samples" when empty), formatted
+// only on an error.
+type samplePtr struct {
+	i     int
+	field string
+	list  string
+}
+
+func (s samplePtr) String() string {
+	l := s.list
+	if l == "" {
+		l = "samples"
+	}
+	if s.field == "" {
+		return fmt.Sprintf("/%s/%d", l, s.i)
+	}
+	return fmt.Sprintf("/%s/%d/%s", l, s.i, s.field)
+}
+
+// sample reads one sample object.
+func (p *pointParser) sample(i int) (Sample, error) {
+	var s Sample
+	ptr := samplePtr{i: i}
+	if p.pos >= len(p.b) || p.b[p.pos] != '{' {
+		if _, err := p.skip(0); err != nil {
+			return s, err
+		}
+		return s, Invalid(ptr.String(), "each sample must be an object such as {\"id\": \"S1\", \"x\": [1.2, 1.3], \"y\": 1.4}")
+	}
+	var seen [6]bool // by index in sampleKeys
+	p.pos++
+	p.ws()
+	if p.pos < len(p.b) && p.b[p.pos] == '}' {
+		p.pos++
+	} else {
+		for {
+			p.ws()
+			kb, ok := p.key()
+			if !ok {
+				return s, p.syntax("a quoted key")
+			}
+			k := -1
+			switch string(kb) {
+			case "id":
+				k = 0
+			case "x":
+				k = 1
+			case "y":
+				k = 2
+			case "sx":
+				k = 3
+			case "sy":
+				k = 4
+			case "order":
+				k = 5
+			default:
+				return s, p.unknownKey(ptr.String(), kb, sampleKeys)
+			}
+			if seen[k] {
+				return s, Invalid(ptr.String()+"/"+sampleKeys[k], fmt.Sprintf("%q appears twice", sampleKeys[k]))
+			}
+			seen[k] = true
+			p.ws()
+			if p.pos >= len(p.b) || p.b[p.pos] != ':' {
+				return s, p.syntax("':' after the key")
+			}
+			p.pos++
+			p.ws()
+			fp := samplePtr{i: i, field: sampleKeys[k]}
+			var err error
+			switch k {
+			case 0:
+				s.ID, err = p.sampleID(fp)
+			case 1:
+				s.X, err = p.values(fp)
+			case 2:
+				s.Y, err = p.values(fp)
+			case 3:
+				s.SX, err = p.optLazyNumber(fp.String)
+			case 4:
+				s.SY, err = p.optLazyNumber(fp.String)
+			case 5:
+				s.Order, err = p.optLazyNumber(fp.String)
+			}
+			if err != nil {
+				return s, err
+			}
+			p.ws()
+			if p.pos >= len(p.b) {
+				return s, p.syntax("',' or '}'")
+			}
+			if p.b[p.pos] == ',' {
+				p.pos++
+				continue
+			}
+			if p.b[p.pos] == '}' {
+				p.pos++
+				break
+			}
+			return s, p.syntax("',' or '}'")
+		}
+	}
+	if s.X == nil {
+		return s, Invalid(ptr.String()+"/x", "required: a number, or an array of replicate numbers")
+	}
+	if s.Y == nil {
+		return s, Invalid(ptr.String()+"/y", "required: a number, or an array of replicate numbers")
+	}
+	return s, nil
+}
+
+// sampleID reads a string or number id (null: none).
+func (p *pointParser) sampleID(fp samplePtr) (string, error) {
+	if p.null() {
 		return "", nil
 	}
-	var s string
-	if json.Unmarshal(raw, &s) == nil {
-		return s, nil
+	if p.pos < len(p.b) && p.b[p.pos] == '"' {
+		return p.text(fp.String(), false)
 	}
-	var f float64
-	if json.Unmarshal(raw, &f) == nil {
-		return strconv.FormatFloat(f, 'g', -1, 64), nil
+	v, ok, err := p.num()
+	if !ok || err != nil {
+		if !ok {
+			if _, serr := p.skip(0); serr != nil {
+				return "", serr
+			}
+		}
+		return "", Invalid(fp.String(), "id must be a string or a number")
 	}
-	return "", errors.New("id must be a string or a number")
+	return strconv.FormatFloat(v, 'g', -1, 64), nil
 }
 
-// parseValues takes a number or an array of 1 to 20 numbers (replicates).
-func parseValues(raw json.RawMessage, ptr string) ([]float64, error) {
-	raw = bytes.TrimSpace(raw)
-	if len(raw) == 0 || string(raw) == "null" {
-		return nil, Invalid(ptr, "required: a number, or an array of replicate numbers")
+// values reads a number or an array of 1 to maxReplicates numbers.
+func (p *pointParser) values(fp samplePtr) ([]float64, error) {
+	if p.null() {
+		return nil, Invalid(fp.String(), "required: a number, or an array of replicate numbers")
 	}
-	if raw[0] == '[' {
-		var items []json.RawMessage
-		if err := json.Unmarshal(raw, &items); err != nil {
-			return nil, Invalid(ptr, "must be a number or an array of numbers")
+	if p.pos < len(p.b) && p.b[p.pos] == '[' {
+		var buf [maxReplicates]float64
+		out := buf[:0]
+		err := p.array(fp.String(), maxReplicates, KindInvalid, "replicate values", func(k int) error {
+			v, err := p.lazyNumber(func() string { return fmt.Sprintf("%v/%d", fp, k) })
+			out = append(out, v)
+			return err
+		})
+		if err != nil {
+			return nil, err
 		}
-		if len(items) == 0 || len(items) > 20 {
-			return nil, Invalid(ptr, "give 1 to 20 replicate values")
+		if len(out) == 0 {
+			return nil, Invalid(fp.String(), fmt.Sprintf("give 1 to %d replicate values", maxReplicates))
 		}
-		out := make([]float64, len(items))
-		for k, it := range items {
-			v, err := parseNumber(it)
-			if err != nil {
-				return nil, Invalid(fmt.Sprintf("%s/%d", ptr, k), err.Error())
-			}
-			out[k] = v
-		}
-		return out, nil
+		return slices.Clone(out), nil
 	}
-	v, err := parseNumber(raw)
+	v, err := p.lazyNumber(fp.String)
 	if err != nil {
-		return nil, Invalid(ptr, err.Error())
+		return nil, err
 	}
 	return []float64{v}, nil
-}
-
-func parseNumber(raw json.RawMessage) (float64, error) {
-	var v float64
-	if err := json.Unmarshal(raw, &v); err != nil {
-		var te *json.UnmarshalTypeError
-		if errors.As(err, &te) && strings.HasPrefix(te.Value, "number") {
-			return 0, errors.New("the number is outside the double-precision range")
-		}
-		return 0, fmt.Errorf("must be a number, not %s", truncate(string(raw)))
-	}
-	return v, nil
 }
 
 var replicateColumn = regexp.MustCompile(`^([xy])_?([0-9]{1,2})$`)
@@ -270,6 +407,7 @@ var replicateColumn = regexp.MustCompile(`^([xy])_?([0-9]{1,2})$`)
 // replicate cells are allowed as long as each sample keeps one value per
 // method.
 func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
+	lim := limitsOf(r)
 	body, err := csvBody(r)
 	if err != nil {
 		return nil, err
@@ -294,7 +432,7 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 			return nil, Invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
 		}
 		if seen[name] {
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(name)), fmt.Sprintf("column %q appears twice", name))
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(name)), fmt.Sprintf("column %q appears twice", name))
 		}
 		seen[name] = true
 		switch {
@@ -306,15 +444,24 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 			if len(header) == 1 && strings.Contains(h, ";") {
 				return nil, Invalid(fmt.Sprintf("row %d", line), "the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
 			}
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
-				"unknown column %q (known: id, order, x or x1, x2, …, y or y1, y2, …, sx, sy)", truncate(h)))
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(h)), fmt.Sprintf(
+				"unknown column %q (known: id, order, x or x1, x2, …, y or y1, y2, …, sx, sy)", Truncate(h)))
 		}
 	}
-	hasX, hasY := false, false
-	for _, c := range cols {
-		hasX = hasX || c.kind == "x"
-		hasY = hasY || c.kind == "y"
+	nx, ny := 0, 0
+	for j, c := range cols {
+		switch c.kind {
+		case "x":
+			nx++
+		case "y":
+			ny++
+		}
+		if nx > maxReplicates || ny > maxReplicates {
+			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(header[j])),
+				fmt.Sprintf("at most %d replicate columns per method", maxReplicates))
+		}
 	}
+	hasX, hasY := nx > 0, ny > 0
 	if !hasX || !hasY {
 		return nil, Invalid(fmt.Sprintf("row %d", line), "the header must name x (or x1, x2, …) and y (or y1, y2, …) columns")
 	}
@@ -328,14 +475,17 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 			return nil, csvReadError(err)
 		}
 		row, _ := cr.FieldPos(0)
+		if lim.MaxPoints > 0 && len(req.Samples) >= lim.MaxPoints {
+			return nil, tooManyRows(row, lim.MaxPoints, "samples")
+		}
 		var s Sample
 		for j, f := range rec {
 			f = strings.TrimSpace(f)
 			where := fmt.Sprintf("row %d, column %s", row, strings.ToLower(strings.TrimSpace(header[j])))
 			switch k := cols[j].kind; k {
 			case "id":
-				if !utf8.ValidString(f) {
-					return nil, Invalid(where, "the id is not valid UTF-8 text")
+				if err := csvID([]byte(f), row); err != nil {
+					return nil, err
 				}
 				s.ID = f
 			case "x", "y":
@@ -395,6 +545,11 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 	}
 	num := func(name string) (*float64, error) { return queryFloat(q, name) }
 	req.XName, req.YName, req.Unit, req.ErrorModel = q.Get("x_name"), q.Get("y_name"), q.Get("unit"), q.Get("error_model")
+	for _, name := range []string{"x_name", "y_name", "unit", "error_model"} {
+		if err := nameLength("query parameter "+name, q.Get(name)); err != nil {
+			return err
+		}
+	}
 	var err error
 	if req.Lambda, err = num("lambda"); err != nil {
 		return err
@@ -421,6 +576,14 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 		req.DecisionLevels = append(req.DecisionLevels, DecisionLevel{Level: v})
 	}
 	req.Exclude = SplitList(q.Get("exclude"))
+	if lim := limitsOf(nil); len(req.Exclude) > lim.MaxPoints {
+		return tooMany("query parameter exclude", lim.MaxPoints, "excluded ids", KindTooLarge)
+	}
+	for _, id := range req.Exclude {
+		if err := nameLength("query parameter exclude", id); err != nil {
+			return err
+		}
+	}
 	fq := url.Values{}
 	for _, k := range []string{"resamples", "seed", "scheme"} {
 		if v := q.Get(k); v != "" {
@@ -450,4 +613,22 @@ func (req *CompareRequest) SetOptions(o *CompareRequest) {
 	samples, csv, rows := req.Samples, req.csv, req.rows
 	*req = *o
 	req.Samples, req.csv, req.rows = samples, csv, rows
+}
+
+// nameLength refuses a name longer than maxNameBytes.
+func nameLength(ptr, s string) error {
+	if len(s) > maxNameBytes {
+		return Invalid(ptr, fmt.Sprintf("at most %d bytes, not %d", maxNameBytes, len(s)))
+	}
+	return nil
+}
+
+// optLazyNumber reads a number or null, formatting the pointer only on an
+// error.
+func (p *pointParser) optLazyNumber(ptr func() string) (*float64, error) {
+	if p.null() {
+		return nil, nil
+	}
+	v, err := p.lazyNumber(ptr)
+	return &v, err
 }

@@ -6,7 +6,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"math"
 	"net/http"
 	"strconv"
 	"strings"
@@ -24,15 +23,34 @@ var csvColumns = []string{"x", "y", "sx", "sy", "r", "id", "order"}
 
 // DecodeCSV reads a dataset from CSV. Errors are *Problem values whose
 // pointers read "row N, column C".
+// Rows are counted against the limits (the server's, for a *Body it read)
+// as they are read.
 func DecodeCSV(r io.Reader) (*Dataset, error) {
+	lim := limitsOf(r)
 	body, err := csvBody(r)
 	if err != nil {
 		return nil, err
 	}
 	if bytes.IndexByte(body, '"') < 0 {
-		return decodeCSVPlain(body)
+		return decodeCSVPlain(body, lim.MaxPoints)
 	}
-	return decodeCSVReader(body)
+	return decodeCSVReader(body, lim.MaxPoints)
+}
+
+// tooManyRows is the problem for the data row past the limit.
+func tooManyRows(line, limit int, what string) *Problem {
+	return tooMany(fmt.Sprintf("row %d", line), limit, what, KindTooLarge)
+}
+
+// csvID checks an id cell.
+func csvID(f []byte, line int) error {
+	if !utf8.Valid(f) {
+		return Invalid(fmt.Sprintf("row %d, column id", line), "the id is not valid UTF-8 text")
+	}
+	if len(f) > maxNameBytes {
+		return Invalid(fmt.Sprintf("row %d, column id", line), fmt.Sprintf("an id has at most %d bytes, not %d", maxNameBytes, len(f)))
+	}
+	return nil
 }
 
 // csvBody reads a CSV body and drops a UTF-8 byte-order mark.
@@ -54,7 +72,7 @@ func newCSVReader(body []byte) *csv.Reader {
 }
 
 // decodeCSVReader is the general path, through encoding/csv (quoted fields).
-func decodeCSVReader(body []byte) (*Dataset, error) {
+func decodeCSVReader(body []byte, maxRows int) (*Dataset, error) {
 	cr := newCSVReader(body)
 	cr.ReuseRecord = true
 
@@ -80,6 +98,9 @@ func decodeCSVReader(body []byte) (*Dataset, error) {
 			return nil, csvReadError(err)
 		}
 		row, _ := cr.FieldPos(0)
+		if maxRows > 0 && d.Len() >= maxRows {
+			return nil, tooManyRows(row, maxRows, "points per dataset")
+		}
 		if err := d.addRecord(rec, cols, row); err != nil {
 			return nil, err
 		}
@@ -106,8 +127,8 @@ func csvHeader(header []string, line int) ([]int, [7]bool, error) {
 				return nil, seen, Invalid(fmt.Sprintf("row %d", line),
 					"the first row must be a header naming the columns, e.g. x,y,sx,sy")
 			}
-			return nil, seen, Invalid(fmt.Sprintf("row %d, column %s", line, truncate(h)), fmt.Sprintf(
-				"unknown column %q (known: x, y, sx, sy, r, id, order)", truncate(h)))
+			return nil, seen, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(h)), fmt.Sprintf(
+				"unknown column %q (known: x, y, sx, sy, r, id, order)", Truncate(h)))
 		}
 		if seen[k] {
 			return nil, seen, Invalid(fmt.Sprintf("row %d, column %s", line, name), fmt.Sprintf("column %q appears twice", name))
@@ -151,8 +172,8 @@ func (d *Dataset) addRecord(rec []string, cols []int, row int) error {
 	for j, f := range rec {
 		k := cols[j]
 		if k == 5 {
-			if !utf8.ValidString(f) {
-				return Invalid(fmt.Sprintf("row %d, column id", row), "the id is not valid UTF-8 text")
+			if err := csvID([]byte(f), row); err != nil {
+				return err
 			}
 			d.ID = append(d.ID, strings.Clone(f))
 			continue
@@ -193,7 +214,7 @@ func (d *Dataset) finishCSV() (*Dataset, error) {
 
 // decodeCSVPlain is the fast path for CSV without quotes: one scan of the
 // body, numbers parsed in place, the columns sized once from the line count.
-func decodeCSVPlain(body []byte) (*Dataset, error) {
+func decodeCSVPlain(body []byte, maxRows int) (*Dataset, error) {
 	var d *Dataset
 	var cols []int
 	line := 0
@@ -231,8 +252,11 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 			if cols, seen, err = csvHeader(strs, line); err != nil {
 				return nil, err
 			}
-			d = newCSVDataset(seen, bytes.Count(body, []byte{'\n'})+1)
+			d = newCSVDataset(seen, min(bytes.Count(body, []byte{'\n'})+1, capLimit(maxRows)))
 			continue
+		}
+		if maxRows > 0 && d.Len() >= maxRows {
+			return nil, tooManyRows(line, maxRows, "points per dataset")
 		}
 		if len(fields) != len(cols) {
 			return nil, Invalid(fmt.Sprintf("row %d, column 1", line), "this row has a different number of fields from the header")
@@ -241,8 +265,8 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 			k := cols[j]
 			if k == 5 {
 				f = bytes.TrimLeftFunc(f, unicode.IsSpace)
-				if !utf8.Valid(f) {
-					return nil, Invalid(fmt.Sprintf("row %d, column id", line), "the id is not valid UTF-8 text")
+				if err := csvID(f, line); err != nil {
+					return nil, err
 				}
 				d.ID = append(d.ID, string(f))
 				continue
@@ -265,29 +289,12 @@ func decodeCSVPlain(body []byte) (*Dataset, error) {
 	return d.finishCSV()
 }
 
+// parseCell reads a CSV cell or query value: a plain decimal (parseFloat).
 func parseCell(f string) (float64, error) {
-	f = strings.TrimSpace(f)
-	if f == "" {
-		return 0, errors.New("the cell is empty; every row needs a number in this column")
-	}
-	v, err := strconv.ParseFloat(f, 64)
-	if err == nil && strings.ContainsAny(f, "xX_") {
-		// strconv also reads Go's hexadecimal floats and digit
-		// separators; a CSV cell is a decimal number.
-		err = strconv.ErrSyntax
-	}
-	if err != nil {
-		var ne *strconv.NumError
-		if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
-			return 0, fmt.Errorf("%s is outside the double-precision range", truncate(f))
-		}
-		if strings.Count(f, ",") == 1 || strings.Count(f, ";") > 0 {
-			return 0, fmt.Errorf("%q is not a number (use '.' as the decimal mark and ',' between columns)", truncate(f))
-		}
-		return 0, fmt.Errorf("%q is not a number", truncate(f))
-	}
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, fmt.Errorf("%s is not a finite number", truncate(f))
+	b := []byte(strings.TrimSpace(f))
+	v, ok := parseFloat(b)
+	if !ok {
+		return 0, numberError(b)
 	}
 	return v, nil
 }

@@ -49,6 +49,7 @@ type pointParser struct {
 	b   []byte
 	pos int
 	d   *Dataset
+	lim Limits // zero fields: no limit
 }
 
 func (p *pointParser) ws() {
@@ -79,6 +80,9 @@ func (p *pointParser) parse() error {
 	// One '{' per point: counting them (a fast byte scan) sizes the columns
 	// exactly, so they are allocated once.
 	hint := bytes.Count(p.b[p.pos:], []byte{'{'})
+	if p.lim.MaxPoints > 0 {
+		hint = min(hint, p.lim.MaxPoints)
+	}
 	d.X = make([]float64, 0, hint)
 	d.Y = make([]float64, 0, hint)
 	p.ws()
@@ -87,6 +91,9 @@ func (p *pointParser) parse() error {
 		return nil
 	}
 	for i := 0; ; i++ {
+		if p.lim.MaxPoints > 0 && i >= p.lim.MaxPoints {
+			return tooMany("/points", p.lim.MaxPoints, "points per dataset", KindTooLarge)
+		}
 		p.ws()
 		if err := p.point(i); err != nil {
 			return err
@@ -106,6 +113,9 @@ func (p *pointParser) parse() error {
 		}
 	}
 }
+
+// pointKeys are the members of a point.
+var pointKeys = []string{"x", "y", "sx", "sy", "r", "id", "order"}
 
 const (
 	fX = 1 << iota
@@ -179,11 +189,11 @@ func (p *pointParser) point(i int) error {
 			case "id":
 				bit = fID
 			default:
-				return p.fail(ptr.s()+"/"+escapePointer(key), "unknown field %q (known: x, y, sx, sy, r, id, order)", key)
+				return p.unknownKey(ptr.s(), kb, pointKeys)
 			}
 			fptr := fieldPtr{ptr, key}
 			if seen&bit != 0 {
-				return p.fail(fptr.s(), "field %q appears twice", key)
+				return p.fail(fptr.s(), "%q appears twice", key)
 			}
 			if p.null() {
 				if bit == fX || bit == fY {
@@ -192,6 +202,9 @@ func (p *pointParser) point(i int) error {
 			} else if bit == fID {
 				seen |= bit
 				if s, ok := p.str(); ok {
+					if len(s) > maxNameBytes {
+						return p.fail(fptr.s(), "an id has at most %d bytes, not %d", maxNameBytes, len(s))
+					}
 					id = s
 				} else if v, ok, err := p.num(); ok {
 					if err != nil {
@@ -206,7 +219,7 @@ func (p *pointParser) point(i int) error {
 				v, ok, err := p.num()
 				if !ok {
 					if s, isStr := p.str(); isStr {
-						return p.fail(fptr.s(), "%s must be a JSON number, not the string %q", key, truncate(s))
+						return p.fail(fptr.s(), "%s must be a JSON number, not the string %q", key, Truncate(s))
 					}
 					return p.fail(fptr.s(), "%s must be a number", key)
 				}
@@ -404,16 +417,25 @@ func (p *pointParser) num() (v float64, ok bool, err error) {
 	p.pos = j
 	v, ok = parseFloat(s)
 	if !ok {
-		return 0, true, fmt.Errorf("%s is outside the double-precision range", truncate(string(s)))
+		return 0, true, numberError(s)
 	}
 	return v, true, nil
 }
 
-func truncate(s string) string {
-	if len(s) > 40 {
-		return s[:37] + "..."
+// maxEcho bounds the bytes of client text echoed in a problem.
+const maxEcho = 64
+
+// Truncate shortens client text echoed in a problem to maxEcho bytes (at a
+// character boundary), marking the cut.
+func Truncate(s string) string {
+	if len(s) <= maxEcho {
+		return s
 	}
-	return s
+	cut := maxEcho - 3
+	for cut > 0 && !utf8.RuneStart(s[cut]) {
+		cut--
+	}
+	return s[:cut] + "..."
 }
 
 // escapePointer escapes a key for use in an RFC 6901 pointer.

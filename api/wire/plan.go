@@ -1,7 +1,7 @@
 package wire
 
 import (
-	"encoding/json"
+	"bytes"
 	"fmt"
 	"io"
 
@@ -68,38 +68,195 @@ type PlanDifference struct {
 	ProportionalPercent float64 `json:"proportional_percent"`
 }
 
-// planJSON decodes the levels and allowable bias entry by entry, so that
-// their errors name their place.
-type planJSON struct {
-	PlanRequest
-	DecisionLevels []json.RawMessage `json:"decision_levels"`
-	AllowableBias  json.RawMessage   `json:"allowable_bias"`
-}
+var planKeys = []string{"low", "high", "spread", "levels", "error_x", "error_y", "lambda", "replicates", "sizes",
+	"target_power", "target", "max_n", "differences", "no_difference", "decision_levels", "allowable_bias",
+	"estimator", "confidence", "trials", "seed", "unit"}
 
-// DecodePlanJSON reads a PlanRequest strictly: unknown fields, trailing
-// data and values of the wrong type are errors naming their place.
+var (
+	planErrorKeys      = []string{"sd", "cv_percent"}
+	planReplicateKeys  = []string{"x", "y"}
+	planDifferenceKeys = []string{"constant", "proportional_percent"}
+)
+
+// DecodePlanJSON reads a PlanRequest strictly, in one pass: unknown,
+// repeated or case-variant keys, trailing data and values of the wrong type
+// are errors naming their place, and every list (levels, sizes,
+// differences, decision levels) is counted against the planner's limit as
+// it is read.
 func DecodePlanJSON(r io.Reader) (*PlanRequest, error) {
-	var w planJSON
-	if err := decodeStrict(r, &w); err != nil {
+	body, err := readBody(r)
+	if err != nil {
 		return nil, err
 	}
-	req := w.PlanRequest
-	req.DecisionLevels, req.AllowableBias = nil, nil
-	for i, raw := range w.DecisionLevels {
-		var l DecisionLevel
-		if err := l.UnmarshalJSON(raw); err != nil {
-			return nil, prefixedErr(err, fmt.Sprintf("/decision_levels/%d", i))
+	p := &pointParser{b: body, lim: limitsOf(r)}
+	req := &PlanRequest{}
+	err = p.document("", func(key []byte) error {
+		var err error
+		switch k := string(key); k {
+		case "low":
+			err = p.optNumber("/low", &req.Low)
+		case "high":
+			err = p.optNumber("/high", &req.High)
+		case "lambda":
+			err = p.optNumber("/lambda", &req.Lambda)
+		case "target_power":
+			err = p.optNumber("/target_power", &req.TargetPower)
+		case "confidence":
+			err = p.optNumber("/confidence", &req.Confidence)
+		case "spread":
+			req.Spread, err = p.text("/spread", true)
+		case "target":
+			req.Target, err = p.text("/target", true)
+		case "estimator":
+			req.Estimator, err = p.text("/estimator", true)
+		case "unit":
+			req.Unit, err = p.text("/unit", true)
+		case "max_n":
+			err = p.optInt("/max_n", &req.MaxN)
+		case "trials":
+			err = p.optInt("/trials", &req.Trials)
+		case "seed":
+			req.Seed = nil
+			if !p.null() {
+				var v int64
+				v, err = p.integer("/seed", true)
+				u := uint64(v)
+				req.Seed = &u
+			}
+		case "no_difference":
+			req.NoDifference, err = p.boolean("/no_difference")
+		case "levels":
+			req.Levels = nil
+			return p.array("/levels", eiv.PlanMaxN, KindInvalid, "levels", func(i int) error {
+				v, err := p.lazyNumber(func() string { return fmt.Sprintf("/levels/%d", i) })
+				req.Levels = append(req.Levels, v)
+				return err
+			})
+		case "sizes":
+			req.Sizes = nil
+			return p.array("/sizes", eiv.PlanMaxSizes, KindInvalid, "sizes", func(i int) error {
+				v, err := p.integer(fmt.Sprintf("/sizes/%d", i), false)
+				req.Sizes = append(req.Sizes, int(v))
+				return err
+			})
+		case "differences":
+			req.Differences = nil
+			return p.array("/differences", eiv.PlanMaxScenarios, KindInvalid, "differences", func(i int) error {
+				d, err := p.planDifference(fmt.Sprintf("/differences/%d", i))
+				req.Differences = append(req.Differences, d)
+				return err
+			})
+		case "decision_levels":
+			req.DecisionLevels = nil
+			return p.array("/decision_levels", eiv.PlanMaxDecisions, KindInvalid, "decision levels", func(i int) error {
+				l, err := p.decisionLevel(fmt.Sprintf("/decision_levels/%d", i))
+				req.DecisionLevels = append(req.DecisionLevels, l)
+				return err
+			})
+		case "allowable_bias":
+			req.AllowableBias, err = p.allowable("/allowable_bias")
+		case "error_x", "error_y":
+			var e *PlanError
+			e, err = p.planError("/" + k)
+			if k == "error_x" {
+				req.ErrorX = e
+			} else {
+				req.ErrorY = e
+			}
+		case "replicates":
+			req.Replicates = nil
+			if !p.null() {
+				req.Replicates = &PlanReplicates{}
+				err = p.object("/replicates", func(key []byte) error {
+					switch string(key) {
+					case "x":
+						return p.optInt("/replicates/x", &req.Replicates.X)
+					case "y":
+						return p.optInt("/replicates/y", &req.Replicates.Y)
+					}
+					return p.unknownKey("/replicates", key, planReplicateKeys)
+				}, planReplicateKeys)
+			}
+		default:
+			return p.unknownKey("", key, planKeys)
 		}
-		req.DecisionLevels = append(req.DecisionLevels, l)
+		return err
+	}, planKeys)
+	if err != nil {
+		return nil, err
 	}
-	if len(w.AllowableBias) > 0 && string(w.AllowableBias) != "null" {
-		var a Allowable
-		if err := a.UnmarshalJSON(w.AllowableBias); err != nil {
-			return nil, prefixedErr(err, "/allowable_bias")
+	return req, nil
+}
+
+// planError reads {"sd", "cv_percent"} or null.
+func (p *pointParser) planError(ptr string) (*PlanError, error) {
+	if p.null() {
+		return nil, nil
+	}
+	e := &PlanError{}
+	return e, p.object(ptr, func(key []byte) error {
+		switch string(key) {
+		case "sd":
+			return p.zeroNumber(ptr+"/sd", &e.SD)
+		case "cv_percent":
+			return p.zeroNumber(ptr+"/cv_percent", &e.CVPercent)
 		}
-		req.AllowableBias = &a
+		return p.unknownKey(ptr, key, planErrorKeys)
+	}, planErrorKeys)
+}
+
+// planDifference reads {"constant", "proportional_percent"}.
+func (p *pointParser) planDifference(ptr string) (PlanDifference, error) {
+	var d PlanDifference
+	return d, p.object(ptr, func(key []byte) error {
+		switch string(key) {
+		case "constant":
+			return p.zeroNumber(ptr+"/constant", &d.Constant)
+		case "proportional_percent":
+			return p.zeroNumber(ptr+"/proportional_percent", &d.ProportionalPercent)
+		}
+		return p.unknownKey(ptr, key, planDifferenceKeys)
+	}, planDifferenceKeys)
+}
+
+// zeroNumber reads a number into dst; null leaves dst as it is (as
+// encoding/json does for a plain number field).
+func (p *pointParser) zeroNumber(ptr string, dst *float64) error {
+	if p.null() {
+		return nil
 	}
-	return &req, nil
+	v, err := p.number(ptr)
+	*dst = v
+	return err
+}
+
+// optInt reads an integer in the int range into dst; null leaves dst as it
+// is.
+func (p *pointParser) optInt(ptr string, dst *int) error {
+	if p.null() {
+		return nil
+	}
+	v, err := p.integer(ptr, false)
+	*dst = int(v)
+	return err
+}
+
+// boolean reads true or false (null: false).
+func (p *pointParser) boolean(ptr string) (bool, error) {
+	switch {
+	case p.null():
+		return false, nil
+	case bytes.HasPrefix(p.b[p.pos:], []byte("true")):
+		p.pos += 4
+		return true, nil
+	case bytes.HasPrefix(p.b[p.pos:], []byte("false")):
+		p.pos += 5
+		return false, nil
+	}
+	if _, err := p.skip(0); err != nil {
+		return false, err
+	}
+	return false, Invalid(ptr, "must be true or false")
 }
 
 // Options are the plan's options with the server's settings.

@@ -58,6 +58,8 @@ var (
 	KindMethod        = Kind{"method-not-allowed", "Method not allowed", http.StatusMethodNotAllowed}
 	KindNotFound      = Kind{"not-found", "Not found", http.StatusNotFound}
 	KindBusy          = Kind{"busy", "All compute slots are busy", http.StatusServiceUnavailable}
+	KindBodyBudget    = Kind{"body-budget-full", "The server's memory budget for request bodies is full", http.StatusServiceUnavailable}
+	KindBodyTimeout   = Kind{"body-timeout", "The request body did not arrive in time", http.StatusRequestTimeout}
 	KindDeadline      = Kind{"deadline-exceeded", "The computation ran past the request deadline", http.StatusServiceUnavailable}
 	KindUnauthorized  = Kind{"unauthorized", "Missing or invalid API key", http.StatusUnauthorized}
 	KindInternal      = Kind{"internal", "Internal error", http.StatusInternalServerError}

@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"encoding/hex"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"net/url"
@@ -264,10 +263,97 @@ type ReviseRequest struct {
 	Options json.RawMessage `json:"options,omitempty"`
 }
 
-// DecodeRevise reads a ReviseRequest strictly and checks it.
+// maxReasonBytes bounds a revision's reasons and a signature's comment.
+const maxReasonBytes = 4096
+
+var (
+	reviseKeys    = []string{"reason", "based_on", "exclude", "options"}
+	exclusionKeys = []string{"id", "reason"}
+	signKeys      = []string{"meaning", "comment"}
+)
+
+// reason reads a string of at most maxReasonBytes (null: "").
+func (p *pointParser) reason(ptr string) (string, error) {
+	if p.null() {
+		return "", nil
+	}
+	s, ok := p.str()
+	if !ok {
+		if _, err := p.skip(0); err != nil {
+			return "", err
+		}
+		return "", Invalid(ptr, "must be a string")
+	}
+	if len(s) > maxReasonBytes {
+		return "", Invalid(ptr, fmt.Sprintf("at most %d bytes, not %d", maxReasonBytes, len(s)))
+	}
+	return s, nil
+}
+
+// DecodeRevise reads a ReviseRequest strictly, in one pass (the excluded
+// points counted against the limit as they are read), and checks it.
 func DecodeRevise(r io.Reader) (*ReviseRequest, error) {
+	body, err := readBody(r)
+	if err != nil {
+		return nil, err
+	}
+	p := &pointParser{b: body, lim: limitsOf(r)}
 	var req ReviseRequest
-	if err := decodeStrict(r, &req); err != nil {
+	err = p.document("", func(key []byte) error {
+		var err error
+		switch string(key) {
+		case "reason":
+			req.Reason, err = p.reason("/reason")
+		case "based_on":
+			req.BasedOn = nil
+			if !p.null() {
+				var v int64
+				v, err = p.integer("/based_on", false)
+				n := int(v)
+				req.BasedOn = &n
+			}
+		case "exclude":
+			req.Exclude = nil
+			return p.array("/exclude", p.lim.MaxPoints, KindTooLarge, "excluded points", func(i int) error {
+				var x ExclusionIn
+				ptr := fmt.Sprintf("/exclude/%d", i)
+				err := p.object(ptr, func(key []byte) error {
+					var err error
+					switch string(key) {
+					case "id":
+						x.ID, err = p.text(ptr+"/id", true)
+					case "reason":
+						x.Reason, err = p.reason(ptr + "/reason")
+					default:
+						return p.unknownKey(ptr, key, exclusionKeys)
+					}
+					return err
+				}, exclusionKeys)
+				req.Exclude = append(req.Exclude, x)
+				return err
+			})
+		case "options":
+			req.Options = nil
+			if p.null() {
+				return nil
+			}
+			start := p.pos
+			if p.pos >= len(p.b) || p.b[p.pos] != '{' {
+				if _, err := p.skip(0); err != nil {
+					return err
+				}
+				return Invalid("/options", "options is a JSON object of the request's options")
+			}
+			if _, err := p.skip(0); err != nil {
+				return err
+			}
+			req.Options = json.RawMessage(p.b[start:p.pos:p.pos])
+		default:
+			return p.unknownKey("", key, reviseKeys)
+		}
+		return err
+	}, reviseKeys)
+	if err != nil {
 		return nil, err
 	}
 	if strings.TrimSpace(req.Reason) == "" {
@@ -290,12 +376,6 @@ func DecodeRevise(r io.Reader) (*ReviseRequest, error) {
 	if len(req.Exclude) == 0 && len(req.Options) == 0 {
 		return nil, Invalid("", "a revision excludes points or changes options")
 	}
-	if len(req.Options) > 0 {
-		var m map[string]json.RawMessage
-		if err := json.Unmarshal(req.Options, &m); err != nil {
-			return nil, Invalid("/options", "options is a JSON object of the request's options")
-		}
-	}
 	return &req, nil
 }
 
@@ -307,8 +387,25 @@ type SignRequest struct {
 
 // DecodeSign reads a SignRequest strictly and checks it.
 func DecodeSign(r io.Reader) (*SignRequest, error) {
+	body, err := readBody(r)
+	if err != nil {
+		return nil, err
+	}
+	p := &pointParser{b: body, lim: limitsOf(r)}
 	var req SignRequest
-	if err := decodeStrict(r, &req); err != nil {
+	err = p.document("", func(key []byte) error {
+		var err error
+		switch string(key) {
+		case "meaning":
+			req.Meaning, err = p.text("/meaning", true)
+		case "comment":
+			req.Comment, err = p.reason("/comment")
+		default:
+			return p.unknownKey("", key, signKeys)
+		}
+		return err
+	}, signKeys)
+	if err != nil {
 		return nil, err
 	}
 	if !study.Meaning(req.Meaning).Valid() {
@@ -317,30 +414,20 @@ func DecodeSign(r io.Reader) (*SignRequest, error) {
 	return &req, nil
 }
 
-// PatchOptions sets the options named in patch (a JSON object with the
-// request's JSON keys) on v, a decoded request of a kind whose wire type
-// carries JSON tags; dataKeys may not be changed. Unknown keys are errors
-// naming /options/KEY.
-func PatchOptions(v any, patch []byte, dataKeys ...string) error {
-	var m map[string]json.RawMessage
-	if err := json.Unmarshal(patch, &m); err != nil {
-		return Invalid("/options", "options is a JSON object of the request's options")
-	}
-	for k := range m {
+// patchOptions reads patch, a JSON object of a request's options, with
+// member, the request's own one-pass reader (strict keys and numbers, lists
+// counted against DefaultLimits); dataKeys and the record's keys may not
+// be changed. Errors name /options/KEY.
+func patchOptions(patch []byte, known, dataKeys []string, member func(p *pointParser, key []byte) error) error {
+	p := &pointParser{b: patch, lim: DefaultLimits}
+	err := p.document("", func(key []byte) error {
+		k := Truncate(string(key))
 		if slices.Contains(dataKeys, k) || slices.Contains(recordKeys, k) {
-			return Invalid("/options/"+k, fmt.Sprintf("%q is not an option: a revision changes options and excludes points, never the data", k))
+			return Invalid("/"+escapePointer(k), fmt.Sprintf("%q is not an option: a revision changes options and excludes points, never the data", k))
 		}
-	}
-	dec := json.NewDecoder(bytes.NewReader(patch))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(v); err != nil {
-		var p *Problem
-		if errors.As(jsonProblem(err, "/options"), &p) {
-			return p
-		}
-		return Invalid("/options", err.Error())
-	}
-	return nil
+		return member(p, key)
+	}, known)
+	return prefixedErr(err, "/options")
 }
 
 // The options of each kind of request in their canonical form: the JSON
@@ -355,7 +442,18 @@ func (req *FitRequest) CanonicalOptions() ([]byte, error) {
 // PatchOptions sets the options named in patch (JSON keys of the fit
 // request; not "points").
 func (req *FitRequest) PatchOptions(patch []byte) error {
-	return PatchOptions(req, patch, "points")
+	return patchOptions(patch, fitKeys, []string{"points"}, func(p *pointParser, key []byte) error { return p.fitMember(req, key, "") })
+}
+
+// fitOptions is FitRequest without its points, in canonical JSON.
+type fitOptions struct {
+	Methods    []string          `json:"methods,omitempty"`
+	Lambda     *float64          `json:"lambda,omitempty"`
+	Confidence *float64          `json:"confidence,omitempty"`
+	Bootstrap  *BootstrapOptions `json:"bootstrap,omitempty"`
+	At         []float64         `json:"at,omitempty"`
+	XUnit      string            `json:"x_unit,omitempty"`
+	YUnit      string            `json:"y_unit,omitempty"`
 }
 
 type compareOptions struct {
@@ -389,7 +487,13 @@ func (req *CompareRequest) CanonicalOptions() ([]byte, error) {
 // PatchOptions sets the options named in patch (JSON keys of the
 // comparison request; not "samples").
 func (req *CompareRequest) PatchOptions(patch []byte) error {
-	return PatchOptions(req, patch, "samples")
+	return patchOptions(patch, compareKeys, []string{"samples"}, func(p *pointParser, key []byte) error { return p.compareMember(req, key) })
+}
+
+// monteCarloJSON is a calibration's Monte Carlo options in canonical JSON.
+type monteCarloJSON struct {
+	Trials int     `json:"trials"`
+	Seed   *uint64 `json:"seed"`
 }
 
 type calOptions struct {
@@ -420,27 +524,6 @@ func (req *CalibrationRequest) CanonicalOptions() ([]byte, error) {
 // PatchOptions sets the options named in patch (JSON keys of the
 // calibration request; not its data).
 func (req *CalibrationRequest) PatchOptions(patch []byte) error {
-	var o calOptions
-	if err := PatchOptions(&o, patch, "standards", "unknowns", "shared_components", "x_covariance", "forward"); err != nil {
-		return err
-	}
-	for _, f := range []struct {
-		p *string
-		v **string
-	}{{&req.XName, &o.XName}, {&req.YName, &o.YName}, {&req.XUnit, &o.XUnit}, {&req.YUnit, &o.YUnit},
-		{&req.Model, &o.Model}, {&req.OnInconsistent, &o.OnInconsistent}} {
-		if *f.v != nil {
-			*f.p = **f.v
-		}
-	}
-	for _, f := range []struct{ p, v **float64 }{{&req.CoverageFactor, &o.CoverageFactor},
-		{&req.CoverageProbability, &o.CoverageProbability}, {&req.Confidence, &o.Confidence}} {
-		if *f.v != nil {
-			*f.p = *f.v
-		}
-	}
-	if o.MonteCarlo != nil {
-		req.MonteCarlo = &study.CalMonteCarlo{Trials: o.MonteCarlo.Trials, Seed: o.MonteCarlo.Seed}
-	}
-	return nil
+	return patchOptions(patch, calKeys, []string{"standards", "unknowns", "shared_components", "x_covariance", "forward"},
+		func(p *pointParser, key []byte) error { return p.calMember(req, key) })
 }

@@ -1,13 +1,8 @@
 package wire
 
 import (
-	"bytes"
-	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
-	"math"
-	"net/http"
 	"net/url"
 	"slices"
 	"strconv"
@@ -47,130 +42,19 @@ type BootstrapOptions struct {
 	Scheme    string  `json:"scheme,omitempty"` // "pairs" (default) or "parametric"
 }
 
-// UnmarshalJSON decodes strictly, so that a misspelt option inside
-// "bootstrap" is named.
-func (b *BootstrapOptions) UnmarshalJSON(data []byte) error {
-	type plain BootstrapOptions
-	dec := json.NewDecoder(bytes.NewReader(data))
-	dec.DisallowUnknownFields()
-	var p plain
-	if err := dec.Decode(&p); err != nil {
-		return jsonProblem(err, "/bootstrap")
-	}
-	*b = BootstrapOptions(p)
-	return nil
+// Limits are what the decoders count a body's lists against while they
+// read it: the study's limits (points or samples, "at" values and decision
+// levels) and the datasets of a batch.
+type Limits struct {
+	study.Limits
+	// MaxBatch bounds the datasets of one batch request; the server sets
+	// it from its Config.MaxBatch.
+	MaxBatch int
 }
 
-// DecodeFitJSON reads a FitRequest from JSON, strictly: unknown fields,
-// trailing data, non-numbers and numbers outside the double range are
-// errors naming the field.
-func DecodeFitJSON(r io.Reader) (*FitRequest, error) {
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	if req, ok, err := decodeFitFast(body); ok {
-		return req, err
-	}
-	// Not a well-formed object: the general decoder finds and names the fault.
-	var req FitRequest
-	if err := decodeStrict(bytes.NewReader(body), &req); err != nil {
-		return nil, err
-	}
-	return &req, nil
-}
-
-// decodeStrict reads one JSON value into v: unknown fields and trailing
-// data are errors, and a syntax error is reported at the pointer of the
-// value where it occurred.
-func decodeStrict(r io.Reader, v any) error {
-	body, err := io.ReadAll(r)
-	if err != nil {
-		var mbe *http.MaxBytesError
-		if errors.As(err, &mbe) {
-			return mbe
-		}
-		return Invalid("", "the body could not be read")
-	}
-	dec := json.NewDecoder(bytes.NewReader(body))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(v); err != nil {
-		var se *json.SyntaxError
-		if errors.As(err, &se) {
-			ptr := pointerAt(body, se.Offset-1)
-			detail := fmt.Sprintf("the body is not valid JSON at byte %d (%s)", se.Offset, se.Error())
-			if at := se.Offset - 1; at >= 0 && at < int64(len(body)) && strings.IndexByte("NIn", body[at]) >= 0 {
-				detail += "; numbers must be finite JSON numbers, not NaN or Infinity"
-			}
-			return Invalid(ptr, detail)
-		}
-		return jsonProblem(err, "")
-	}
-	if _, err := dec.Token(); err != io.EOF {
-		return Invalid("", "the body holds more than one JSON value")
-	}
-	return nil
-}
-
-// jsonProblem maps an encoding/json error to a problem naming the field.
-func jsonProblem(err error, base string) error {
-	var p *Problem
-	var mbe *http.MaxBytesError
-	var se *json.SyntaxError
-	var te *json.UnmarshalTypeError
-	switch {
-	case errors.As(err, &p), errors.As(err, &mbe):
-		return err
-	case errors.Is(err, io.EOF):
-		if base == "" {
-			return Invalid("", "the body is empty; send a JSON object such as {\"points\": [...]}")
-		}
-		return Invalid(base, "unexpected end of the JSON value")
-	case errors.Is(err, io.ErrUnexpectedEOF):
-		return Invalid(base, "the JSON body ends too early")
-	case errors.As(err, &se):
-		return Invalid(base, fmt.Sprintf("the body is not valid JSON (at byte %d: %s)", se.Offset, se.Error()))
-	case errors.As(err, &te):
-		ptr := base
-		if te.Field != "" {
-			ptr = base + "/" + strings.ReplaceAll(te.Field, ".", "/")
-		}
-		if ptr == "" {
-			return Invalid("", "the body must be a JSON object")
-		}
-		if strings.HasPrefix(te.Value, "number") && te.Type.Kind().String() == "float64" {
-			return Invalid(ptr, "the number is outside the double-precision range")
-		}
-		return Invalid(ptr, fmt.Sprintf("must be %s, not %s", jsonTypeName(te.Type.String()), te.Value))
-	}
-	msg := err.Error()
-	if name, ok := strings.CutPrefix(msg, "json: unknown field "); ok {
-		name = strings.Trim(name, `"`)
-		return Invalid(base+"/"+escapePointer(name), fmt.Sprintf("unknown field %q", name))
-	}
-	return Invalid(base, "the body could not be decoded: "+msg)
-}
-
-func jsonTypeName(t string) string {
-	switch t {
-	case "float64", "*float64":
-		return "a number"
-	case "int", "*int":
-		return "an integer"
-	case "uint64", "*uint64":
-		return "a non-negative integer"
-	case "string":
-		return "a string"
-	case "[]string":
-		return "an array of strings"
-	case "[]float64":
-		return "an array of numbers"
-	}
-	if strings.HasPrefix(t, "*api.") || strings.HasPrefix(t, "api.") {
-		return "an object"
-	}
-	return t
-}
+// DefaultLimits are the decoders' limits for a body read without the
+// server's (DefaultLimits of the study, 1000 datasets per batch).
+var DefaultLimits = Limits{Limits: study.DefaultLimits, MaxBatch: 1000}
 
 // FitRequestFromQuery builds the options of a CSV fit from query parameters:
 // methods (comma list), lambda, confidence, resamples, seed, scheme, at
@@ -198,14 +82,14 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 		if s != "" {
 			n, err := strconv.Atoi(s)
 			if err != nil {
-				return nil, Invalid("query parameter resamples", fmt.Sprintf("%q is not an integer", truncate(s)))
+				return nil, Invalid("query parameter resamples", fmt.Sprintf("%q is not an integer", Truncate(s)))
 			}
 			req.Bootstrap.Resamples = n
 		}
 		if s := q.Get("seed"); s != "" {
 			v, err := strconv.ParseUint(s, 10, 64)
 			if err != nil {
-				return nil, Invalid("query parameter seed", fmt.Sprintf("%q is not a non-negative integer", truncate(s)))
+				return nil, Invalid("query parameter seed", fmt.Sprintf("%q is not a non-negative integer", Truncate(s)))
 			}
 			req.Bootstrap.Seed = &v
 		}
@@ -214,6 +98,11 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 		return nil, err
 	}
 	req.XUnit, req.YUnit = q.Get("x_unit"), q.Get("y_unit")
+	for _, name := range []string{"x_unit", "y_unit"} {
+		if err := nameLength("query parameter "+name, q.Get(name)); err != nil {
+			return nil, err
+		}
+	}
 	return req, nil
 }
 
@@ -244,9 +133,9 @@ func queryFloats(q url.Values, name string) ([]float64, error) {
 }
 
 func finiteQuery(name, s string) (float64, error) {
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-		return 0, Invalid("query parameter "+name, fmt.Sprintf("%q is not a finite number", truncate(s)))
+	v, err := parseCell(s)
+	if err != nil {
+		return 0, Invalid("query parameter "+name, err.Error())
 	}
 	return v, nil
 }
@@ -288,7 +177,23 @@ func FitFromCSV(r io.Reader, q url.Values) (*FitRequest, error) {
 	return FitRequestFromQuery(q, d)
 }
 
-// DecodeStrict reads one JSON value into v: unknown fields and trailing
-// data are errors, and a syntax error is reported at the pointer of the
-// value where it occurred.
-func DecodeStrict(r io.Reader, v any) error { return decodeStrict(r, v) }
+// DecodeBatch reads a batch body: {"datasets": [...]}, counting the
+// datasets against the limits (the server's, for a *Body it read; else
+// DefaultLimits) as they are read. Each dataset is kept as its bytes, and
+// read by DecodeBatchEntry when it is fitted.
+func DecodeBatch(r io.Reader) (*BatchRequest, error) {
+	lim := limitsOf(r)
+	body, err := readBody(r)
+	if err != nil {
+		return nil, err
+	}
+	req := &BatchRequest{}
+	return req, decodeBatch(body, req, lim.MaxBatch)
+}
+
+// DecodeBatchEntry reads one dataset of a batch strictly, counting its
+// lists against lim; its pointers are relative to the dataset.
+func DecodeBatchEntry(raw []byte, lim Limits) (*BatchEntry, error) {
+	e := &BatchEntry{}
+	return e, decodeBatchEntry(raw, e, lim)
+}

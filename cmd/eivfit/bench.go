@@ -35,6 +35,10 @@ numpy on the same files in the same run (testdata/ref_bench.py with
 Debian's /usr/bin/python3), and prints one table: case, eivfit, reference,
 ratio, and eivfit against the machine's limit (measured here: memory
 bandwidth for one-pass fits, the scalar rate for in-cache bootstraps).
+Then the end-to-end rows on a 10⁶-row CSV (x, y, sx, sy) and its JSON
+twin: eivfit fit --methods york as a whole run, and POST /v1/fit on a
+child server (its own time, from /metrics, and its peak RSS), against
+scipy.odr's fit alone on the same CSV, with the decoders' rate alone.
 
 Flags:
 `
@@ -76,6 +80,11 @@ func runBench(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 	var ib bytes.Buffer
 	_ = binary.Write(&ib, binary.LittleEndian, idx)
 	if err := os.WriteFile(filepath.Join(dir, "idx.bin"), ib.Bytes(), 0o644); err != nil {
+		return err
+	}
+	ingest := makeIngest(big)
+	csvPath, err := writeIngestCSV(dir, ingest)
+	if err != nil {
 		return err
 	}
 
@@ -175,11 +184,14 @@ func runBench(ctx context.Context, args []string, stdout, stderr io.Writer) erro
 		})
 		lbn, lbt = append(lbn, math.Log(float64(c.B*c.n))), append(lbt, math.Log(t.Seconds()))
 	}
-	fmt.Fprintf(stdout, "scaling exponents (log-log slope; 1 is linear): York fit ∝ n^%.2f, Deming fit ∝ n^%.2f (n = 10³ … 10⁶); York bootstrap ∝ (B·n)^%.2f\n",
-		slope(ln, ly), slope(ln, ld), slope(lbn, lbt))
+	csvT, jsonT := decodeTimes(ingest)
+	fmt.Fprintf(stdout, "scaling exponents (log-log slope; 1 is linear): York fit ∝ n^%.2f, Deming fit ∝ n^%.2f, CSV decode ∝ n^%.2f, JSON decode ∝ n^%.2f (n = 10³ … 10⁶); York bootstrap ∝ (B·n)^%.2f\n",
+		slope(ln, ly), slope(ln, ld), exponent(csvT), exponent(jsonT), slope(lbn, lbt))
 	if v, ok := ref["versions"].(map[string]any); ok {
 		fmt.Fprintf(stdout, "reference: numpy %v, scipy %v (scipy.odr with analytic derivatives and its default tolerances)\n", v["numpy"], v["scipy"])
 	}
+
+	benchIngest(ctx, stdout, stderr, ingest, csvPath, csvT, jsonT, refDur("york_fit_csv_1e6"))
 
 	if *httpDur > 0 {
 		if err := benchHTTP(ctx, stdout, stderr, *httpDur); err != nil {
@@ -419,13 +431,14 @@ func wrkThroughput(ctx context.Context, wrk, base string, body []byte, dur time.
 }
 
 // startServer starts `eivfit serve` on a free loopback port as a child
-// process and returns its base URL once it listens.
-func startServer(ctx context.Context) (string, *exec.Cmd, error) {
+// process (with flags added to serve's) and returns its base URL once it
+// listens.
+func startServer(ctx context.Context, flags ...string) (string, *exec.Cmd, error) {
 	exe, err := os.Executable()
 	if err != nil {
 		return "", nil, err
 	}
-	cmd := exec.CommandContext(ctx, exe, "serve", "--addr", "127.0.0.1:0", "--log-level", "error")
+	cmd := exec.CommandContext(ctx, exe, append([]string{"serve", "--addr", "127.0.0.1:0", "--log-level", "error"}, flags...)...)
 	out, err := cmd.StdoutPipe()
 	if err != nil {
 		return "", nil, err

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
 	"context"
 	"errors"
@@ -8,6 +9,7 @@ import (
 	"fmt"
 	"io"
 	"math/rand/v2"
+	"net"
 	"net/http"
 	"os"
 	"os/exec"
@@ -26,8 +28,12 @@ process): sustained small fits (n = 40; ols, deming, york) sent open-loop at
 --rate for --duration, then prints throughput, latency quantiles and errors,
 and exits 1 on any error. With --saturate N it instead sends N concurrent
 maximum-size requests (about 60 MB of JSON each) and reports their statuses
-and the server's peak resident memory. Bounded in count and time; never
-sends anywhere but loopback.
+and the server's peak resident memory, then two fault cases: four idle
+uploads that declare 64 MiB and send nothing (the latency of a small fit
+meanwhile, and their answers), and giant lists (a 60 MB body holding
+millions of "at" values, decision levels or empty datasets: status, time
+and the peak memory after each). Bounded in count and time; never sends
+anywhere but loopback.
 
 Flags:
 `
@@ -147,14 +153,111 @@ func saturateRun(stdout io.Writer, client *http.Client, base string, n int, chil
 		slowest = max(slowest, took[i])
 	}
 	fmt.Fprintf(stdout, "%d concurrent requests of %.1f MB (%d points): %v; slowest %v\n", n, float64(len(body))/1e6, points, count, slowest.Round(time.Millisecond))
-	if child != nil {
-		if st, err := os.ReadFile(fmt.Sprintf("/proc/%d/status", child.Process.Pid)); err == nil {
-			for _, l := range strings.Split(string(st), "\n") {
-				if strings.HasPrefix(l, "VmHWM:") || strings.HasPrefix(l, "VmRSS:") {
-					fmt.Fprintf(stdout, "  server %s\n", strings.Join(strings.Fields(l), " "))
-				}
+	printMemory(stdout, child)
+	if err := idleUploads(stdout, client, base); err != nil {
+		return err
+	}
+	giantLists(stdout, client, base, child)
+	return nil
+}
+
+// printMemory prints the child server's resident and peak resident memory.
+func printMemory(stdout io.Writer, child *exec.Cmd) {
+	if child == nil {
+		return
+	}
+	if st, err := os.ReadFile(fmt.Sprintf("/proc/%d/status", child.Process.Pid)); err == nil {
+		for _, l := range strings.Split(string(st), "\n") {
+			if strings.HasPrefix(l, "VmHWM:") || strings.HasPrefix(l, "VmRSS:") {
+				fmt.Fprintf(stdout, "  server %s\n", strings.Join(strings.Fields(l), " "))
 			}
 		}
 	}
+}
+
+// idleUploads opens four uploads that declare 64 MiB and send nothing,
+// times small fits meanwhile, and reports how the uploads were answered.
+func idleUploads(stdout io.Writer, client *http.Client, base string) error {
+	body := wiretest.SmallFit()
+	fitTime := func() (time.Duration, int) {
+		t0 := time.Now()
+		resp, err := client.Post(base+"/v1/fit", "application/json", bytes.NewReader(body))
+		if err != nil {
+			return time.Since(t0), -1
+		}
+		_, _ = io.Copy(io.Discard, resp.Body)
+		resp.Body.Close()
+		return time.Since(t0), resp.StatusCode
+	}
+	best := func() (time.Duration, map[int]int) {
+		d, codes := time.Hour, map[int]int{}
+		for range 20 {
+			t, c := fitTime()
+			d = min(d, t)
+			codes[c]++
+		}
+		return d, codes
+	}
+	unloaded, _ := best()
+	answers := make([]string, 4)
+	var wg sync.WaitGroup
+	t0 := time.Now()
+	took := make([]time.Duration, 4)
+	for i := range answers {
+		conn, err := net.Dial("tcp", strings.TrimPrefix(base, "http://"))
+		if err != nil {
+			return err
+		}
+		defer conn.Close()
+		fmt.Fprintf(conn, "POST /v1/fit HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\nContent-Length: %d\r\n\r\n", 64<<20)
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			_ = conn.SetReadDeadline(time.Now().Add(90 * time.Second))
+			line, _ := bufio.NewReader(conn).ReadString('\n')
+			answers[i], took[i] = strings.TrimSpace(line), time.Since(t0)
+		}()
+	}
+	time.Sleep(200 * time.Millisecond)
+	loaded, codes := best()
+	wg.Wait()
+	fmt.Fprintf(stdout, "four idle 64 MiB uploads: small fit %v (unloaded %v), statuses %v; the uploads answered %q after %v\n",
+		loaded.Round(time.Microsecond), unloaded.Round(time.Microsecond), codes, answers[0], took[0].Round(time.Millisecond))
 	return nil
+}
+
+// giantLists sends bodies of about 60 MB that hold one giant list each.
+func giantLists(stdout io.Writer, client *http.Client, base string, child *exec.Cmd) {
+	const size = 60 << 20
+	list := func(prefix, elem, suffix string) []byte {
+		var b bytes.Buffer
+		b.Grow(size)
+		b.WriteString(prefix)
+		for b.Len()+2*len(elem)+len(suffix) < size {
+			b.WriteString(elem)
+			b.WriteByte(',')
+		}
+		b.WriteString(elem)
+		b.WriteString(suffix)
+		return b.Bytes()
+	}
+	for _, c := range []struct {
+		name, path string
+		body       []byte
+	}{
+		{"at values", "/v1/fit", list(`{"points":[{"x":1,"y":2},{"x":2,"y":3},{"x":3,"y":5}],"at":[`, "0", "]}")},
+		{"decision levels", "/v1/method-comparison", list(`{"samples":[{"x":1,"y":2},{"x":2,"y":3},{"x":3,"y":5}],"decision_levels":[`, "0", "]}")},
+		{"samples", "/v1/method-comparison", list(`{"samples":[`, `{"x":1,"y":2}`, "]}")},
+		{"empty datasets", "/v1/batch", list(`{"datasets":[`, "{}", "]}")},
+	} {
+		t0 := time.Now()
+		code := -1
+		if resp, err := client.Post(base+c.path, "application/json", bytes.NewReader(c.body)); err == nil {
+			_, _ = io.Copy(io.Discard, resp.Body)
+			resp.Body.Close()
+			code = resp.StatusCode
+		}
+		fmt.Fprintf(stdout, "giant list of %s (%.1f MB): %d in %v\n", c.name, float64(len(c.body))/1e6, code, time.Since(t0).Round(time.Millisecond))
+		printMemory(stdout, child)
+	}
 }

@@ -327,17 +327,19 @@ func TestMain(m *testing.M) {
 		main()
 		return
 	}
-	// A command run without --data-dir (serve, studies) keeps its studies
-	// in a temporary directory, not in ./eivfit-data beside the tests.
-	dir, err := os.MkdirTemp("", "eivfit-test-data-")
-	if err != nil {
-		fmt.Fprintln(os.Stderr, err)
-		os.Exit(1)
+	// serve stores studies in ./eivfit-data by default: the tests' servers
+	// (in process and as child processes) use a throwaway directory instead.
+	if os.Getenv("EIVFIT_DATA_DIR") == "" {
+		dir, err := os.MkdirTemp("", "eivfit-test-data")
+		if err != nil {
+			panic(err)
+		}
+		os.Setenv("EIVFIT_DATA_DIR", dir)
+		code := m.Run()
+		os.RemoveAll(dir)
+		os.Exit(code)
 	}
-	os.Setenv("EIVFIT_DATA_DIR", dir)
-	code := m.Run()
-	os.RemoveAll(dir)
-	os.Exit(code)
+	os.Exit(m.Run())
 }
 
 // SIGTERM during in-flight bootstraps: every request in flight completes

@@ -31,9 +31,9 @@ func (s *syncBuffer) String() string {
 	return s.b.String()
 }
 
-// serveProc is `eivfit serve` running as a process of its own (the test
+// serveProcess is `eivfit serve` running as a process of its own (the test
 // binary standing in for eivfit, see TestMain).
-type serveProc struct {
+type serveProcess struct {
 	cmd    *exec.Cmd
 	base   string
 	stderr *syncBuffer
@@ -43,11 +43,11 @@ type serveProc struct {
 // startServe starts `eivfit serve --addr 127.0.0.1:0 ARGS` with the extra
 // environment env and waits until it listens; the process is killed at
 // the end of the test, and its log shown if the test failed.
-func startServe(t *testing.T, env []string, args ...string) *serveProc {
+func startServe(t *testing.T, env []string, args ...string) *serveProcess {
 	t.Helper()
 	cmd := exec.Command(os.Args[0], append([]string{"serve", "--addr", "127.0.0.1:0", "--log-level", "warn"}, args...)...)
 	cmd.Env = append(append(os.Environ(), "EIVFIT_TEST_AS_BINARY=1"), env...)
-	p := &serveProc{cmd: cmd, stderr: &syncBuffer{}, done: make(chan error, 1)}
+	p := &serveProcess{cmd: cmd, stderr: &syncBuffer{}, done: make(chan error, 1)}
 	cmd.Stderr = p.stderr
 	out, err := cmd.StdoutPipe()
 	if err != nil {
@@ -87,7 +87,7 @@ func startServe(t *testing.T, env []string, args ...string) *serveProc {
 }
 
 // kill ends the process with SIGKILL and waits for it.
-func (p *serveProc) kill() {
+func (p *serveProcess) kill() {
 	if p.cmd.Process == nil {
 		return
 	}

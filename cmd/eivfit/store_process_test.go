@@ -50,7 +50,7 @@ func storeEnv(cfg store.Config) (env, args []string) {
 }
 
 // waitReady waits until /readyz answers 200 (the store is open).
-func waitReady(t *testing.T, p *serveProc) {
+func waitReady(t *testing.T, p *serveProcess) {
 	t.Helper()
 	deadline := time.Now().Add(20 * time.Second)
 	for {
@@ -152,7 +152,7 @@ func TestTwoServersOnePostgres(t *testing.T) {
 	skipProcessTest(t)
 	cfg := storetest.Postgres(t)
 	env, _ := storeEnv(cfg)
-	var procs [2]*serveProc
+	var procs [2]*serveProcess
 	var wg sync.WaitGroup
 	for i := range procs {
 		wg.Go(func() { procs[i] = startServe(t, env) })

@@ -99,6 +99,15 @@ const (
 	MaxMonteCarloTotal  = 50_000_000
 )
 
+// MaxCovarianceStandards bounds the standards of a calibration whose x
+// errors are correlated (an x covariance or shared components): Gauss–Markov
+// regression holds and factors their m×m covariance, O(m²) memory and O(m³)
+// time. MaxSharedComponents bounds the shared components of one request.
+const (
+	MaxCovarianceStandards = 1000
+	MaxSharedComponents    = 100
+)
+
 // UnknownResult is x₀ for one unknown.
 type UnknownResult struct {
 	ID      string
@@ -274,6 +283,18 @@ func checkCalibration(d *CalibrationData, o *CalibrationOptions) ([]string, []ei
 	if o.MaxAt > 0 && len(o.Forward) > o.MaxAt {
 		return nil, nil, &Error{Kind: TooLarge, Field: "forward", Index: -1,
 			Err: fmt.Errorf("%d forward evaluations exceed this server's limit of %d", len(o.Forward), o.MaxAt)}
+	}
+	if (d.XCovariance != nil || len(d.Shared) > 0) && len(d.Standards) > MaxCovarianceStandards {
+		field := "x_covariance"
+		if d.XCovariance == nil {
+			field = "shared_components"
+		}
+		return nil, nil, &Error{Kind: TooLarge, Field: field, Index: -1, Err: fmt.Errorf(
+			"correlated x errors (an x covariance or shared components) are taken for at most %d standards, not %d", MaxCovarianceStandards, len(d.Standards))}
+	}
+	if len(d.Shared) > MaxSharedComponents {
+		return nil, nil, &Error{Kind: TooLarge, Field: "shared_components", Index: -1, Err: fmt.Errorf(
+			"at most %d shared components, not %d", MaxSharedComponents, len(d.Shared))}
 	}
 	var c checker
 	switch o.Model {
