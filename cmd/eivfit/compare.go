@@ -47,9 +47,13 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = none)")
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
+	strict := newStrictFlags(fs, []string{"exclude"}, []string{"decision-levels"})
 	file, done, err := parseFileArgs(fs, args, "compare", format, stderr)
 	if done {
 		return err
+	}
+	if err := strict.check(); err != nil {
+		return usageError(stderr, "compare", err)
 	}
 	opts := &wire.CompareRequest{XName: *xName, YName: *yName, Unit: *unit, ErrorModel: *errorModel,
 		Confidence: confidence, Exclude: wire.SplitList(*exclude)}
