@@ -383,7 +383,7 @@ func FitReport(ctx context.Context, resp *wire.FitResponse, res *study.FitResult
 	if len(m.At) > 0 && !resp.SameScale() {
 		t := Table{Caption: "Fitted y at the requested x values (" + ps.fitName + ")", Header: []string{"x", "fitted y", "CI"}, Numeric: []int{0, 1, 2}}
 		for _, a := range m.At {
-			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI)}})
+			t.Rows = append(t.Rows, Row{Cells: []string{atCell(a), g(a.Y.Estimate), ciText(a.Y.CI)}})
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Predictions", Tables: []Table{t}})
 	} else if len(m.At) > 0 {
@@ -393,7 +393,7 @@ func FitReport(ctx context.Context, resp *wire.FitResponse, res *study.FitResult
 			if a.Bias.Bootstrap != nil {
 				bb = fmt.Sprintf("%s to %s", g(a.Bias.Bootstrap.Lower), g(a.Bias.Bootstrap.Upper))
 			}
-			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI), g(a.Bias.Estimate), ciText(a.Bias.CI), bb}})
+			t.Rows = append(t.Rows, Row{Cells: []string{atCell(a), g(a.Y.Estimate), ciText(a.Y.CI), g(a.Bias.Estimate), ciText(a.Bias.CI), bb}})
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
 	}
@@ -510,4 +510,13 @@ func differenceForm(a *wire.AgreementOut) (DifferenceForm, bool) {
 		f.Form = "constant"
 	}
 	return f, f.Form != "constant" || f.Proportional
+}
+
+// atCell is an "at" value in a table: "(extrapolated)" after one outside
+// the range of the data.
+func atCell(a wire.AtOut) string {
+	if a.Extrapolated {
+		return g(a.X) + " (extrapolated)"
+	}
+	return g(a.X)
 }
