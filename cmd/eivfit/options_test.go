@@ -17,17 +17,17 @@ import (
 // given: the query parameter of a CSV body, the flag of the CLI, and the
 // JSON array of a JSON body.
 type listOption struct {
-	name   string // query parameter
-	flag   string // the CLI's flag
-	cmd    string // the CLI's command
-	path   string // the HTTP path
-	file   string // the CSV the query and CLI forms read
-	extra  []string
-	a, b   string // two valid values, a different answer with b than without
+	name  string // query parameter
+	flag  string // the CLI's flag
+	cmd   string // the CLI's command
+	path  string // the HTTP path
+	file  string // the CSV the query and CLI forms read
+	extra []string
+	a, b  string // two valid values, a different answer with b than without
 	// ja, jb are a and b for the JSON body ("": a and b); jkey is the
 	// key the JSON body gives the list ("": name).
 	ja, jb, jkey string
-	beyond string // a value outside the range of the data ("": none to try)
+	beyond       string // a value outside the range of the data ("": none to try)
 	// json is a JSON body with the option set to list (a JSON value).
 	json func(list string) string
 }
@@ -45,7 +45,9 @@ func jsonWith(format string) func(string) string {
 var listOptions = []listOption{
 	{name: "methods", flag: "methods", cmd: "fit", path: "/v1/fit", file: "../../testdata/demo-glucose.csv",
 		a: "ols", b: "deming",
-		json: func(l string) string { return strings.Replace(strings.Replace(fitJSON, `"methods":["ols","deming"]`, `"methods":`+l, 1), "%s", "[3]", 1) }},
+		json: func(l string) string {
+			return strings.Replace(strings.Replace(fitJSON, `"methods":["ols","deming"]`, `"methods":`+l, 1), "%s", "[3]", 1)
+		}},
 	{name: "at", flag: "at", cmd: "fit", path: "/v1/fit", file: "../../testdata/demo-glucose.csv",
 		a: "7", b: "11.1", beyond: "40", json: jsonWith(fitJSON)},
 	{name: "decision_levels", flag: "decision-levels", cmd: "compare", path: "/v1/method-comparison",
