@@ -271,3 +271,38 @@ func readFile(t *testing.T, name string) string {
 	}
 	return string(b)
 }
+
+// A decision level at 0 has no percent bias: it is left out, not 0.
+func TestLevelZeroHasNoPercentBias(t *testing.T) {
+	srv, err := api.NewServer(api.Config{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	req := httptest.NewRequest(http.MethodPost, "/v1/method-comparison", strings.NewReader(strings.Replace(compareJSON, "%s", `"decision_levels":[0,7]`, 1)))
+	req.Header.Set("Content-Type", "application/json")
+	rec := httptest.NewRecorder()
+	srv.Handler().ServeHTTP(rec, req)
+	var resp struct {
+		DecisionLevels []struct {
+			Level        float64                    `json:"level"`
+			Extrapolated bool                       `json:"extrapolated"`
+			Fits         map[string]json.RawMessage `json:"fits"`
+		} `json:"decision_levels"`
+	}
+	if rec.Code != http.StatusOK || json.Unmarshal(rec.Body.Bytes(), &resp) != nil || len(resp.DecisionLevels) != 2 {
+		t.Fatalf("%d %s", rec.Code, wire.Truncate(rec.Body.String()))
+	}
+	for i, l := range resp.DecisionLevels {
+		if len(l.Fits) == 0 {
+			t.Fatalf("level %g: no fits", l.Level)
+		}
+		for m, f := range l.Fits {
+			if has := bytes.Contains(f, []byte(`"bias_percent"`)); has != (i == 1) {
+				t.Errorf("level %g, %s: bias_percent present %v", l.Level, m, has)
+			}
+		}
+	}
+	if !resp.DecisionLevels[0].Extrapolated || resp.DecisionLevels[1].Extrapolated {
+		t.Errorf("0 lies below the data (2.1 to 15.2), 7 within: %+v", resp.DecisionLevels)
+	}
+}
