@@ -47,6 +47,7 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = none)")
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
+	sv := addSaveFlags(fs)
 	strict := newStrictFlags(fs, []string{"exclude"}, []string{"decision-levels"})
 	file, done, err := parseFileArgs(fs, args, "compare", format, stderr)
 	if done {
@@ -80,6 +81,13 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	}
 	if opts.Bootstrap, err = bootstrapFlags(*resamples, *seed, *scheme); err != nil {
 		return usageError(stderr, "compare", err)
+	}
+	if err := sv.check(setFlags(fs)); err != nil {
+		return usageError(stderr, "compare", err)
+	}
+	if sv.save {
+		return sv.run(ctx, saveRun{cmd: "compare", path: "/v1/method-comparison", format: *format, pretty: *pretty,
+			text: textOf(report.WriteCompareText)}, fs, file, stdin, stdout, stderr)
 	}
 	in, name, err := openInput(file, stdin, "compare", stderr)
 	if err != nil {

@@ -47,6 +47,7 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	at := fs.String("at", "", "comma list of x values (decision levels) for predictions and bias")
 	xUnit := fs.String("x-unit", "", "unit of x")
 	yUnit := fs.String("y-unit", "", "unit of y (when it differs from x's, nothing compares y with x: no bias y − x)")
+	sv := addSaveFlags(fs)
 	strict := newStrictFlags(fs, []string{"methods"}, []string{"at"})
 
 	file, done, err := parseFileArgs(fs, args, "fit", format, stderr)
@@ -69,6 +70,13 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	}
 	if req.Bootstrap, err = bootstrapFlags(*resamples, *seed, *scheme); err != nil {
 		return usageError(stderr, "fit", err)
+	}
+	if err := sv.check(setFlags(fs)); err != nil {
+		return usageError(stderr, "fit", err)
+	}
+	if sv.save {
+		return sv.run(ctx, saveRun{cmd: "fit", path: "/v1/fit", format: *format, pretty: *pretty, text: textOf(report.WriteText)},
+			fs, file, stdin, stdout, stderr)
 	}
 	in, name, err := openInput(file, stdin, "fit", stderr)
 	if err != nil {

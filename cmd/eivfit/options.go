@@ -21,7 +21,7 @@ type strictFlags struct {
 }
 
 // newStrictFlags wraps every flag already defined on fs except boolean
-// ones; lists and numeric name the list flags (numeric: lists of numbers).
+// ones and --tag; lists and numeric name the list flags (numeric: lists of numbers).
 func newStrictFlags(fs *flag.FlagSet, lists, numeric []string) *strictFlags {
 	s := &strictFlags{fs: fs, lists: map[string]bool{}, numeric: map[string]bool{}, given: map[string]int{}}
 	for _, n := range lists {
@@ -33,6 +33,9 @@ func newStrictFlags(fs *flag.FlagSet, lists, numeric []string) *strictFlags {
 	fs.VisitAll(func(f *flag.Flag) {
 		if b, ok := f.Value.(interface{ IsBoolFlag() bool }); ok && b.IsBoolFlag() {
 			return
+		}
+		if _, ok := f.Value.(*tagList); ok {
+			return // repeatable by itself: each --tag is one tag
 		}
 		f.Value = &strictValue{Value: f.Value, name: f.Name, s: s}
 	})
