@@ -95,7 +95,11 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 	defer release()
 	raw := body.Bytes()
 	var in io.Reader = body
-	q := c.Request.URL.Query()
+	q, err := wire.ParseQuery(c.Request.URL.RawQuery)
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
 	var rec *saving
 	if e.record != nil && s.store != nil {
 		var p *wire.Problem

@@ -27,7 +27,14 @@ func (s *Server) handlePlot(c *gin.Context) {
 		return
 	}
 	defer release()
-	q := c.Request.URL.Query()
+	q, err := wire.ParseQuery(c.Request.URL.RawQuery)
+	if err == nil && len(q["method"]) > 1 {
+		err = wire.Invalid("query parameter method", wire.Repeated(len(q["method"])))
+	}
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
 	method := q.Get("method")
 	q.Del("method")
 	if mt == "json" && len(q) > 0 {

@@ -317,7 +317,20 @@ func (s *Server) handleStudy(c *gin.Context) {
 		return
 	}
 	n := len(revs) - 1
-	if v := c.Query("revision"); v != "" {
+	q, err := wire.ParseQuery(c.Request.URL.RawQuery)
+	for k := range q {
+		if err == nil && k != "revision" {
+			err = wire.Invalid("query parameter "+wire.Truncate(k), fmt.Sprintf("unknown query parameter %q (revision)", wire.Truncate(k)))
+		}
+	}
+	if err == nil && len(q["revision"]) > 1 {
+		err = wire.Invalid("query parameter revision", wire.Repeated(len(q["revision"])))
+	}
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
+	if v := q.Get("revision"); v != "" {
 		k, err := strconv.Atoi(v)
 		if err != nil || k < 0 || k > n {
 			s.problem(c, wire.Invalid("query parameter revision", fmt.Sprintf("revision must be a number from 0 to %d", n)))
@@ -470,7 +483,12 @@ func (s *Server) handleStudies(c *gin.Context) {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	f, p := studyFilter(c.Request.URL.Query())
+	q, err := wire.ParseQuery(c.Request.URL.RawQuery)
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
+	f, p := studyFilter(q)
 	if p != nil {
 		s.problem(c, p)
 		return
@@ -495,6 +513,9 @@ func studyFilter(q url.Values) (study.Filter, *wire.Problem) {
 		case "kind", "label", "tag", "from", "to", "limit", "cursor":
 		default:
 			return f, wire.Invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q (kind, label, tag, from, to, limit, cursor)", k))
+		}
+		if k != "tag" && len(q[k]) > 1 {
+			return f, wire.Invalid("query parameter "+k, wire.Repeated(len(q[k])))
 		}
 	}
 	if k := study.StudyKind(q.Get("kind")); k != "" {

@@ -417,3 +417,12 @@ func differenceForm(a *wire.AgreementOut) (DifferenceForm, bool) {
 	}
 	return f, f.Form != "constant" || f.Proportional
 }
+
+// atCell is an "at" value in a table: "(extrapolated)" after one outside
+// the range of the data.
+func atCell(a wire.AtOut) string {
+	if a.Extrapolated {
+		return g(a.X) + " (extrapolated)"
+	}
+	return g(a.X)
+}

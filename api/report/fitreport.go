@@ -124,7 +124,7 @@ func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse
 	if len(m.At) > 0 && !resp.SameScale() {
 		t := Table{Caption: "Fitted y at the requested x values (" + name + ")", Header: []string{withUnit("x", xu), withUnit("fitted y", yu), withUnit("CI", yu)}, Numeric: []int{0, 1, 2}}
 		for _, a := range m.At {
-			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI)}})
+			t.Rows = append(t.Rows, Row{Cells: []string{atCell(a), g(a.Y.Estimate), ciText(a.Y.CI)}})
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Predictions", Tables: []Table{t}})
 	} else if len(m.At) > 0 {
@@ -135,7 +135,7 @@ func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse
 			if a.Bias.Bootstrap != nil {
 				bb = fmt.Sprintf("%s to %s", g(a.Bias.Bootstrap.Lower), g(a.Bias.Bootstrap.Upper))
 			}
-			t.Rows = append(t.Rows, Row{Cells: []string{g(a.X), g(a.Y.Estimate), ciText(a.Y.CI), g(a.Bias.Estimate), ciText(a.Bias.CI), bb}})
+			t.Rows = append(t.Rows, Row{Cells: []string{atCell(a), g(a.Y.Estimate), ciText(a.Y.CI), g(a.Bias.Estimate), ciText(a.Bias.CI), bb}})
 		}
 		p.Sections = append(p.Sections, Section{Heading: "Decision levels", Tables: []Table{t}})
 	}

@@ -70,7 +70,7 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 			fmt.Fprintln(tw, "  x\tfitted y\tCI")
 			for _, a := range f.At {
-				fmt.Fprintf(tw, "  %g\t%.6g\t%s\n", a.X, a.Y.Estimate, textCI(a.Y.CI, "%.6g"))
+				fmt.Fprintf(tw, "  %s\t%.6g\t%s\n", atX(a), a.Y.Estimate, textCI(a.Y.CI, "%.6g"))
 			}
 			ferr = tw.Flush()
 			return
@@ -79,7 +79,7 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 		tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
 		fmt.Fprintln(tw, "  x\tfitted y\tCI\tbias y − x\tCI")
 		for _, a := range f.At {
-			fmt.Fprintf(tw, "  %g\t%.6g\t%s\t%.4g\t%s\n", a.X, a.Y.Estimate, textCI(a.Y.CI, "%.6g"),
+			fmt.Fprintf(tw, "  %s\t%.6g\t%s\t%.4g\t%s\n", atX(a), a.Y.Estimate, textCI(a.Y.CI, "%.6g"),
 				a.Bias.Estimate, textCI(a.Bias.CI, "%.4g"))
 		}
 		ferr = tw.Flush()
@@ -321,4 +321,13 @@ func writeVerdictsText(b *strings.Builder, c *wire.Comparison) {
 			fmt.Fprintf(b, "  - %s\n", l.Reading)
 		}
 	}
+}
+
+// atX is an "at" value as printed: "(extrapolated)" after one outside the
+// range of the data.
+func atX(a wire.AtOut) string {
+	if a.Extrapolated {
+		return fmt.Sprintf("%g (extrapolated)", a.X)
+	}
+	return fmt.Sprintf("%g", a.X)
 }

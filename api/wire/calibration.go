@@ -580,15 +580,18 @@ var CalibrationQueryParameters = []string{"model", "on_inconsistent", "coverage_
 	"confidence", "trials", "seed", "forward", "x_name", "y_name", "x_unit", "y_unit",
 	"shared_name", "shared_relative_u", "shared_standards"}
 
+// calibrationParams are CalibrationQueryParameters by kind.
+var calibrationParams = paramSpec{single: slices.DeleteFunc(slices.Clone(CalibrationQueryParameters), func(s string) bool {
+	return s == "forward" || s == "shared_standards"
+}), lists: []string{"forward", "shared_standards"}, numeric: []string{"forward"}}
+
 // CalibrationOptionsFromQuery fills the options of a CSV calibration from
 // query parameters (see CalibrationQueryParameters). Monte Carlo runs when
 // trials or seed is given; one shared component is shared_name,
 // shared_relative_u and shared_standards (a comma list of ids).
 func CalibrationOptionsFromQuery(q url.Values, req *CalibrationRequest) error {
-	for k := range q {
-		if !slices.Contains(CalibrationQueryParameters, k) {
-			return Invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
-		}
+	if err := calibrationParams.check(q); err != nil {
+		return err
 	}
 	for _, f := range []struct {
 		name string
@@ -646,7 +649,7 @@ func CalibrationOptionsFromQuery(q url.Values, req *CalibrationRequest) error {
 	if err != nil {
 		return err
 	}
-	members := SplitList(q.Get("shared_standards"))
+	members := queryList(q, "shared_standards")
 	switch {
 	case ru != nil && len(members) > 0:
 		req.Data.Shared = append(req.Data.Shared, study.CalShared{Name: q.Get("shared_name"), RelativeU: *ru, Standards: members})

@@ -531,17 +531,18 @@ func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
 	return req, nil
 }
 
+// compareParams are the query parameters of a CSV comparison.
+var compareParams = paramSpec{single: []string{"x_name", "y_name", "unit", "allowable_absolute", "allowable_percent",
+	"error_model", "lambda", "confidence", "resamples", "seed", "scheme"},
+	lists: []string{"decision_levels", "exclude"}, numeric: []string{"decision_levels"}}
+
 // CompareRequestFromQuery fills the options of a CSV study from query
 // parameters: x_name, y_name, unit, decision_levels (comma list),
 // allowable_absolute, allowable_percent, error_model, lambda, confidence,
 // resamples, seed, scheme, exclude (comma list of ids).
 func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
-	known := []string{"x_name", "y_name", "unit", "decision_levels", "allowable_absolute", "allowable_percent",
-		"error_model", "lambda", "confidence", "resamples", "seed", "scheme", "exclude"}
-	for k := range q {
-		if !slices.Contains(known, k) {
-			return Invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
-		}
+	if err := compareParams.check(q); err != nil {
+		return err
 	}
 	num := func(name string) (*float64, error) { return queryFloat(q, name) }
 	req.XName, req.YName, req.Unit, req.ErrorModel = q.Get("x_name"), q.Get("y_name"), q.Get("unit"), q.Get("error_model")
@@ -575,7 +576,7 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 	for _, v := range levels {
 		req.DecisionLevels = append(req.DecisionLevels, DecisionLevel{Level: v})
 	}
-	req.Exclude = SplitList(q.Get("exclude"))
+	req.Exclude = queryList(q, "exclude")
 	if lim := limitsOf(nil); len(req.Exclude) > lim.MaxPoints {
 		return tooMany("query parameter exclude", lim.MaxPoints, "excluded ids", KindTooLarge)
 	}

@@ -194,7 +194,7 @@ func methodFit(m *study.MethodResult) *MethodFit {
 
 func atOut(p *study.Prediction) AtOut {
 	bias := interval(p.Bias)
-	a := AtOut{X: p.X, Y: interval(p.Y), Bias: &bias}
+	a := AtOut{X: p.X, Extrapolated: p.Extrapolated, Y: interval(p.Y), Bias: &bias}
 	if iv := p.Boot; iv != nil {
 		a.Y.Bootstrap = bounds(iv)
 		a.Bias.Bootstrap = &Bounds{iv.Lower - p.X, iv.Upper - p.X}

@@ -36,6 +36,11 @@ func RecordFromQuery(q url.Values) (Record, url.Values, error) {
 			rest[k] = v
 		}
 	}
+	for _, k := range []string{"save", "label"} {
+		if len(q[k]) > 1 {
+			return r, rest, Invalid("query parameter "+k, Repeated(len(q[k])))
+		}
+	}
 	if v := q.Get("save"); v != "" {
 		switch v {
 		case "true":
@@ -139,7 +144,7 @@ func (r Record) Check(json bool) error {
 // StripRecordQuery removes the record's parameters from a raw query, as a
 // stored study's query is replayed.
 func StripRecordQuery(raw string) (url.Values, error) {
-	q, err := url.ParseQuery(raw)
+	q, err := ParseQuery(raw)
 	if err != nil {
 		return nil, err
 	}

@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"io"
 	"net/url"
-	"slices"
 	"strconv"
 	"strings"
 
@@ -61,16 +60,12 @@ var DefaultLimits = Limits{Limits: study.DefaultLimits, MaxBatch: 1000}
 // (comma list). Errors point at "query parameter NAME".
 func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 	req := &FitRequest{Points: *d}
-	for k := range q {
-		if !slices.Contains([]string{"methods", "lambda", "confidence", "resamples", "seed", "scheme", "at", "x_unit", "y_unit"}, k) {
-			return nil, Invalid("query parameter "+k, fmt.Sprintf("unknown query parameter %q", k))
-		}
+	if err := fitParams.check(q); err != nil {
+		return nil, err
 	}
 	num := func(name string) (*float64, error) { return queryFloat(q, name) }
 	var err error
-	if s := q.Get("methods"); s != "" {
-		req.Methods = SplitList(s)
-	}
+	req.Methods = queryList(q, "methods")
 	if req.Lambda, err = num("lambda"); err != nil {
 		return nil, err
 	}
@@ -106,6 +101,10 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 	return req, nil
 }
 
+// fitParams are the query parameters of a CSV fit.
+var fitParams = paramSpec{single: []string{"lambda", "confidence", "resamples", "seed", "scheme", "x_unit", "y_unit"},
+	lists: []string{"methods", "at"}, numeric: []string{"at"}}
+
 // queryFloat reads an optional finite number from the query.
 func queryFloat(q url.Values, name string) (*float64, error) {
 	s := q.Get(name)
@@ -119,10 +118,11 @@ func queryFloat(q url.Values, name string) (*float64, error) {
 	return &v, nil
 }
 
-// queryFloats reads an optional comma list of finite numbers from the query.
+// queryFloats reads an optional comma list of finite numbers from the
+// query (a repeated parameter appends).
 func queryFloats(q url.Values, name string) ([]float64, error) {
 	var out []float64
-	for _, f := range SplitList(q.Get(name)) {
+	for _, f := range queryList(q, name) {
 		v, err := finiteQuery(name, f)
 		if err != nil {
 			return nil, err

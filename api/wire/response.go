@@ -174,9 +174,12 @@ type Bounds struct {
 // AtOut is the prediction and the bias against identity at one x value;
 // Bias is absent when x and y are in different units.
 type AtOut struct {
-	X    float64   `json:"x"`
-	Y    Interval  `json:"y"`
-	Bias *Interval `json:"bias,omitempty"`
+	X float64 `json:"x"`
+	// Extrapolated says x lies outside the range of the data's x values
+	// (the answer also warns, code "extrapolated").
+	Extrapolated bool      `json:"extrapolated"`
+	Y            Interval  `json:"y"`
+	Bias         *Interval `json:"bias,omitempty"`
 }
 
 // Interval is an estimate with its confidence interval and, when the

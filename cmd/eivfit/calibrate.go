@@ -59,9 +59,13 @@ func runCalibrate(ctx context.Context, args []string, stdin io.Reader, stdout, s
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
 	sv := addSaveFlags(fs)
+	strict := newStrictFlags(fs, []string{"shared-standards"}, []string{"forward"})
 	file, done, err := parseFileArgs(fs, args, "calibrate", format, stderr)
 	if done {
 		return err
+	}
+	if err := strict.check(); err != nil {
+		return usageError(stderr, "calibrate", err)
 	}
 	if err := sv.check(setFlags(fs)); err != nil {
 		return usageError(stderr, "calibrate", err)

@@ -48,9 +48,13 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
 	sv := addSaveFlags(fs)
+	strict := newStrictFlags(fs, []string{"exclude"}, []string{"decision-levels"})
 	file, done, err := parseFileArgs(fs, args, "compare", format, stderr)
 	if done {
 		return err
+	}
+	if err := strict.check(); err != nil {
+		return usageError(stderr, "compare", err)
 	}
 	opts := &wire.CompareRequest{XName: *xName, YName: *yName, Unit: *unit, ErrorModel: *errorModel,
 		Confidence: confidence, Exclude: wire.SplitList(*exclude)}

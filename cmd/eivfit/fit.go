@@ -48,10 +48,14 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	xUnit := fs.String("x-unit", "", "unit of x")
 	yUnit := fs.String("y-unit", "", "unit of y (when it differs from x's, nothing compares y with x: no bias y − x)")
 	sv := addSaveFlags(fs)
+	strict := newStrictFlags(fs, []string{"methods"}, []string{"at"})
 
 	file, done, err := parseFileArgs(fs, args, "fit", format, stderr)
 	if done {
 		return err
+	}
+	if err := strict.check(); err != nil {
+		return usageError(stderr, "fit", err)
 	}
 	req := &wire.FitRequest{Methods: wire.SplitList(*methods), Confidence: confidence, At: nil}
 	if req.Lambda, err = flagFloat("lambda", *lambda); err != nil {

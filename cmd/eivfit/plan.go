@@ -64,6 +64,7 @@ func runPlan(ctx context.Context, args []string, stdin io.Reader, stdout, stderr
 	unit := str("unit", "unit of the measurand")
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
+	strict := newStrictFlags(fs, []string{"sizes", "differences"}, []string{"levels", "decision-levels"})
 	var files []string
 	for {
 		if err := fs.Parse(args); err != nil {
@@ -77,6 +78,9 @@ func runPlan(ctx context.Context, args []string, stdin io.Reader, stdout, stderr
 		}
 		files = append(files, fs.Arg(0))
 		args = fs.Args()[1:]
+	}
+	if err := strict.check(); err != nil {
+		return usageError(stderr, "plan", err)
 	}
 	if *format != "json" && *format != "text" {
 		return usageError(stderr, "plan", fmt.Errorf("--format must be json or text, not %q", *format))

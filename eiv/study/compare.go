@@ -421,7 +421,7 @@ func analyse(ctx context.Context, st *reduced, o *CompareOptions) (*Comparison, 
 	for i, l := range o.DecisionLevels {
 		levels[i] = l.Level
 	}
-	c.OLSBias, err = finish(ctx, s, c.Fits, levels, o.Bootstrap, o.Settings, &c.Warnings, index)
+	c.OLSBias, err = finish(ctx, s, c.Fits, levels, "decision level", o.Bootstrap, o.Settings, &c.Warnings, index)
 	if err != nil {
 		return nil, err
 	}

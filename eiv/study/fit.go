@@ -178,7 +178,14 @@ type Prediction struct {
 	// Boot is the bootstrap interval of the fitted y (BCa, else
 	// percentile), nil without a bootstrap; the bias's is Boot − X.
 	Boot *eiv.Interval
+	// Extrapolated says X lies outside the range of the fitted x values
+	// (the study then warns with WarnExtrapolated).
+	Extrapolated bool
 }
+
+// WarnExtrapolated is the code of the warning given for each "at" value
+// or decision level outside the range of the data's x values.
+const WarnExtrapolated = "extrapolated"
 
 // Predict returns the prediction at x0 and whether it has an interval.
 func (m *MethodResult) Predict(x0 float64) (eiv.Prediction, bool) {
@@ -257,7 +264,7 @@ func Fit(ctx context.Context, d Data, o *FitOptions) (*FitResult, error) {
 		res.Fits = append(res.Fits, r)
 	}
 	var err error
-	res.OLSBias, err = finish(ctx, s, res.Fits, o.At, o.Bootstrap, o.Settings, &res.Warnings, nil)
+	res.OLSBias, err = finish(ctx, s, res.Fits, o.At, "at value", o.Bootstrap, o.Settings, &res.Warnings, nil)
 	if err != nil {
 		return nil, err
 	}
@@ -411,22 +418,33 @@ func truncate(s string) string {
 	return s
 }
 
-// finish adds to each fit its predictions at the x values in at, its
+// finish adds to each fit its predictions at the x values in at (what
+// names them in the warning each one outside the range of s.X gets), its
 // bootstrap (when bo asks for one; every method refitted on the same
 // resamples, paired with OLS), and the OLS comparison. index maps a point
 // of s to the caller's data for errors (nil: the same).
-func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float64, bo *BootstrapOptions,
+func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float64, what string, bo *BootstrapOptions,
 	set Settings, warnings *[]Warning, index func(int) int) ([]*eiv.OLSComparison, error) {
 	n := s.Len()
 	var olsBias []*eiv.OLSComparison
 	olsFit := getFit(fits, "ols")
+	xlo, xhi := math.Inf(1), math.Inf(-1)
+	for _, v := range s.X {
+		xlo, xhi = math.Min(xlo, v), math.Max(xhi, v)
+	}
+	for _, x0 := range at {
+		if x0 < xlo || x0 > xhi {
+			*warnings = append(*warnings, Warning{Code: WarnExtrapolated, Message: fmt.Sprintf(
+				"the %s %g lies outside the range of the data's x values (%g to %g): the line is extrapolated there", what, x0, xlo, xhi)})
+		}
+	}
 	for _, f := range fits {
 		for _, w := range f.Fit.Warnings {
 			*warnings = append(*warnings, warning(f.Method.Name, w))
 		}
 		for _, x0 := range at {
 			p, ok := f.Predict(x0)
-			f.At = append(f.At, Prediction{Prediction: p, Available: ok})
+			f.At = append(f.At, Prediction{Prediction: p, Available: ok, Extrapolated: x0 < xlo || x0 > xhi})
 		}
 	}
 	boot := bo != nil && bo.Resamples > 0
