@@ -188,8 +188,8 @@ func TestReportWords(t *testing.T) {
 		name, target, file string
 		want               []string
 	}{
-		{"fit", "/v1/fit?at=7,11.1&x_unit=mmol/L&y_unit=mmol/L", "../testdata/demo-glucose.csv",
-			[]string{"Reported line: York, because", "York: χ² = ", "MSWD = ", "degrees of freedom", "weighted Deming", "intercept a (mmol/L)", "bias (mmol/L)"}},
+		{"fit", "/v1/fit?at=7,11.1,40&x_unit=mmol/L&y_unit=mmol/L", "../testdata/demo-glucose.csv",
+			[]string{"Reported line: York, because", "Read with care: x = 40 mmol/L lies outside the range of the data", "40 (extrapolated)", "York: χ² = ", "MSWD = ", "degrees of freedom", "weighted Deming", "intercept a (mmol/L)", "bias (mmol/L)"}},
 		{"compare", "/v1/method-comparison?decision_levels=3.9,7,11.1,30&allowable_percent=5&unit=mmol/L&exclude=D042", "../testdata/demo-glucose-duplicates.csv",
 			[]string{"Report the Passing–Bablok fit", "Outcome at the decision levels: Passing–Bablok:", "Without D042:", "Agreement: mean difference y − x",
 				"Read with care:", "Decision level 30 mmol/L lies outside the range of the data", "Flagged as outliers: D042",

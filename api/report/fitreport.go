@@ -78,6 +78,15 @@ func fitSummary(resp *wire.FitResponse, fitName string, diag wire.DiagnosticsOut
 			summary = append(summary, olsSentence(o, resp.Confidence, unitOf(resp)))
 		}
 	}
+	var extra []float64
+	for _, a := range m.At {
+		if a.Extrapolated {
+			extra = append(extra, a.X)
+		}
+	}
+	if len(extra) > 0 {
+		alerts = append(alerts, fmt.Sprintf("x = %s lies outside the range of the data; the fitted value there is extrapolated.", listText(extra, unitAfter(resp.XUnit))))
+	}
 	if y := resp.Fits.York; yorkInconsistent(y) {
 		alerts = append(alerts, yorkText(y))
 	}
