@@ -19,7 +19,7 @@ var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
 		return study.Fit(ctx, req.Points.Data, req.Options(set))
 	},
 	answer: func(req *wire.FitRequest, r *study.FitResult) any {
-		return wire.NewFitResponse(r).WithUnits(req.XUnit, req.YUnit)
+		return req.Response(r)
 	},
 	points: func(r *study.FitResult) int { return r.N },
 	record: &recordSpec[*wire.FitRequest, *study.FitResult]{

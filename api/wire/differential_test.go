@@ -26,8 +26,8 @@ func FuzzCSVDifferential(f *testing.F) {
 		if bytes.IndexByte(body, '"') >= 0 || bytes.IndexByte(body, '\r') >= 0 || !utfLines(body) {
 			return // quotes take the general path anyway; encoding/csv folds \r\n and bare \r
 		}
-		fast, ferr := decodeCSVPlain(body, 0)
-		std, serr := decodeCSVReader(body, 0)
+		fast, ferr := decodeCSVPlain(body, 0, nil)
+		std, serr := decodeCSVReader(body, 0, nil)
 		if (ferr == nil) != (serr == nil) {
 			t.Fatalf("fast: %v; encoding/csv: %v", ferr, serr)
 		}
