@@ -497,12 +497,12 @@ func CompareFromCSV(r io.Reader, q url.Values) (*CompareRequest, error) {
 	if err := CompareRequestFromQuery(rest, req); err != nil {
 		return nil, err
 	}
-	return req, req.takeUnit("query parameter unit")
+	return req, req.TakeUnit("query parameter unit")
 }
 
-// takeUnit sets the unit from the export unless given; a unit given that
+// TakeUnit sets the unit from the export unless given; a unit given that
 // differs from the export's is an error naming where it was given.
-func (req *CompareRequest) takeUnit(where string) error {
+func (req *CompareRequest) TakeUnit(where string) error {
 	switch {
 	case req.unit == "" || req.Unit == req.unit:
 	case req.Unit == "":

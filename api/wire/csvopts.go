@@ -2,6 +2,7 @@ package wire
 
 import (
 	"fmt"
+	"io"
 	"net/url"
 	"slices"
 	"strings"
@@ -307,4 +308,112 @@ func (o *CSVOptions) Query() url.Values {
 // groupByElsewhere refuses group_by where one study is decoded.
 func groupByElsewhere() error {
 	return Invalid(QueryName("group_by"), "group_by splits the file into one study per group, answered as a batch: send it with a text/csv body")
+}
+
+// Grouped is one study of a CSV split by group_by: its request, or the
+// problem that stops it (its options did not apply).
+type Grouped[Req any] struct {
+	Name string
+	Req  Req
+	Err  error
+}
+
+// groupQuery is the shared query with a group's own options in place.
+func groupQuery(rest url.Values, o *CSVOptions, group string) url.Values {
+	own := o.Groups[group]
+	if len(own) == 0 {
+		return rest
+	}
+	q := url.Values{}
+	for k, v := range rest {
+		q[k] = v
+	}
+	for k, v := range own {
+		q[k] = v
+	}
+	return q
+}
+
+// checkGroups refuses per-group options for a group the file lacks.
+func checkGroups(o *CSVOptions, names []string) error {
+	for g, v := range o.Groups {
+		if !slices.Contains(names, g) {
+			for k := range v {
+				return Invalid(o.where(k+"["+g+"]"), fmt.Sprintf("no group %q in column %s (groups: %s)", Truncate(g), Truncate(o.GroupBy), Truncate(strings.Join(names, ", "))))
+			}
+		}
+	}
+	return nil
+}
+
+// FitGroupsFromCSV reads a CSV split by group_by into one fit request per
+// group, each with the shared query options and its own (name[group]).
+// The shared options are checked once: a fault there refuses the request.
+func FitGroupsFromCSV(r io.Reader, q url.Values) ([]Grouped[*FitRequest], error) {
+	o, rest, err := TakeCSVOptions(q)
+	if err != nil {
+		return nil, err
+	}
+	if _, err := FitRequestFromQuery(rest, &Dataset{csv: true}); err != nil {
+		return nil, err
+	}
+	groups, err := DecodeCSVGroups(r, o)
+	if err != nil {
+		return nil, err
+	}
+	return fitGroups(groups, rest, o, func(q url.Values, d *Dataset) (*FitRequest, error) { return FitRequestFromQuery(q, d) })
+}
+
+// FitGroups makes one fit request per group from options built by opts
+// (the command line's flags, or the query).
+func fitGroups(groups []CSVGroup, rest url.Values, o *CSVOptions, opts func(url.Values, *Dataset) (*FitRequest, error)) ([]Grouped[*FitRequest], error) {
+	names := make([]string, len(groups))
+	for i, g := range groups {
+		names[i] = g.Name
+	}
+	if err := checkGroups(o, names); err != nil {
+		return nil, err
+	}
+	out := make([]Grouped[*FitRequest], len(groups))
+	for i, g := range groups {
+		req, err := opts(groupQuery(rest, o, g.Name), g.Data)
+		if err == nil {
+			req.TakeUnits()
+		}
+		out[i] = Grouped[*FitRequest]{Name: g.Name, Req: req, Err: err}
+	}
+	return out, nil
+}
+
+// CompareGroupsFromCSV reads a comparison CSV split by group_by into one
+// study per group, each with the shared options and its own
+// (decision_levels[glucose]=3.9,7).
+func CompareGroupsFromCSV(r io.Reader, q url.Values) ([]Grouped[*CompareRequest], error) {
+	o, rest, err := TakeCSVOptions(q)
+	if err != nil {
+		return nil, err
+	}
+	if err := CompareRequestFromQuery(rest, &CompareRequest{csv: true}); err != nil {
+		return nil, err
+	}
+	groups, err := DecodeCompareCSVGroups(r, o)
+	if err != nil {
+		return nil, err
+	}
+	names := make([]string, len(groups))
+	for i, g := range groups {
+		names[i] = g.Name
+	}
+	if err := checkGroups(o, names); err != nil {
+		return nil, err
+	}
+	out := make([]Grouped[*CompareRequest], len(groups))
+	for i, g := range groups {
+		err := CompareRequestFromQuery(groupQuery(rest, o, g.Name), g.Req)
+		if err == nil {
+			err = g.Req.TakeUnit(QueryName("unit"))
+		}
+		out[i] = Grouped[*CompareRequest]{Name: g.Name, Req: g.Req, Err: err}
+	}
+	return out, nil
 }

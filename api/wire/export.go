@@ -234,7 +234,7 @@ func readHeader(fields [][]byte, line int, o *CSVOptions, known func(key string)
 		}
 		if !o.ignore() {
 			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(h)), fmt.Sprintf(
-				"unknown column %q (known: %s); map it with columns=ROLE:%s, or read past it with extra_columns=ignore", Truncate(h), what, Truncate(h)))
+				"unknown column %q (known: %s); map it with %s, or read past it with %s", Truncate(h), what, o.optionText("columns", "ROLE:"+Truncate(h)), o.optionText("extra_columns", "ignore")))
 		}
 		lay.roles[j] = -1
 		lay.ignored = append(lay.ignored, h)
@@ -260,6 +260,15 @@ func (o *CSVOptions) mapsRole(i int, roleIndex func(string) int) bool {
 		}
 	}
 	return false
+}
+
+// optionText writes an option with its value as the caller gives it:
+// name=value in a query, --name value on the command line.
+func (o *CSVOptions) optionText(name, value string) string {
+	if o != nil && o.flags {
+		return FlagName(name) + " " + value
+	}
+	return name + "=" + value
 }
 
 // where names an option for an error: a query parameter unless the
@@ -402,7 +411,7 @@ func cellError(b []byte, o *CSVOptions) error {
 }
 
 // thousands says whether b looks like a number with a thousands separator:
-// digit groups of three after '.', ',', ' ' or '\'' with another mark (or
+// digit groups of three after '.', ',', ' ' or '\” with another mark (or
 // none) after them, as in 1,234.5, 1.234,5, 1 234 or 1'234.
 func thousands(b []byte) bool {
 	s := strings.TrimPrefix(string(b), "-")
@@ -448,7 +457,7 @@ func (m *missingRows) problem(o *CSVOptions) error {
 	if m.n > len(errs) {
 		errs = append(errs, FieldError{Pointer: "body", Detail: fmt.Sprintf("and %d more rows", m.n-len(errs))})
 	}
-	return NewProblem(KindInvalid, fmt.Sprintf("%d rows have a blank, missing or censored value; nothing is dropped unless asked: %s drops such rows and lists each in input.skipped_rows",
+	return NewProblem(KindInvalid, fmt.Sprintf("%d rows have a blank, missing or censored value; nothing is dropped unless asked: %s leaves such rows out and lists each in input.skipped_rows",
 		m.n, missingOption(o)), errs...)
 }
 

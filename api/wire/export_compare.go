@@ -246,11 +246,13 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 			if len(s.X) > 0 {
 				c = "y"
 			}
+			header := lay.names[slices.Index(lay.roles, map[string]int{"x": cmpX, "y": cmpY}[c])]
 			if skip {
-				a.skipped = append(a.skipped, SkippedRow{Row: line, Column: c, Reason: fmt.Sprintf("no %s value (blank cells)", c)})
+				a.skipped = append(a.skipped, SkippedRow{Row: line, Column: header, Reason: fmt.Sprintf("no %s value (blank cells)", c)})
 				continue
 			}
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, c), fmt.Sprintf("every sample needs at least one %s value", c))
+			missing.add(line, c, fmt.Sprintf("every sample needs at least one %s value", c))
+			continue
 		}
 		if err := a.add(s, line, count[cmpID] > 0); err != nil {
 			return nil, err
@@ -260,6 +262,10 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 		}
 	}
 	if err := missing.problem(o); err != nil {
+		if missing.n == 1 {
+			e := missing.errs[0]
+			return nil, Invalid(e.Pointer, e.Detail+"; "+missingOption(o)+" would leave the row out and list it")
+		}
 		return nil, err
 	}
 	if len(accs) == 0 {
