@@ -196,6 +196,18 @@ func readHeader(fields [][]byte, line int, o *CSVOptions, known func(key string)
 		}
 		groupKey, _ = headerKey(o.GroupBy)
 	}
+	if o != nil {
+		present := map[string]bool{}
+		for _, f := range fields {
+			k, _ := headerKey(string(f))
+			present[k] = true
+		}
+		for _, c := range o.Columns {
+			if k, _ := headerKey(c.Header); !present[k] {
+				return nil, Invalid(o.where("columns"), fmt.Sprintf("no column %q in the header (row %d)", Truncate(c.Header), line))
+			}
+		}
+	}
 	found := map[string]bool{}
 	for j, f := range fields {
 		if !utf8.Valid(f) {
@@ -240,11 +252,6 @@ func readHeader(fields [][]byte, line int, o *CSVOptions, known func(key string)
 		lay.ignored = append(lay.ignored, h)
 	}
 	if o != nil {
-		for _, c := range o.Columns {
-			if k, _ := headerKey(c.Header); !found[k] {
-				return nil, Invalid(o.where("columns"), fmt.Sprintf("no column %q in the header (row %d)", Truncate(c.Header), line))
-			}
-		}
 		if o.GroupBy != "" && lay.group < 0 {
 			return nil, Invalid(o.where("group_by"), fmt.Sprintf("no column %q in the header (row %d)", Truncate(o.GroupBy), line))
 		}
