@@ -5,6 +5,7 @@ import (
 	"database/sql"
 	"errors"
 	"fmt"
+	"io/fs"
 	"net/url"
 	"os"
 	"path/filepath"
@@ -36,6 +37,9 @@ func openSQLite(ctx context.Context, cfg Config) (*sqliteEngine, error) {
 	if err != nil {
 		return nil, err
 	}
+	if err := createWAL(ctx, abs); err != nil {
+		return nil, fmt.Errorf("%w: create %s: %v", errUnavailable, abs, err)
+	}
 	busy := strconv.FormatInt(cfg.BusyTimeout.Milliseconds(), 10)
 	u := url.URL{Scheme: "file", OmitHost: true, Path: abs}
 	common := "_pragma=busy_timeout(" + busy + ")&_pragma=foreign_keys(1)"
@@ -56,6 +60,60 @@ func openSQLite(ctx context.Context, cfg Config) (*sqliteEngine, error) {
 	}
 	r.SetMaxOpenConns(4)
 	return &sqliteEngine{sqlQuerier: sqlQuerier{q: r}, w: w}, nil
+}
+
+// createWAL makes sure the database file exists already in WAL mode.
+//
+// Turning a new database to WAL is a write that a connection starts
+// while it holds a read lock (it reads page 1, sees the rollback-journal
+// format and then asks for the write lock), and SQLite answers such an
+// upgrade with SQLITE_BUSY at once instead of waiting on its busy handler,
+// which could deadlock: processes or stores opening a new data directory
+// together failed with "database is locked". So the conversion is done
+// in a private file that no other connection can see, and the file is
+// then hard-linked into place, which fails if another opener was first;
+// every connection to the real file finds it in WAL mode already, and
+// journal_mode=WAL on it only reads. Every later write takes the write
+// lock up front (BEGIN IMMEDIATE), where SQLite does wait.
+func createWAL(ctx context.Context, path string) error {
+	if _, err := os.Lstat(path); err == nil || !errors.Is(err, fs.ErrNotExist) {
+		return err
+	}
+	dir := filepath.Dir(path)
+	f, err := os.CreateTemp(dir, ".eivfit-new-*.db")
+	if err != nil {
+		return err
+	}
+	tmp := f.Name()
+	f.Close()
+	defer os.Remove(tmp)
+	u := url.URL{Scheme: "file", OmitHost: true, Path: tmp}
+	db, err := sql.Open("sqlite", u.String()+"?_pragma=journal_mode(WAL)&_pragma=synchronous(FULL)")
+	if err != nil {
+		return err
+	}
+	var mode string
+	err = db.QueryRowContext(ctx, "PRAGMA journal_mode").Scan(&mode)
+	// Closing the last connection checkpoints and removes the -wal and
+	// -shm files; the WAL format stays in the file's header.
+	if cerr := db.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil && mode != "wal" {
+		err = fmt.Errorf("journal mode %q after asking for WAL", mode)
+	}
+	if err != nil {
+		return err
+	}
+	if err := os.Link(tmp, path); err != nil && !errors.Is(err, fs.ErrExist) {
+		return err
+	}
+	d, err := os.Open(dir)
+	if err != nil {
+		return err
+	}
+	defer d.Close()
+	return d.Sync() // the new name is durable before anything is stored under it
 }
 
 func (e *sqliteEngine) write(ctx context.Context, fn func(q querier) error) error {

@@ -7,7 +7,10 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"os"
+	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"testing"
@@ -626,20 +629,46 @@ func TestMigrations(t *testing.T) {
 	eachEngine(t, func(t *testing.T, cfg Config) {
 		ctx := context.Background()
 		// Replicas starting together: every Open succeeds and each step is
-		// applied once.
-		const n = 4
-		stores := make([]study.Store, n)
-		errs := make([]error, n)
-		var wg sync.WaitGroup
-		for i := range n {
-			wg.Go(func() { stores[i], errs[i] = Open(ctx, cfg) })
+		// applied once. On SQLite, a new database is opened together in
+		// many rounds: opens racing to create it once failed one time in
+		// about 75 rounds with "database is locked" (see createWAL).
+		const n = 6
+		rounds := 1
+		if cfg.DataDir != "" {
+			rounds = 40
 		}
-		wg.Wait()
-		for i := range n {
-			if errs[i] != nil {
-				t.Fatalf("open %d: %v", i, errs[i])
+		var stores []study.Store
+		rc := cfg
+		for round := range rounds {
+			rc = cfg
+			if cfg.DataDir != "" {
+				rc.DataDir = filepath.Join(cfg.DataDir, strconv.Itoa(round))
 			}
-			defer stores[i].Close()
+			stores = make([]study.Store, n)
+			errs := make([]error, n)
+			var wg sync.WaitGroup
+			for i := range n {
+				wg.Go(func() { stores[i], errs[i] = Open(ctx, rc) })
+			}
+			wg.Wait()
+			for i := range n {
+				if errs[i] != nil {
+					t.Fatalf("round %d, open %d: %v", round, i, errs[i])
+				}
+				defer stores[i].Close()
+			}
+			if rc.DataDir != "" {
+				// Nothing but the database and its WAL files is left behind.
+				entries, err := os.ReadDir(rc.DataDir)
+				if err != nil {
+					t.Fatal(err)
+				}
+				for _, e := range entries {
+					if !strings.HasPrefix(e.Name(), DatabaseFile) {
+						t.Errorf("round %d: %s left in the data directory", round, e.Name())
+					}
+				}
+			}
 		}
 		steps, err := loadMigrations(stores[0].(*db).e.name())
 		if err != nil {
@@ -659,10 +688,34 @@ func TestMigrations(t *testing.T) {
 		}); err != nil {
 			t.Fatal(err)
 		}
-		if _, err := Open(ctx, cfg); err == nil || !strings.Contains(err.Error(), "schema version 999") {
+		if _, err := Open(ctx, rc); err == nil || !strings.Contains(err.Error(), "schema version 999") {
 			t.Fatalf("a newer schema was accepted: %v", err)
 		}
 	})
+}
+
+// A new SQLite database is created in WAL mode before any store connects
+// to it: bytes 18 and 19 of the header (the file format's write and read
+// versions) are 2, which means WAL (SQLite's file format document,
+// https://sqlite.org/fileformat2.html, "The database header").
+func TestCreateWAL(t *testing.T) {
+	path := filepath.Join(t.TempDir(), DatabaseFile)
+	for i := range 2 { // the second call finds the file and leaves it as it is
+		if err := createWAL(context.Background(), path); err != nil {
+			t.Fatalf("call %d: %v", i, err)
+		}
+		b, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(b) < 100 || string(b[:16]) != "SQLite format 3\x00" || b[18] != 2 || b[19] != 2 {
+			t.Fatalf("call %d: %d bytes, header %q", i, len(b), b[:min(len(b), 20)])
+		}
+	}
+	entries, _ := os.ReadDir(filepath.Dir(path))
+	if len(entries) != 1 {
+		t.Errorf("files left: %v", entries)
+	}
 }
 
 func TestMigrationFilesBothEngines(t *testing.T) {

@@ -58,9 +58,17 @@ func runCalibrate(ctx context.Context, args []string, stdin io.Reader, stdout, s
 	}
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
+	sv := addSaveFlags(fs)
 	file, done, err := parseFileArgs(fs, args, "calibrate", format, stderr)
 	if done {
 		return err
+	}
+	if err := sv.check(setFlags(fs)); err != nil {
+		return usageError(stderr, "calibrate", err)
+	}
+	if sv.save {
+		return sv.run(ctx, saveRun{cmd: "calibrate", path: "/v1/calibration", format: *format, pretty: *pretty,
+			text: textOf(report.WriteCalibrationText)}, fs, file, stdin, stdout, stderr)
 	}
 	q := url.Values{}
 	for name, v := range vals {

@@ -48,6 +48,7 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
 	csvf := addCSVFlags(fs)
+	sv := addSaveFlags(fs)
 	file, done, err := parseFileArgs(fs, args, "compare", format, stderr)
 	if done {
 		return err
@@ -81,6 +82,13 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	o, err := csvf.options()
 	if err != nil {
 		return usageError(stderr, "compare", err)
+	}
+	if err := sv.check(setFlags(fs)); err != nil {
+		return usageError(stderr, "compare", err)
+	}
+	if sv.save {
+		return sv.run(ctx, saveRun{cmd: "compare", path: "/v1/method-comparison", format: *format, pretty: *pretty,
+			text: textOf(report.WriteCompareText)}, fs, file, stdin, stdout, stderr)
 	}
 	in, name, err := openInput(file, stdin, "compare", stderr)
 	if err != nil {

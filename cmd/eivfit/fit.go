@@ -48,6 +48,7 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	xUnit := fs.String("x-unit", "", "unit of x")
 	yUnit := fs.String("y-unit", "", "unit of y (when it differs from x's, nothing compares y with x: no bias y − x)")
 	csvf := addCSVFlags(fs)
+	sv := addSaveFlags(fs)
 
 	file, done, err := parseFileArgs(fs, args, "fit", format, stderr)
 	if done {
@@ -70,6 +71,13 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	o, err := csvf.options()
 	if err != nil {
 		return usageError(stderr, "fit", err)
+	}
+	if err := sv.check(setFlags(fs)); err != nil {
+		return usageError(stderr, "fit", err)
+	}
+	if sv.save {
+		return sv.run(ctx, saveRun{cmd: "fit", path: "/v1/fit", format: *format, pretty: *pretty, text: textOf(report.WriteText)},
+			fs, file, stdin, stdout, stderr)
 	}
 	in, name, err := openInput(file, stdin, "fit", stderr)
 	if err != nil {

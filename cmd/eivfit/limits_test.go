@@ -9,50 +9,12 @@ import (
 	"net"
 	"net/http"
 	"os"
-	"os/exec"
 	"strconv"
 	"strings"
 	"sync"
 	"testing"
 	"time"
 )
-
-// serveProcess is `eivfit serve` as a real process (the test binary stands
-// in for the eivfit binary, see TestMain) on a free loopback port.
-type serveProcess struct {
-	base string
-	cmd  *exec.Cmd
-}
-
-func startServe(t *testing.T, env []string, args ...string) *serveProcess {
-	t.Helper()
-	cmd := exec.Command(os.Args[0], append([]string{"serve", "--addr", "127.0.0.1:0", "--log-level", "error"}, args...)...)
-	cmd.Env = append(append(os.Environ(), "EIVFIT_TEST_AS_BINARY=1"), env...)
-	out, err := cmd.StdoutPipe()
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := cmd.Start(); err != nil {
-		t.Fatal(err)
-	}
-	sc := bufio.NewScanner(out)
-	p := &serveProcess{cmd: cmd}
-	for sc.Scan() {
-		if u, ok := strings.CutPrefix(sc.Text(), "eivfit dev listening on "); ok {
-			p.base = u
-			break
-		}
-	}
-	go io.Copy(io.Discard, out)
-	t.Cleanup(func() {
-		_ = cmd.Process.Signal(os.Interrupt)
-		_ = cmd.Wait()
-	})
-	if p.base == "" {
-		t.Fatal("the server did not start")
-	}
-	return p
-}
 
 // peakRSS reads the process's peak resident set (VmHWM) in bytes.
 func (p *serveProcess) peakRSS(t *testing.T) int64 {

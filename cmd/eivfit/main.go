@@ -54,6 +54,9 @@ Usage:
   eivfit load [flags]         load-test a server on loopback
   eivfit version              print the version
 
+fit, compare and calibrate keep the study with --save (in --data-dir, as the
+server does, or on --server URL), with --label and --tag KEY=VALUE.
+
 Run "eivfit COMMAND -h" for a command's flags.
 `
 
