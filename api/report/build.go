@@ -375,6 +375,9 @@ func FitReport(ctx context.Context, resp *wire.FitResponse, res *study.FitResult
 		}
 	}
 	p.Sections = append(p.Sections, Section{Heading: "Input", Text: inputs})
+	if s, ok := inputSection(resp.Input); ok {
+		p.Sections = append(p.Sections, s)
+	}
 	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(resp.Fits)}}
 	if t, ok := uncertaintyTable(resp.Fits); ok {
 		fits.Tables = append(fits.Tables, t)
@@ -429,6 +432,9 @@ func CompareReport(ctx context.Context, resp *wire.CompareResponse, sc *study.Co
 	a := c.Agreement
 	p.Summary = append(p.Summary, fmt.Sprintf("Mean difference (y − x) %s%s (%s); limits of agreement %s to %s%s.",
 		g(a.MeanDifference.Estimate), unit, ciText(a.MeanDifference.CI), g(a.LimitsOfAgreement.Lower.Estimate), g(a.LimitsOfAgreement.Upper.Estimate), unit))
+	if s, ok := inputSection(resp.Input); ok {
+		p.Sections = append(p.Sections, s)
+	}
 	p.Sections = append(p.Sections, Section{Heading: "Error model", Text: []string{c.ErrorModel.Reading,
 		fmt.Sprintf("Model used: %s (%s); λ = %s (%s).", c.ErrorModel.Model, c.ErrorModel.Source, g(c.ErrorModel.Lambda), c.ErrorModel.LambdaSource)}})
 	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(c.Fits)}}

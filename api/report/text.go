@@ -88,6 +88,7 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 			fmt.Fprintf(&b, "  %s\n", c.Summary)
 		}
 	}
+	writeInputText(&b, r.Input)
 	if len(r.Warnings) > 0 {
 		b.WriteString("\nWarnings:\n")
 		for _, wn := range r.Warnings {
@@ -127,6 +128,7 @@ func WriteCompareText(w io.Writer, r *wire.CompareResponse) error {
 		fmt.Fprintf(&b, "\n==== Without %s ====\n", strings.Join(r.WithoutExcluded.Excluded, ", "))
 		writeComparisonText(&b, r, r.WithoutExcluded)
 	}
+	writeInputText(&b, r.Input)
 	fmt.Fprintf(&b, "\n%s\n%s\n", r.SignConvention, r.Caution)
 	_, err := io.WriteString(w, b.String())
 	return err
