@@ -3,7 +3,10 @@ package eiv_test
 import (
 	"context"
 	"fmt"
+	"math"
 	"testing"
+
+	"gonum.org/v1/gonum/stat/distuv"
 
 	"eivfit/eiv"
 )
@@ -58,3 +61,29 @@ func BenchmarkCalibrationInverse(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkCoverageK: the coverage factor at 1,000 ν below the expansion's
+// range (uncached, as for unknowns with different ν_eff), against gonum's
+// StudentsT.Quantile (the inverse incomplete beta), which coverageK used
+// before behind a cache that a new ν misses.
+func BenchmarkCoverageK(b *testing.B) {
+	for _, bc := range []struct {
+		name string
+		f    func(p, nu float64) float64
+	}{
+		{"coverageK", eiv.CoverageK},
+		{"gonum", func(p, nu float64) float64 {
+			return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: math.Trunc(nu)}.Quantile(0.5 + p/2)
+		}},
+	} {
+		b.Run(bc.name, func(b *testing.B) {
+			for b.Loop() {
+				for i := range 1000 {
+					sinkK = bc.f(0.95, 3+0.39*float64(i)) // ν from 3 to 392: the iterative range
+				}
+			}
+		})
+	}
+}
+
+var sinkK float64

@@ -2,6 +2,9 @@ package eiv
 
 // The Monte Carlo helpers exported to the tests of package eiv_test.
 var (
-	ShortestInterval = shortestInterval
-	StudentT         = studentT
+	ShortestInterval  = shortestInterval
+	RadixSort         = radixSort
+	StudentT          = studentT
+	TTwoSidedQuantile = tTwoSidedQuantile
+	CoverageK         = coverageK
 )

@@ -111,36 +111,38 @@ func (c *Calibration) MonteCarlo(ctx context.Context, inv *InverseResult, opt *M
 	}
 	blocks := (M + MonteCarloBlock - 1) / MonteCarloBlock
 	workers = min(workers, blocks)
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for range workers {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			var pcg rand.PCG
-			rng := rand.New(&pcg)
-			for ctx.Err() == nil {
-				j := int(next.Add(1)) - 1
-				if j >= blocks {
-					return
-				}
-				pcg.Seed(opt.Seed, uint64(j))
-				draw.fill(rng, vals[j*MonteCarloBlock:min((j+1)*MonteCarloBlock, M)])
-			}
-		}()
-	}
-	wg.Wait()
+	// Each block's sum, added in block order below, so that the mean does
+	// not depend on which worker drew which block.
+	sums := make([]float64, blocks)
+	parallelBlocks(ctx, workers, blocks, func(j int) {
+		var pcg rand.PCG
+		pcg.Seed(opt.Seed, uint64(j))
+		blk := vals[j*MonteCarloBlock : min((j+1)*MonteCarloBlock, M)]
+		draw.fill(&pcg, blk)
+		var s float64
+		for _, v := range blk {
+			s += v
+		}
+		sums[j] = s
+	})
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
 	var sum float64
-	for _, v := range vals {
-		sum += v
+	for _, s := range sums {
+		sum += s
 	}
 	mean := sum / float64(M)
+	parallelBlocks(ctx, workers, blocks, func(j int) {
+		var ss float64
+		for _, v := range vals[j*MonteCarloBlock : min((j+1)*MonteCarloBlock, M)] {
+			ss += (v - mean) * (v - mean)
+		}
+		sums[j] = ss
+	})
 	var ss float64
-	for _, v := range vals {
-		ss += (v - mean) * (v - mean)
+	for _, s := range sums {
+		ss += s
 	}
 	if !allFinite(mean, ss) {
 		return nil, fmt.Errorf("%w: a Monte Carlo trial drew a slope of zero", ErrDegenerate)
@@ -159,6 +161,25 @@ func (c *Calibration) MonteCarlo(ctx context.Context, inv *InverseResult, opt *M
 			100*p, lo, hi, res.LinearLower, res.LinearUpper, res.Tolerance)})
 	}
 	return res, nil
+}
+
+// parallelBlocks runs do(j) for j = 0..blocks−1 on workers goroutines,
+// stopping early when ctx is cancelled.
+func parallelBlocks(ctx context.Context, workers, blocks int, do func(j int)) {
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Go(func() {
+			for ctx.Err() == nil {
+				j := int(next.Add(1)) - 1
+				if j >= blocks {
+					return
+				}
+				do(j)
+			}
+		})
+	}
+	wg.Wait()
 }
 
 // NumericalTolerance is JCGM 101:2008 §7.9.2's δ for a standard
@@ -183,20 +204,22 @@ type mcDraw struct {
 }
 
 // fill writes one x₀ per element of out.
-func (d *mcDraw) fill(rng *rand.Rand, out []float64) {
+func (d *mcDraw) fill(src *rand.PCG, out []float64) {
+	rng := rand.New(src)
 	if math.IsInf(d.nu, 1) {
+		// ȳ₀ − YRef is the difference of two independent normals, itself
+		// normal with the sum of their variances: one draw instead of two.
+		dy, udy := d.y0-d.yr, math.Hypot(d.uy0, d.uyr)
 		for i := range out {
-			c := d.yr + d.uyr*rng.NormFloat64()
 			b := d.b + d.ub*rng.NormFloat64()
-			y := d.y0 + d.uy0*rng.NormFloat64()
-			out[i] = d.xr + (y-c)/b
+			out[i] = d.xr + (dy+udy*rng.NormFloat64())/b
 		}
 		return
 	}
 	for i := range out {
 		c := d.yr + d.uyr*rng.NormFloat64()
 		b := d.b + d.ub*rng.NormFloat64()
-		y := d.y0 + d.uy0*studentT(rng, d.nu)
+		y := d.y0 + d.uy0*studentT(src, d.nu)
 		out[i] = d.xr + (y-c)/b
 	}
 }
@@ -208,10 +231,13 @@ func (d *mcDraw) fill(rng *rand.Rand, out []float64) {
 //
 // W^(−2/ν) − 1 is written without logarithms for the ν of two to five
 // readings: (1 − W²)/W² for ν = 1, (1 − W)/W for ν = 2, 1/√W − 1 for ν = 4.
-func studentT(rng *rand.Rand, nu float64) float64 {
+//
+// The uniforms are drawn from src directly as rand.Rand.Float64 forms them
+// (the low 53 bits over 2⁵³), without the interface call.
+func studentT(src *rand.PCG, nu float64) float64 {
 	for {
-		u := 2*rng.Float64() - 1
-		v := 2*rng.Float64() - 1
+		u := 2*(float64(src.Uint64()<<11>>11)/(1<<53)) - 1
+		v := 2*(float64(src.Uint64()<<11>>11)/(1<<53)) - 1
 		w := u*u + v*v
 		if !(w > 0 && w < 1) {
 			continue
@@ -232,30 +258,136 @@ func studentT(rng *rand.Rand, nu float64) float64 {
 }
 
 // shortestInterval returns the shortest interval holding q = ⌊pM + ½⌋ of
-// the M values (JCGM 101 §7.7.2): [y₍ᵣ₎, y₍ᵣ₊q₋₁₎] over r. Only the M − q + 1
-// smallest and largest values need to be in order; they are separated by
-// selection and sorted, so the cost is O(M) plus O((M − q)·log(M − q)).
-// vals is reordered.
+// the M values (JCGM 101 §7.7.2): [y₍ᵣ₎, y₍ᵣ₊q₋₁₎] over r, the first such r
+// when several are equally short. Only the L = M − q + 1 smallest and
+// largest values need to be in order. They are found by splitting at two
+// thresholds taken from a sample of the values, with a margin, and checked
+// to hold at least L values each (then they hold the L smallest and
+// largest exactly); the two tails are sorted concurrently. When the check
+// fails (heavy ties) they are separated by selection instead. vals is
+// reordered.
 func shortestInterval(vals []float64, p float64) (lo, hi float64) {
 	M := len(vals)
 	q := int(p*float64(M) + 0.5)
 	q = max(1, min(q, M))
-	L := M - q + 1 // candidate lower ends: ranks 0..L−1; upper ends: ranks q−1..M−1
-	if 2*L >= M {
+	L := M - q + 1          // candidate lower ends: ranks 0..L−1; upper ends: ranks q−1..M−1
+	var low, high []float64 // low[r] = y₍ᵣ₎, high[len(high)−L+r] = y₍ᵣ₊q₋₁₎
+	switch {
+	case 2*L >= M:
 		slices.Sort(vals)
-	} else {
-		selectK(vals, L)
-		selectK(vals[L:], q-1-L)
-		slices.Sort(vals[:L])
-		slices.Sort(vals[q-1:])
+		low, high = vals, vals
+	default:
+		var ok bool
+		if low, high, ok = splitTails(vals, L); !ok {
+			selectK(vals, L)
+			selectK(vals[L:], q-1-L)
+			low, high = vals[:L], vals[q-1:]
+		}
+		var wg sync.WaitGroup
+		wg.Go(func() { radixSort(low) })
+		radixSort(high)
+		wg.Wait()
 	}
+	off := len(high) - L
 	best := math.Inf(1)
 	for r := range L {
-		if w := vals[r+q-1] - vals[r]; w < best {
-			best, lo, hi = w, vals[r], vals[r+q-1]
+		if w := high[off+r] - low[r]; w < best {
+			best, lo, hi = w, low[r], high[off+r]
 		}
 	}
 	return lo, hi
+}
+
+// splitTails copies the values at or below a low threshold and at or above a
+// high one, thresholds read from a strided sample of 4096 values with a
+// margin of about eight sampling standard deviations beyond rank L. ok says
+// that each tail holds at least L values, hence the L smallest (largest)
+// values of all, and that the tails are disjoint.
+func splitTails(vals []float64, L int) (low, high []float64, ok bool) {
+	M := len(vals)
+	const ns = 4096
+	if M < 8*ns {
+		return nil, nil, false
+	}
+	sample := make([]float64, ns)
+	stride := M / ns
+	for i := range sample {
+		sample[i] = vals[i*stride]
+	}
+	slices.Sort(sample)
+	e := float64(L) / float64(M) * ns // expected sample rank of the L-th value
+	k := int(e + 8*math.Sqrt(e) + 8)
+	if 2*k >= ns {
+		return nil, nil, false
+	}
+	tLow, tHigh := sample[k], sample[ns-1-k]
+	if !(tLow < tHigh) {
+		return nil, nil, false
+	}
+	c := int(float64(M)*float64(k+1)/ns*1.25) + 64
+	low, high = make([]float64, 0, c), make([]float64, 0, c)
+	for _, v := range vals {
+		if v <= tLow {
+			low = append(low, v)
+		} else if v >= tHigh {
+			high = append(high, v)
+		}
+	}
+	return low, high, len(low) >= L && len(high) >= L
+}
+
+// radixSort sorts finite values in ascending order by a least-significant-
+// digit radix sort of their IEEE 754 bits, mapped to unsigned keys whose
+// order is the values' order (negative values: all bits flipped; others:
+// the sign bit set), eight passes of eight bits, a pass skipped when every
+// key has the same digit. O(n), against O(n log n) comparisons.
+func radixSort(a []float64) {
+	n := len(a)
+	if n < 256 {
+		slices.Sort(a)
+		return
+	}
+	keys, tmp := make([]uint64, n), make([]uint64, n)
+	for i, v := range a {
+		k := math.Float64bits(v)
+		if k>>63 == 1 {
+			k = ^k
+		} else {
+			k |= 1 << 63
+		}
+		keys[i] = k
+	}
+	var count [8][256]int
+	for _, k := range keys {
+		for d := range 8 {
+			count[d][byte(k>>(8*d))]++
+		}
+	}
+	for d := range 8 {
+		c := &count[d]
+		if c[byte(keys[0]>>(8*d))] == n {
+			continue
+		}
+		sum := 0
+		for i, v := range c {
+			c[i] = sum
+			sum += v
+		}
+		for _, k := range keys {
+			b := byte(k >> (8 * d))
+			tmp[c[b]] = k
+			c[b]++
+		}
+		keys, tmp = tmp, keys
+	}
+	for i, k := range keys {
+		if k>>63 == 1 {
+			k &^= 1 << 63
+		} else {
+			k = ^k
+		}
+		a[i] = math.Float64frombits(k)
+	}
 }
 
 // selectK reorders a so that a[:k] ≤ a[k] ≤ a[k+1:] (Hoare's selection with

@@ -133,7 +133,7 @@ func TestMonteCarloCancel(t *testing.T) {
 func TestStudentTDraws(t *testing.T) {
 	for _, nu := range []float64{1, 2, 3, 4, 5, 30} {
 		const n = 50_000
-		rng := rand.New(rand.NewPCG(3, uint64(nu)))
+		rng := rand.NewPCG(3, uint64(nu))
 		vals := make([]float64, n)
 		for i := range vals {
 			vals[i] = eiv.StudentT(rng, nu)
@@ -159,13 +159,21 @@ func TestShortestInterval(t *testing.T) {
 		name string
 		n    int
 		p    float64
-	}{{"n=1000 p=0.95", 1000, 0.95}, {"n=12345 p=0.99", 12345, 0.99}, {"n=500 p=0.5", 500, 0.5}, {"n=777 p=0.3", 777, 0.3}} {
+		ties int // every ties-th value repeats an earlier one (1: all equal)
+	}{
+		{"n=1000 p=0.95", 1000, 0.95, 50}, {"n=12345 p=0.99", 12345, 0.99, 50},
+		{"n=500 p=0.5", 500, 0.5, 50}, {"n=777 p=0.3", 777, 0.3, 50},
+		// Large enough for the split at sampled thresholds.
+		{"n=200003 p=0.95", 200_003, 0.95, 50}, {"n=100000 p=0.9999", 100_000, 0.9999, 50},
+		// All equal: the sampled thresholds coincide and selection takes over.
+		{"n=100000 all equal", 100_000, 0.95, 1},
+	} {
 		t.Run(tc.name, func(t *testing.T) {
 			v := make([]float64, tc.n)
 			for i := range v {
 				v[i] = math.Exp(r.NormFloat64()) // skewed
-				if i%50 == 0 {
-					v[i] = v[i-i%50] // ties
+				if i%tc.ties == 0 && i > 0 {
+					v[i] = v[(i-1)/tc.ties*tc.ties] // ties
 				}
 			}
 			s := slices.Clone(v)
@@ -198,5 +206,42 @@ func TestNumericalTolerance(t *testing.T) {
 		if got := eiv.NumericalTolerance(tc.u, tc.n); math.Abs(got-tc.want) > 1e-15*tc.want {
 			t.Errorf("u = %g, %d digits: δ = %g, want %g", tc.u, tc.n, got, tc.want)
 		}
+	}
+}
+
+// The radix sort of the shortest interval's tails against slices.Sort:
+// the same order bit for bit, over signs, zeros of both signs (sorted
+// equal, so compared by value), subnormals and huge values.
+func TestRadixSort(t *testing.T) {
+	r := rand.New(rand.NewPCG(9, 9))
+	for _, tc := range []struct {
+		name string
+		gen  func(i int) float64
+	}{
+		{"normal", func(int) float64 { return r.NormFloat64() }},
+		{"positive skewed", func(int) float64 { return math.Exp(3 * r.NormFloat64()) }},
+		{"wide range", func(int) float64 { return (r.Float64() - 0.5) * math.Pow(10, float64(r.IntN(600)-300)) }},
+		{"few values", func(i int) float64 { return float64(i%7) - 3 }},
+		{"short", nil},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			n := 5000
+			gen := tc.gen
+			if gen == nil {
+				n, gen = 100, func(int) float64 { return r.Float64() }
+			}
+			v := make([]float64, n)
+			for i := range v {
+				v[i] = gen(i)
+			}
+			want := slices.Clone(v)
+			slices.Sort(want)
+			eiv.RadixSort(v)
+			for i := range v {
+				if v[i] != want[i] {
+					t.Fatalf("at %d: %g, want %g", i, v[i], want[i])
+				}
+			}
+		})
 	}
 }
