@@ -26,7 +26,17 @@ func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, m
 	if maxBatch > 0 && len(req.Datasets) > maxBatch {
 		return nil, wire.Invalid("/datasets", fmt.Sprintf("at most %d datasets per batch", maxBatch))
 	}
-	out := &wire.BatchResponse{Results: make([]wire.BatchResult, len(req.Datasets))}
+	out := runEach(ctx, len(req.Datasets), set, func(ctx context.Context, i int, set study.Settings) wire.BatchResult {
+		return runEntry(ctx, i, req.Datasets[i], set)
+	}, func(i int) wire.BatchResult { return unfinished(i, req.Datasets[i]) })
+	return out, nil
+}
+
+// runEach runs n studies, set.Workers of them at once (zero means
+// GOMAXPROCS), each on one core. When ctx ends, the studies already done
+// keep their results and every other one gets left(i).
+func runEach(ctx context.Context, n int, set study.Settings, run func(context.Context, int, study.Settings) wire.BatchResult, left func(int) wire.BatchResult) *wire.BatchResponse {
+	out := &wire.BatchResponse{Results: make([]wire.BatchResult, n)}
 	workers := set.Workers
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
@@ -34,17 +44,17 @@ func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, m
 	set.Workers = 1
 	work := make(chan int)
 	var wg sync.WaitGroup
-	for range min(workers, len(req.Datasets)) {
+	for range min(workers, n) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
 			for i := range work {
-				out.Results[i] = runEntry(ctx, i, req.Datasets[i], set)
+				out.Results[i] = run(ctx, i, set)
 			}
 		}()
 	}
 dispatch:
-	for i := range req.Datasets {
+	for i := range n {
 		select {
 		case work <- i:
 		case <-ctx.Done():
@@ -56,7 +66,7 @@ dispatch:
 	for i := range out.Results {
 		r := &out.Results[i]
 		if r.Status == 0 { // never started: the batch ended first
-			*r = unfinished(i, req.Datasets[i])
+			*r = left(i)
 		}
 		if r.Status == http.StatusOK {
 			out.OK++
@@ -64,7 +74,7 @@ dispatch:
 			out.Failed++
 		}
 	}
-	return out, nil
+	return out
 }
 
 // unfinished is the result of a dataset the batch's deadline left unfitted.

@@ -38,4 +38,12 @@ func (s *Server) comparePage(ctx context.Context, a *compareAnswer, in report.In
 }
 
 // handleCompare serves POST /v1/method-comparison.
-func (s *Server) handleCompare(c *gin.Context) { serve(s, c, compareEndpoint, s.comparePage) }
+// With group_by, a CSV is split into one study per group, answered as a
+// batch (groups.go).
+func (s *Server) handleCompare(c *gin.Context) {
+	if c.Query("group_by") != "" {
+		serveGroups(s, c, compareEndpoint, compareGroupsFromBody, putCompare)
+		return
+	}
+	serve(s, c, compareEndpoint, s.comparePage)
+}

@@ -19,7 +19,7 @@ var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
 		return study.Fit(ctx, req.Points.Data, req.Options(set))
 	},
 	answer: func(req *wire.FitRequest, r *study.FitResult) any {
-		return wire.NewFitResponse(r).WithUnits(req.XUnit, req.YUnit)
+		return req.Response(r)
 	},
 	points: func(r *study.FitResult) int { return r.N },
 	record: &recordSpec[*wire.FitRequest, *study.FitResult]{
@@ -41,4 +41,12 @@ func (s *Server) fitPage(ctx context.Context, a *fitAnswer, in report.Input) (*r
 
 // handleFit serves POST /v1/fit: JSON, or CSV with the options in the
 // query; answered with JSON, or the HTML report for Accept: text/html.
-func (s *Server) handleFit(c *gin.Context) { serve(s, c, fitEndpoint, s.fitPage) }
+// With group_by, a CSV is split into one fit per group, answered as a
+// batch (groups.go).
+func (s *Server) handleFit(c *gin.Context) {
+	if c.Query("group_by") != "" {
+		serveGroups(s, c, fitEndpoint, fitGroupsFromBody, putFit)
+		return
+	}
+	serve(s, c, fitEndpoint, s.fitPage)
+}

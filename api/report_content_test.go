@@ -262,3 +262,23 @@ func TestStoredReportRecord(t *testing.T) {
 		t.Errorf("the signature block: %s", sig)
 	}
 }
+
+// Rows an export leaves out (missing=skip) are counted in the provenance
+// and listed with their reasons in the appendix.
+func TestReportSkippedRows(t *testing.T) {
+	h := newHarness(t, Config{})
+	csv := "# export\nx,y\n1,2.1\n2,3.9\n3,NA\n4,7.8\n5,10.1\n6,12.2\n"
+	rec := h.do("POST", "/v1/fit?missing=skip&methods=ols,deming", "text/csv", csv, "Accept", "text/html")
+	if rec.Code != 200 {
+		t.Fatalf("%d %s", rec.Code, wire.Truncate(rec.Body.String()))
+	}
+	page := rec.Body.String()
+	prov := pageText([]byte(section(t, page, "provenance")))
+	if !strings.Contains(prov, "5 data rows (points); 1 comment or blank lines skipped; 1 data rows left out (missing=skip)") {
+		t.Errorf("the provenance does not count the skipped row: %s", prov)
+	}
+	app := section(t, page, "appendix")
+	if !strings.Contains(app, "Rows left out") || !regexp.MustCompile(`<tr class="bad"><td class="num">5</td><td>y</td><td>NA</td>`).MatchString(app) {
+		t.Errorf("the appendix does not list row 5 as left out: %s", pageText([]byte(app)))
+	}
+}

@@ -54,7 +54,7 @@ func TestPlots(t *testing.T) {
 		labels  []string
 		markers int // data points (+1 where the legend shows a sample glyph)
 	}{
-		{"data", []string{"Data and fitted lines", "x", "y", "identity y = x", "OLS", "york"}, n + 1},
+		{"data", []string{"Data and fitted lines", "x", "y", "identity y = x", "OLS", "York"}, n + 1},
 		{"residuals", []string{"Residuals against level", "level, mean of x and y", "residual / stated SD"}, n},
 		{"run-order", []string{"Residuals in run order", "run order"}, n},
 		{"qq", []string{"Normal Q-Q plot", "standard normal quantile", "standardized residual"}, n},

@@ -17,7 +17,8 @@ import (
 // Values are first scaled by the power of two 2^−e that brings the largest
 // magnitude into [0.5, 1): scaling by a power of two is exact, so nothing
 // overflows and subnormals keep their digits. The view is the scaled data
-// range padded by 3 % each side; equal values get a view of ±1/16 of their
+// range padded by 6 % each side (so that no marker or line drawn over
+// the data's range touches the frame); equal values get a view of ±1/16 of their
 // magnitude (±1 around zero).
 type axis struct {
 	e      int     // scale exponent: s(v) = v·2^−e
@@ -62,7 +63,7 @@ func newAxis(vals ...[]float64) axis {
 		h := math.Abs(lo) / 16
 		lo, hi = lo-h, hi+h
 	}
-	pad := 0.03 * (hi - lo)
+	pad := 0.06 * (hi - lo)
 	a.lo, a.w = lo-pad, (hi-lo)+2*pad
 	a.ticks = a.makeTicks()
 	return a

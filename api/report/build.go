@@ -61,13 +61,13 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		if ps.ols != nil && ps.fitName != "ols" {
 			ols = &Line{Name: "OLS", Intercept: ps.ols.Intercept.Estimate, Slope: ps.ols.Slope.Estimate}
 		}
-		b, err := DataPlot(ctx, ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes)
+		b, err := DataPlot(ctx, ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes, ps.flagged(kind)...)
 		return b, true, err
 	case "residuals":
-		b, err := ResidualPlot(ctx, level, resid, ps.axes, d.Scale)
+		b, err := ResidualPlot(ctx, level, resid, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "run-order":
-		b, err := RunOrderPlot(ctx, order, resid, ps.axes, d.Scale)
+		b, err := RunOrderPlot(ctx, order, resid, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "qq":
 		th, sm := make([]float64, len(d.Normality.QQ)), make([]float64, len(d.Normality.QQ))
@@ -86,10 +86,10 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 			mean[i], diff[i] = ps.x[i]/2+ps.y[i]/2, ps.y[i]-ps.x[i] // never overflows
 		}
 		if f, ok := differenceForm(a); ok {
-			b, err := DifferencePlotForm(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes)
+			b, err := DifferencePlotForm(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes, ps.flagged(kind)...)
 			return b, true, err
 		}
-		b, err := DifferencePlot(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes)
+		b, err := DifferencePlot(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes, ps.flagged(kind)...)
 		return b, true, err
 	case "bootstrap":
 		bs := ps.fit.Bootstrap
@@ -376,7 +376,7 @@ func (ps *plotSet) figures(ctx context.Context) ([]Figure, error) {
 			if k == "data" && !ps.axes.SameScale() {
 				c = strings.Replace(c, ", the OLS line and the identity line.", " and the OLS line (x and y are in different units: no identity line).", 1)
 			}
-			out = append(out, Figure{Caption: c, SVG: SVG(b)})
+			out = append(out, Figure{Caption: ps.captionFor(k, c), SVG: SVG(b)})
 		}
 	}
 	return out, nil

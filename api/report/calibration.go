@@ -42,12 +42,17 @@ func CalibrationPlot(ctx context.Context, x, y, ux, uy []float64, line Line, x0,
 		for i := range x0 {
 			xv = append(xv, []float64{x0[i] - U[i], x0[i] + U[i]})
 		}
+		yv := [][]float64{y, y0, line.BandLo, line.BandHi}
+		if !Binned(len(x)) { // the error bars are drawn whole
+			xv = append(xv, spread(x, ux, -1), spread(x, ux, 1))
+			yv = append(yv, spread(y, uy, -1), spread(y, uy, 1))
+		}
 		xa := newAxis(xv...)
 		lo, hi := math.Min(slices.Min(x), minOr(x0, math.Inf(1))), math.Max(slices.Max(x), maxOr(x0, math.Inf(-1)))
 		f := newFigure("Calibration line", ax.label(ax.X), ax.labelY(ax.Y), xa,
-			newAxis(y, y0, line.BandLo, line.BandHi, lineEnds(line, lo, hi)))
+			newAxis(append(yv, lineEnds(line, lo, hi))...))
 		f.band(line)
-		f.line(line, lo, hi, inkFit, nil, fmt.Sprintf("%s: y = %.5g + %.5g x", line.Name, line.Intercept, line.Slope))
+		f.line(line, lo, hi, inkFit, nil, fmt.Sprintf("%s line: y = %.5g + %.5g x", strings.ToUpper(line.Name), line.Intercept, line.Slope))
 		if !Binned(len(x)) {
 			f.errorBars(x, y, ux, uy)
 		}
@@ -72,7 +77,7 @@ func CalibrationPlot(ctx context.Context, x, y, ux, uy []float64, line Line, x0,
 			}
 			s.GlyphStyle = draw.GlyphStyle{Color: inkUnknown, Radius: vg.Points(3.5), Shape: draw.TriangleGlyph{}}
 			f.add(markers, s)
-			f.p.Legend.Add("unknowns x₀ (bars ±U)", s)
+			f.legendAdd("unknowns x₀ (bars ±U)", s)
 		}
 		return f, nil
 	})
@@ -115,7 +120,6 @@ func StandardizedResidualPlot(ctx context.Context, x, z []float64, ax Axes) ([]b
 		f.hline(0, lo, hi, inkIdentity, dashRef, "")
 		f.hline(2, lo, hi, inkLimit, dashLimit, "±2")
 		f.hline(-2, lo, hi, inkLimit, dashLimit, "")
-		f.p.Legend.Top, f.p.Legend.Left = false, false
 		_, err := f.points(ctx, x, z, "")
 		return f, err
 	})
@@ -311,7 +315,7 @@ func CalibrationReport(ctx context.Context, req *wire.CalibrationRequest, r *wir
 // calProvenance is every setting of a calibration that changes a number.
 func calProvenance(req *wire.CalibrationRequest, r *wire.CalibrationResponse, made Made) []KV {
 	d := &req.Data
-	kv := made.inputKVs(len(d.Standards)+len(d.Unknowns), fmt.Sprintf("rows: %d standards, %d unknowns", len(d.Standards), len(d.Unknowns)))
+	kv := made.inputKVs(len(d.Standards)+len(d.Unknowns), fmt.Sprintf("rows: %d standards, %d unknowns", len(d.Standards), len(d.Unknowns)), nil)
 	model := modelName(r.Line.Model) + ", chosen from the data"
 	if req.Model != "" {
 		model = modelName(r.Line.Model) + ", as requested"
@@ -387,7 +391,7 @@ func calAppendix(req *wire.CalibrationRequest, r *wire.CalibrationResponse, made
 		st.Rows = append(st.Rows, row)
 	}
 	sec := Section{Heading: "Appendix: the data as analysed", ID: "appendix",
-		Text:   []string{appendixText(made, "Flagged standards are marked; they are kept in the line. A u(y) left empty was not stated (the pooled replicate SD is used).")},
+		Text:   []string{appendixText(made, nil, "Flagged standards are marked; they are kept in the line. A u(y) left empty was not stated (the pooled replicate SD is used).")},
 		Tables: []Table{st}}
 	if len(d.Unknowns) > 0 {
 		ut := Table{Caption: "Unknowns", Header: []string{"row", "id", withUnit("readings y", yu), withUnit("u(y) of one reading", yu)}, Numeric: []int{0, 3}}

@@ -284,6 +284,9 @@ func CompareReport(ctx context.Context, req *wire.CompareRequest, resp *wire.Com
 	// Outcome first.
 	p.Summary, p.Alerts = compareSummary(resp)
 
+	if s, ok := inputSection(resp.Input); ok {
+		p.Sections = append(p.Sections, s)
+	}
 	p.Sections = append(p.Sections, Section{Heading: "Error model", Text: []string{c.ErrorModel.Reading,
 		fmt.Sprintf("Model used: %s (%s); λ = %s (%s).", c.ErrorModel.Model, c.ErrorModel.Source, g(c.ErrorModel.Lambda), lambdaSourceText(c.ErrorModel.LambdaSource))}})
 	if len(c.DecisionLevels) > 0 {
@@ -330,7 +333,7 @@ func CompareReport(ctx context.Context, req *wire.CompareRequest, resp *wire.Com
 		p.Sections = append(p.Sections, sec)
 	}
 
-	kv := made.inputKVs(len(req.Samples), "samples")
+	kv := made.inputKVs(len(req.Samples), "samples", resp.Input)
 	kv = append(kv,
 		KV{Key: "Methods", Value: methodsText(c.Fits)},
 		KV{Key: "Error model", Value: fmt.Sprintf("%s (%s): %s", c.ErrorModel.Model, c.ErrorModel.Source, c.ErrorModel.Reading)},
@@ -347,7 +350,7 @@ func CompareReport(ctx context.Context, req *wire.CompareRequest, resp *wire.Com
 		kv = append(kv, KV{Key: "Unit", Value: unit})
 	}
 	p.Provenance = kv
-	p.Appendix = compareAppendix(req, c.Diagnostics, unit, made)
+	p.Appendix = withSkipped(compareAppendix(req, c.Diagnostics, unit, resp.Input, made), resp.Input)
 	return p, nil
 }
 
@@ -380,7 +383,7 @@ func exclusionsText(ids []string) string {
 // compareAppendix lists the samples as given: the replicates of each
 // method, their uncertainties and run order; excluded samples and flagged
 // outliers are marked.
-func compareAppendix(req *wire.CompareRequest, diag wire.DiagnosticsOut, unit string, made Made) Section {
+func compareAppendix(req *wire.CompareRequest, diag wire.DiagnosticsOut, unit string, how *wire.InputOut, made Made) Section {
 	n := len(req.Samples)
 	if n > MaxAppendixRows {
 		return appendixTooLarge(n, made)
@@ -431,6 +434,6 @@ func compareAppendix(req *wire.CompareRequest, diag wire.DiagnosticsOut, unit st
 		t.Rows = append(t.Rows, row)
 	}
 	return Section{Heading: "Appendix: the data as analysed", ID: "appendix",
-		Text:   []string{appendixText(made, "Excluded samples and flagged outliers are marked; the main analysis keeps every sample, the section without the excluded samples leaves the excluded ones out.")},
+		Text:   []string{appendixText(made, how, "Excluded samples and flagged outliers are marked; the main analysis keeps every sample, the section without the excluded samples leaves the excluded ones out.")},
 		Tables: []Table{t}}
 }

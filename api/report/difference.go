@@ -28,8 +28,8 @@ type DifferenceForm struct {
 
 // DifferencePlot is the Bland–Altman plot: y − x against the mean of the
 // two, with the mean difference and the limits of agreement.
-func DifferencePlot(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, ax Axes) ([]byte, error) {
-	return DifferencePlotForm(ctx, mean, diff, meanDiff, lower, upper, DifferenceForm{Form: "constant"}, ax)
+func DifferencePlot(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, ax Axes, flagged ...Flagged) ([]byte, error) {
+	return DifferencePlotForm(ctx, mean, diff, meanDiff, lower, upper, DifferenceForm{Form: "constant"}, ax, flagged...)
 }
 
 // DifferencePlotForm is DifferencePlot with the limits of the form the
@@ -38,7 +38,7 @@ func DifferencePlot(ctx context.Context, mean, diff []float64, meanDiff, lower, 
 // square itself (see axis): the y view holds the differences, zero and
 // each drawn line at the ends of the means' range, and the lines are
 // clipped to the view.
-func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, f DifferenceForm, ax Axes) ([]byte, error) {
+func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, f DifferenceForm, ax Axes, flagged ...Flagged) ([]byte, error) {
 	if len(mean) == 0 {
 		return nil, ErrNoData
 	}
@@ -58,7 +58,7 @@ func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, low
 		switch f.Form {
 		case "regression":
 			ls = []drawnLine{
-				{Line{Intercept: f.B0, Slope: f.B1}, inkFit, nil, fmt.Sprintf("bias %.4g %+.4g·A", f.B0, f.B1)},
+				{Line{Intercept: f.B0, Slope: f.B1}, inkFit, nil, "bias = " + affine(f.B0, f.B1)},
 				{Line{Intercept: f.B0 - f.K*f.C0, Slope: f.B1 - f.K*f.C1}, inkLimit, dashLimit, "regression-based limits of agreement"},
 				{Line{Intercept: f.B0 + f.K*f.C0, Slope: f.B1 + f.K*f.C1}, inkLimit, dashLimit, ""},
 			}
@@ -77,7 +77,7 @@ func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, low
 		}
 		if f.Proportional && f.Form != "regression" {
 			ls = append(ls, drawnLine{Line{Intercept: f.B0, Slope: f.B1}, inkOLS, []vg.Length{vg.Points(2), vg.Points(2)},
-				fmt.Sprintf("differences on means %.4g %+.4g·A", f.B0, f.B1)})
+				"regression of differences: " + affine(f.B0, f.B1)})
 		}
 		yv := [][]float64{diff, {0}}
 		for _, d := range ls {
@@ -89,7 +89,18 @@ func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, low
 		for _, d := range ls {
 			fg.line(d.l, lo, hi, d.ink, d.dash, d.legend)
 		}
-		_, err := fg.points(ctx, mean, diff, "")
-		return fg, err
+		if _, err := fg.points(ctx, mean, diff, ""); err != nil {
+			return nil, err
+		}
+		return fg, fg.flag(mean, diff, flagged)
 	})
+}
+
+// affine writes b0 + b1 × mean with the sign of b1 as an operator.
+func affine(b0, b1 float64) string {
+	op := "+"
+	if b1 < 0 {
+		op, b1 = "−", -b1
+	}
+	return fmt.Sprintf("%.4g %s %.4g × mean", b0, op, b1)
 }

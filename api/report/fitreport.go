@@ -122,6 +122,9 @@ func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse
 	inputs := []string{fmt.Sprintf("%d points; x from %s to %s%s, y from %s to %s%s.", resp.N, g(slices.Min(d.X)), g(slices.Max(d.X)), unitAfter(xu),
 		g(slices.Min(d.Y)), g(slices.Max(d.Y)), unitAfter(yu))}
 	p.Sections = append(p.Sections, Section{Heading: "Input", Text: inputs})
+	if s, ok := inputSection(resp.Input); ok {
+		p.Sections = append(p.Sections, s)
+	}
 	fits := Section{Heading: "Fits", Tables: []Table{fitsTable(resp.Fits, resp.Confidence, yu)}}
 	if t, ok := uncertaintyTable(resp.Fits); ok {
 		fits.Tables = append(fits.Tables, t)
@@ -158,7 +161,7 @@ func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse
 	}
 	p.Sections = append(p.Sections, Section{Heading: "Plots", Figures: figs})
 
-	kv := made.inputKVs(resp.N, "data rows (points)")
+	kv := made.inputKVs(resp.N, "data rows (points)", resp.Input)
 	kv = append(kv,
 		KV{Key: "Methods", Value: methodsText(resp.Fits) + requestedText(req.Methods)},
 		KV{Key: "λ (Deming fits)", Value: lambdaText(resp.Fits)},
@@ -172,7 +175,7 @@ func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse
 		kv = append(kv, KV{Key: "Units", Value: fmt.Sprintf("x: %s; y: %s", orNone(xu), orNone(yu))})
 	}
 	p.Provenance = kv
-	p.Appendix = fitAppendix(d, ps.diag, xu, yu, made)
+	p.Appendix = withSkipped(fitAppendix(d, ps.diag, xu, yu, resp.Input, made), resp.Input)
 	return p, nil
 }
 
@@ -226,7 +229,7 @@ func columnsText(d *study.Data) string {
 }
 
 // fitAppendix lists the points as analysed; flagged outliers are marked.
-func fitAppendix(d *study.Data, diag wire.DiagnosticsOut, xu, yu string, made Made) Section {
+func fitAppendix(d *study.Data, diag wire.DiagnosticsOut, xu, yu string, how *wire.InputOut, made Made) Section {
 	n := d.Len()
 	if n > MaxAppendixRows {
 		return appendixTooLarge(n, made)
@@ -261,6 +264,6 @@ func fitAppendix(d *study.Data, diag wire.DiagnosticsOut, xu, yu string, made Ma
 		t.Rows = append(t.Rows, row)
 	}
 	return Section{Heading: "Appendix: the data as analysed", ID: "appendix",
-		Text:   []string{appendixText(made, "Flagged outliers are marked; they are kept in every fit.")},
+		Text:   []string{appendixText(made, how, "Flagged outliers are marked; they are kept in every fit.")},
 		Tables: []Table{t}}
 }

@@ -19,6 +19,8 @@ import (
 	"regexp"
 	"slices"
 
+	"eivfit/eiv/study"
+
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
 	"gonum.org/v1/plot/plotter"
@@ -38,6 +40,8 @@ var (
 	inkLimit    = color.RGBA{0xCC, 0x79, 0xA7, 0xff}  // reddish purple: limits
 	inkBar      = color.RGBA{0x56, 0xB4, 0xE9, 0xff}  // sky blue: histogram
 	inkError    = color.NRGBA{0x00, 0x72, 0xB2, 0x80} // error bars
+	inkFlagged  = color.RGBA{0x00, 0x00, 0x00, 0xff}  // black: the diamond round a flagged outlier
+	inkFrame    = color.RGBA{0x4D, 0x4D, 0x4D, 0xff}  // dark grey: the frame of the data area
 )
 
 func init() {
@@ -111,6 +115,19 @@ type figure struct {
 	// Layers, drawn in order: areas (bands, densities, bars), lines,
 	// markers.
 	layers [3][]plot.Plotter
+	// legend is drawn below the plot, outside the data area (see render).
+	legend []legendEntry
+}
+
+// legendEntry is one line of a legend: its sample and its text.
+type legendEntry struct {
+	text  string
+	thumb plot.Thumbnailer
+}
+
+// legendAdd names a drawn layer in the legend.
+func (f *figure) legendAdd(text string, th plot.Thumbnailer) {
+	f.legend = append(f.legend, legendEntry{text: text, thumb: th})
 }
 
 const (
@@ -132,10 +149,14 @@ func newFigure(title, xl, yl string, x, y axis) *figure {
 	p.Y.Label.Text = f.y.label(yl)
 	p.X.Label.TextStyle.Font.Size = vg.Points(11)
 	p.Y.Label.TextStyle.Font.Size = vg.Points(11)
-	p.Add(plotter.NewGrid())
-	p.Legend.Top = true
-	p.Legend.Left = true
-	p.Legend.TextStyle.Font.Size = vg.Points(9)
+	p.Title.Padding = vg.Points(8)
+	p.Add(plotter.NewGrid(), frame{})
+	// The frame is the data area's border: the axes draw no line of their
+	// own, and their ticks start at the frame.
+	for _, a := range []*plot.Axis{&p.X, &p.Y} {
+		a.LineStyle.Width = 0
+		a.Padding = 0
+	}
 	return f
 }
 
@@ -160,7 +181,7 @@ func (f *figure) line(l Line, xlo, xhi float64, c color.Color, dash []vg.Length,
 	if ln := f.segment(xlo, l.at(xlo), xhi, l.at(xhi), c, vg.Points(1.6), dash); ln != nil {
 		f.add(lines, ln)
 		if legend != "" {
-			f.p.Legend.Add(legend, ln)
+			f.legendAdd(legend, ln)
 		}
 	}
 }
@@ -184,7 +205,7 @@ func (f *figure) points(ctx context.Context, xs, ys []float64, legend string) (*
 			return nil, err
 		}
 		f.add(areas, d)
-		f.p.Legend.Add(d.legend(), d)
+		f.legendAdd(d.legend(), d)
 		return d, nil
 	}
 	s, err := plotter.NewScatter(unitXYs(u, v))
@@ -194,7 +215,7 @@ func (f *figure) points(ctx context.Context, xs, ys []float64, legend string) (*
 	s.GlyphStyle = draw.GlyphStyle{Color: inkPoint, Radius: vg.Points(2.6), Shape: draw.CircleGlyph{}}
 	f.add(markers, s)
 	if legend != "" {
-		f.p.Legend.Add(legend, s)
+		f.legendAdd(legend, s)
 	}
 	return nil, nil
 }
@@ -211,15 +232,27 @@ var xmlHeader = regexp.MustCompile(`(?s)^<\?xml[^>]*\?>\s*(<!--.*?-->\s*)?`)
 
 // render draws the figure as SVG for inline use: the XML declaration is
 // dropped and the size given in CSS pixels' proportions so the page can
-// scale it.
+// scale it. The legend takes a strip below the plot, so the SVG is taller
+// by the strip.
 func (f *figure) render() ([]byte, error) {
 	p := f.p
 	for _, l := range f.layers {
 		p.Add(l...)
 	}
 	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = 0, 1, 0, 1
-	c := vgsvg.New(plotW, plotH)
-	p.Draw(draw.New(c))
+	sty := legendStyle()
+	rows := f.legendRows(sty, plotW-2*legendInset)
+	lh := legendHeight(rows)
+	c := vgsvg.New(plotW, plotH+lh)
+	dc := draw.New(c)
+	pc := draw.Crop(dc, 0, -rightMargin, lh, 0)
+	for range 2 { // the y labels' width sets the x axis's length
+		da := p.DataCanvas(pc)
+		thinTicks(&f.x, p.X.Tick.Label, da.Max.X-da.Min.X, true)
+		thinTicks(&f.y, p.Y.Tick.Label, da.Max.Y-da.Min.Y, false)
+	}
+	p.Draw(pc)
+	drawLegend(draw.Crop(dc, 0, 0, 0, -plotH), sty, rows)
 	var b bytes.Buffer
 	if _, err := c.WriteTo(&b); err != nil {
 		return nil, err
@@ -264,7 +297,7 @@ func lineEnds(l Line, lo, hi float64) []float64 {
 // DataPlot draws the points with their σx and σy error bars (when given,
 // and up to MaxMarkers points), the errors-in-variables line with its
 // confidence band, the OLS line and the identity line y = x.
-func DataPlot(ctx context.Context, x, y, sx, sy []float64, fit Line, ols *Line, ax Axes) ([]byte, error) {
+func DataPlot(ctx context.Context, x, y, sx, sy []float64, fit Line, ols *Line, ax Axes, flagged ...Flagged) ([]byte, error) {
 	if len(x) == 0 {
 		return nil, ErrNoData
 	}
@@ -277,27 +310,60 @@ func DataPlot(ctx context.Context, x, y, sx, sy []float64, fit Line, ols *Line, 
 		if ols != nil {
 			yv = append(yv, lineEnds(*ols, xlo, xhi))
 		}
-		f := newFigure("Data and fitted lines", ax.label(ax.X), ax.labelY(ax.Y), newAxis(x), newAxis(yv...))
+		xv := [][]float64{x}
+		if !Binned(len(x)) { // the error bars are drawn whole
+			xv = append(xv, spread(x, sx, -1), spread(x, sx, 1))
+			yv = append(yv, spread(y, sy, -1), spread(y, sy, 1))
+		}
+		f := newFigure("Data and fitted lines", ax.label(ax.X), ax.labelY(ax.Y), newAxis(xv...), newAxis(yv...))
 		f.band(fit)
 		// The identity line across the view: its ends are found in unit
 		// coordinates, so no data value is formed outside float64. Only
 		// when x and y share a unit.
 		if id := f.identity(); id != nil && ax.SameScale() {
 			f.add(lines, id)
-			f.p.Legend.Add("identity y = x", id)
+			f.legendAdd("identity y = x", id)
 		}
 		if ols != nil {
 			f.line(*ols, xlo, xhi, inkOLS, dashLimit, fmt.Sprintf("OLS: y = %.4g + %.4g x", ols.Intercept, ols.Slope))
 		}
-		f.line(fit, xlo, xhi, inkFit, nil, fmt.Sprintf("%s: y = %.4g + %.4g x", fit.Name, fit.Intercept, fit.Slope))
+		f.line(fit, xlo, xhi, inkFit, nil, fmt.Sprintf("%s: y = %.4g + %.4g x", displayName(fit.Name), fit.Intercept, fit.Slope))
 		if !Binned(len(x)) {
 			f.errorBars(x, y, sx, sy)
 		}
-		if _, err := f.points(ctx, x, y, "samples"); err != nil {
+		legend := "samples"
+		if !Binned(len(x)) && (sx != nil || sy != nil) {
+			legend = "samples, bars ±1 stated SD"
+		}
+		if _, err := f.points(ctx, x, y, legend); err != nil {
 			return nil, err
 		}
-		return f, nil
+		return f, f.flag(x, y, flagged)
 	})
+}
+
+// spread is v + sign·s elementwise, nil without s; an end that overflows
+// is left out of the view (its bar is clipped).
+func spread(v, s []float64, sign float64) []float64 {
+	if s == nil {
+		return nil
+	}
+	out := make([]float64, 0, len(v))
+	for i := range v {
+		if e := v[i] + sign*s[i]; !math.IsInf(e, 0) && !math.IsNaN(e) {
+			out = append(out, e)
+		}
+	}
+	return out
+}
+
+// displayName is a method's name in words ("Passing–Bablok" for
+// passing_bablok); other names are kept.
+func displayName(name string) string {
+	if m := study.MethodNamed(name); m != nil {
+		return m.Display
+	}
+	return name
 }
 
 // band draws the line's pointwise band, clipped to the view, when it has
@@ -395,7 +461,7 @@ func (s *segments) Plot(c draw.Canvas, p *plot.Plot) {
 }
 
 // ResidualPlot draws residuals against level with the zero line.
-func ResidualPlot(ctx context.Context, level, resid []float64, ax Axes, scale string) ([]byte, error) {
+func ResidualPlot(ctx context.Context, level, resid []float64, ax Axes, scale string, flagged ...Flagged) ([]byte, error) {
 	if len(level) == 0 {
 		return nil, ErrNoData
 	}
@@ -406,8 +472,10 @@ func ResidualPlot(ctx context.Context, level, resid []float64, ax Axes, scale st
 		f := newFigure("Residuals against level", ax.label("level, mean of x and y"), residualLabel(ax, scale),
 			newAxis(level), newAxis(resid, []float64{0}))
 		f.hline(0, slices.Min(level), slices.Max(level), inkIdentity, dashRef, "")
-		_, err := f.points(ctx, level, resid, "")
-		return f, err
+		if _, err := f.points(ctx, level, resid, ""); err != nil {
+			return nil, err
+		}
+		return f, f.flag(level, resid, flagged)
 	})
 }
 
@@ -424,7 +492,7 @@ func residualLabel(ax Axes, scale string) string {
 // RunOrderPlot draws residuals in run order, joined, with the zero line.
 // Above MaxMarkers points it draws their density and joins the mean
 // residual of each column instead.
-func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale string) ([]byte, error) {
+func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale string, flagged ...Flagged) ([]byte, error) {
 	if len(order) == 0 {
 		return nil, ErrNoData
 	}
@@ -470,12 +538,14 @@ func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale st
 			ln.LineStyle = draw.LineStyle{Color: inkError, Width: vg.Points(0.7)}
 			if legend != "" {
 				ln.LineStyle = draw.LineStyle{Color: inkFit, Width: vg.Points(1.2)}
-				f.p.Legend.Add(legend, ln)
+				f.legendAdd(legend, ln)
 			}
 			f.add(lines, ln)
 		}
-		_, err := f.points(ctx, order, resid, "")
-		return f, err
+		if _, err := f.points(ctx, order, resid, ""); err != nil {
+			return nil, err
+		}
+		return f, f.flag(order, resid, flagged)
 	})
 }
 
@@ -493,7 +563,7 @@ func QQPlot(ctx context.Context, theoretical, sample []float64) ([]byte, error) 
 		f := newFigure("Normal Q-Q plot of standardized residuals", "standard normal quantile", "standardized residual", both, both)
 		if ref := f.identity(); ref != nil {
 			f.add(lines, ref)
-			f.p.Legend.Add("normal reference", ref)
+			f.legendAdd("normal reference", ref)
 		}
 		_, err := f.points(ctx, theoretical, sample, "")
 		return f, err
@@ -550,7 +620,7 @@ func BootstrapPlot(ctx context.Context, slopes []float64, estimate, lower, upper
 			if ln := f.segment(x, 0, x, top*1.05, c, vg.Points(1.6), dash); ln != nil {
 				f.add(lines, ln)
 				if legend != "" {
-					f.p.Legend.Add(legend, ln)
+					f.legendAdd(legend, ln)
 				}
 			}
 		}

@@ -3,7 +3,6 @@ package report
 import (
 	"bytes"
 	"crypto/sha256"
-	"encoding/hex"
 	"fmt"
 	"strconv"
 	"strings"
@@ -33,7 +32,7 @@ type Input struct {
 // InputOf describes a body as received; csv says it was read as CSV.
 func InputOf(raw []byte, csv bool) Input {
 	sum := sha256.Sum256(raw)
-	in := Input{SHA256: hex.EncodeToString(sum[:]), Format: "JSON", Bytes: len(raw)}
+	in := Input{SHA256: fmt.Sprintf("%x", sum), Format: "JSON", Bytes: len(raw)}
 	if !csv {
 		return in
 	}
@@ -83,11 +82,16 @@ func (m Made) header() []KV {
 
 // inputKVs are the provenance lines on the input: its hash, form, and the
 // rows read and skipped.
-func (m Made) inputKVs(rows int, what string) []KV {
+func (m Made) inputKVs(rows int, what string, how *wire.InputOut) []KV {
 	in := m.Input
 	read := fmt.Sprintf("%d %s", rows, what)
 	if in.Format == "CSV" {
-		read += fmt.Sprintf("; %d comment or blank lines skipped; no data row skipped", in.Skipped)
+		read += fmt.Sprintf("; %d comment or blank lines skipped", in.Skipped)
+		if n := skippedRows(how); n > 0 {
+			read += fmt.Sprintf("; %d data rows left out (missing=skip), each listed with its reason in the appendix", n)
+		} else {
+			read += "; no data row skipped"
+		}
 	}
 	return []KV{
 		{Key: "Software", Value: m.softwareText()},
@@ -188,13 +192,33 @@ func appendixTooLarge(rows int, m Made) Section {
 		rows, MaxAppendixRows, m.Input.SHA256, m.Input.Format, m.Input.Bytes)}}
 }
 
+func skippedRows(how *wire.InputOut) int {
+	if how == nil {
+		return 0
+	}
+	return len(how.SkippedRows)
+}
+
 // appendixText is the appendix's opening sentence.
-func appendixText(m Made, marks string) string {
+func appendixText(m Made, how *wire.InputOut, marks string) string {
 	s := "The input as analysed, in input order."
 	if m.Input.Format == "CSV" {
-		s += fmt.Sprintf(" Every data row was read; %d comment or blank lines were skipped.", m.Input.Skipped)
+		switch n := skippedRows(how); n {
+		case 0:
+			s += fmt.Sprintf(" Every data row was read; %d comment or blank lines were skipped.", m.Input.Skipped)
+		default:
+			s += fmt.Sprintf(" %d comment or blank lines were skipped, and %d data rows were left out (missing=skip): they are listed under \"Rows left out\" with their reasons.", m.Input.Skipped, n)
+		}
 	}
 	return s + " " + marks
+}
+
+// withSkipped adds the rows left out to an appendix.
+func withSkipped(sec Section, how *wire.InputOut) Section {
+	if t, ok := skippedTable(how); ok {
+		sec.Tables = append(sec.Tables, t)
+	}
+	return sec
 }
 
 // exact prints an input value as read, to the last digit (the shortest

@@ -93,6 +93,7 @@ func WriteText(w io.Writer, r *wire.FitResponse) error {
 			fmt.Fprintf(&b, "  %s\n", olsSentence(c, r.Confidence, unitOf(r)))
 		}
 	}
+	writeInputText(&b, r.Input)
 	if len(r.Warnings) > 0 {
 		b.WriteString("\nWarnings:\n")
 		for _, wn := range r.Warnings {
@@ -196,6 +197,7 @@ func WriteCompareText(w io.Writer, r *wire.CompareResponse) error {
 	if r.WithoutExcluded != nil {
 		excl = strings.Join(r.WithoutExcluded.Excluded, ", ") + " (analysed with and without)"
 	}
+	writeInputText(&b, r.Input)
 	writeSettingsText(&b, []KV{
 		{Key: "methods", Value: methodsText(c.Fits)},
 		{Key: "error model", Value: c.ErrorModel.Model + " (" + c.ErrorModel.Source + ")"},

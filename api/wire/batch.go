@@ -25,8 +25,11 @@ type BatchResponse struct {
 // BatchResult is the outcome of one dataset: Fit when Status is 200,
 // otherwise Problem.
 type BatchResult struct {
-	Name    string       `json:"name"`
-	Status  int          `json:"status"`
-	Fit     *FitResponse `json:"fit,omitempty"`
-	Problem *Problem     `json:"problem,omitempty"`
+	Name   string       `json:"name"`
+	Status int          `json:"status"`
+	Fit    *FitResponse `json:"fit,omitempty"`
+	// Comparison is a method comparison's answer (a CSV split by
+	// group_by on /v1/method-comparison).
+	Comparison *CompareResponse `json:"comparison,omitempty"`
+	Problem    *Problem         `json:"problem,omitempty"`
 }

@@ -9,8 +9,6 @@ import (
 	"regexp"
 	"slices"
 	"strconv"
-	"strings"
-	"unicode/utf8"
 
 	"eivfit/eiv/study"
 )
@@ -39,7 +37,14 @@ type CompareRequest struct {
 
 	csv  bool
 	rows []int
+	// input says how a CSV export was read; unit is the unit its header
+	// or units row gave.
+	input *InputOut
+	unit  string
 }
+
+// Input says how a CSV export was read (nil when there is nothing to say).
+func (req *CompareRequest) Input() *InputOut { return req.input }
 
 // Sample is one patient sample: one value or replicates per method. In
 // JSON: {"id": "S1", "x": [5.1, 5.2], "y": 5.4, "sx": …, "sy": …, "order": …}.
@@ -405,131 +410,8 @@ var replicateColumn = regexp.MustCompile(`^([xy])_?([0-9]{1,2})$`)
 // id (optional), order (optional), the x replicates (x, or x1, x2, … / x_1,
 // …) and the y replicates likewise, and optionally sx and sy. Empty
 // replicate cells are allowed as long as each sample keeps one value per
-// method.
-func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) {
-	lim := limitsOf(r)
-	body, err := csvBody(r)
-	if err != nil {
-		return nil, err
-	}
-	cr := newCSVReader(body)
-	header, err := cr.Read()
-	if err == io.EOF {
-		return nil, Invalid("row 1", "the CSV body is empty: a header (id,x1,x2,y1,y2) and one row per sample are needed")
-	}
-	if err != nil {
-		return nil, csvReadError(err)
-	}
-	line, _ := cr.FieldPos(0)
-	type col struct {
-		kind string // "id", "order", "x", "y", "sx", "sy"
-	}
-	cols := make([]col, len(header))
-	seen := map[string]bool{}
-	for j, h := range header {
-		name := strings.ToLower(strings.TrimSpace(h))
-		if !utf8.ValidString(name) {
-			return nil, Invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
-		}
-		if seen[name] {
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(name)), fmt.Sprintf("column %q appears twice", name))
-		}
-		seen[name] = true
-		switch {
-		case slices.Contains([]string{"id", "order", "x", "y", "sx", "sy"}, name):
-			cols[j] = col{name}
-		case replicateColumn.MatchString(name):
-			cols[j] = col{replicateColumn.FindStringSubmatch(name)[1]}
-		default:
-			if len(header) == 1 && strings.Contains(h, ";") {
-				return nil, Invalid(fmt.Sprintf("row %d", line), "the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
-			}
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(h)), fmt.Sprintf(
-				"unknown column %q (known: id, order, x or x1, x2, …, y or y1, y2, …, sx, sy)", Truncate(h)))
-		}
-	}
-	nx, ny := 0, 0
-	for j, c := range cols {
-		switch c.kind {
-		case "x":
-			nx++
-		case "y":
-			ny++
-		}
-		if nx > maxReplicates || ny > maxReplicates {
-			return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(header[j])),
-				fmt.Sprintf("at most %d replicate columns per method", maxReplicates))
-		}
-	}
-	hasX, hasY := nx > 0, ny > 0
-	if !hasX || !hasY {
-		return nil, Invalid(fmt.Sprintf("row %d", line), "the header must name x (or x1, x2, …) and y (or y1, y2, …) columns")
-	}
-	req := &CompareRequest{csv: true}
-	for {
-		rec, err := cr.Read()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, csvReadError(err)
-		}
-		row, _ := cr.FieldPos(0)
-		if lim.MaxPoints > 0 && len(req.Samples) >= lim.MaxPoints {
-			return nil, tooManyRows(row, lim.MaxPoints, "samples")
-		}
-		var s Sample
-		for j, f := range rec {
-			f = strings.TrimSpace(f)
-			where := fmt.Sprintf("row %d, column %s", row, strings.ToLower(strings.TrimSpace(header[j])))
-			switch k := cols[j].kind; k {
-			case "id":
-				if err := csvID([]byte(f), row); err != nil {
-					return nil, err
-				}
-				s.ID = f
-			case "x", "y":
-				if f == "" {
-					continue
-				}
-				v, err := parseCell(f)
-				if err != nil {
-					return nil, Invalid(where, err.Error())
-				}
-				if k == "x" {
-					s.X = append(s.X, v)
-				} else {
-					s.Y = append(s.Y, v)
-				}
-			default: // order, sx, sy
-				if f == "" {
-					continue
-				}
-				v, err := parseCell(f)
-				if err != nil {
-					return nil, Invalid(where, err.Error())
-				}
-				switch k {
-				case "order":
-					s.Order = &v
-				case "sx":
-					s.SX = &v
-				case "sy":
-					s.SY = &v
-				}
-			}
-		}
-		if len(s.X) == 0 {
-			return nil, Invalid(fmt.Sprintf("row %d, column x", row), "every sample needs at least one x value")
-		}
-		if len(s.Y) == 0 {
-			return nil, Invalid(fmt.Sprintf("row %d, column y", row), "every sample needs at least one y value")
-		}
-		req.Samples = append(req.Samples, s)
-		req.rows = append(req.rows, row)
-	}
-	return req, nil
-}
+// method; rows with the same id are replicates of one sample.
+func DecodeCompareCSV(r io.Reader) (*CompareRequest, error) { return DecodeCompareCSVWith(r, nil) }
 
 // compareParams are the query parameters of a CSV comparison.
 var compareParams = paramSpec{single: []string{"x_name", "y_name", "unit", "allowable_absolute", "allowable_percent",
@@ -602,18 +484,41 @@ func CompareRequestFromQuery(q url.Values, req *CompareRequest) error {
 // CompareFromCSV decodes a CSV study and takes its options from the query
 // parameters: POST /v1/method-comparison with a text/csv body.
 func CompareFromCSV(r io.Reader, q url.Values) (*CompareRequest, error) {
-	req, err := DecodeCompareCSV(r)
+	o, rest, err := TakeCSVOptions(q)
 	if err != nil {
 		return nil, err
 	}
-	return req, CompareRequestFromQuery(q, req)
+	if o.GroupBy != "" {
+		return nil, groupByElsewhere()
+	}
+	req, err := DecodeCompareCSVWith(r, o)
+	if err != nil {
+		return nil, err
+	}
+	if err := CompareRequestFromQuery(rest, req); err != nil {
+		return nil, err
+	}
+	return req, req.TakeUnit("query parameter unit")
+}
+
+// TakeUnit sets the unit from the export unless given; a unit given that
+// differs from the export's is an error naming where it was given.
+func (req *CompareRequest) TakeUnit(where string) error {
+	switch {
+	case req.unit == "" || req.Unit == req.unit:
+	case req.Unit == "":
+		req.Unit = req.unit
+	default:
+		return Invalid(where, fmt.Sprintf("the unit given (%s) differs from the file's (%s)", Truncate(req.Unit), Truncate(req.unit)))
+	}
+	return nil
 }
 
 // SetOptions copies every option of o (all but the samples) into req.
 func (req *CompareRequest) SetOptions(o *CompareRequest) {
-	samples, csv, rows := req.Samples, req.csv, req.rows
+	samples, csv, rows, input, unit := req.Samples, req.csv, req.rows, req.input, req.unit
 	*req = *o
-	req.Samples, req.csv, req.rows = samples, csv, rows
+	req.Samples, req.csv, req.rows, req.input, req.unit = samples, csv, rows, input, unit
 }
 
 // nameLength refuses a name longer than maxNameBytes.

@@ -40,7 +40,7 @@ func (r *FitResponse) SameScale() bool { return r.XUnit == "" || r.YUnit == "" |
 // NewCompareResponse is the answer to a method-comparison study.
 func NewCompareResponse(req *CompareRequest, c *study.Comparison) *CompareResponse {
 	resp := &CompareResponse{XName: req.XName, YName: req.YName, Unit: req.Unit,
-		SignConvention: study.SignConvention, Caution: study.Caution, Comparison: *comparisonOut(c)}
+		SignConvention: study.SignConvention, Caution: study.Caution, Comparison: *comparisonOut(c), Input: req.input}
 	if resp.XName == "" {
 		resp.XName = "comparative method"
 	}

@@ -7,34 +7,76 @@ import (
 	"fmt"
 	"io"
 	"net/http"
-	"strconv"
 	"strings"
 	"unicode"
 	"unicode/utf8"
 )
 
 // CSV input: a header row naming the columns, then one row per point.
-// Columns (matched case-insensitively, in any order): x and y required;
-// sx, sy (standard uncertainties, 1 SD), r (error correlation), id and
-// order optional. Lines starting with '#' are comments; a UTF-8 byte-order
-// mark is skipped. Any other column is an error, so that a misspelt
-// uncertainty column is never dropped silently.
+// Columns (matched case-insensitively, in any order, a trailing unit in
+// brackets taken as the axis unit): x and y required; sx, sy (standard
+// uncertainties, 1 SD), r (error correlation), id and order optional.
+// Lines starting with '#' are comments; a UTF-8 byte-order mark is
+// skipped. Any other column is an error unless extra_columns=ignore, so
+// that a misspelt uncertainty column is never dropped silently. CSVOptions
+// read other dialects and layouts.
 var csvColumns = []string{"x", "y", "sx", "sy", "r", "id", "order"}
 
-// DecodeCSV reads a dataset from CSV. Errors are *Problem values whose
-// pointers read "row N, column C".
+const csvIDColumn = 5
+
+// DecodeCSV reads a dataset from eivfit's own CSV. Errors are *Problem
+// values whose pointers read "row N, column C".
 // Rows are counted against the limits (the server's, for a *Body it read)
 // as they are read.
-func DecodeCSV(r io.Reader) (*Dataset, error) {
+func DecodeCSV(r io.Reader) (*Dataset, error) { return DecodeCSVWith(r, nil) }
+
+// DecodeCSVWith reads a dataset from CSV in the dialect and layout of o
+// (nil: eivfit's own CSV). With o.GroupBy set, use DecodeCSVGroups.
+func DecodeCSVWith(r io.Reader, o *CSVOptions) (*Dataset, error) {
+	groups, err := DecodeCSVGroups(r, o)
+	if err != nil {
+		return nil, err
+	}
+	return groups[0].Data, nil
+}
+
+// CSVGroup is one group of a CSV split by group_by (the whole file when
+// not split).
+type CSVGroup struct {
+	Name string
+	Data *Dataset
+}
+
+// DecodeCSVGroups reads a CSV fit dataset, split by o.GroupBy into one
+// dataset per value in order of first appearance.
+func DecodeCSVGroups(r io.Reader, o *CSVOptions) ([]CSVGroup, error) {
 	lim := limitsOf(r)
 	body, err := csvBody(r)
 	if err != nil {
 		return nil, err
 	}
-	if bytes.IndexByte(body, '"') < 0 {
-		return decodeCSVPlain(body, lim.MaxPoints)
+	return decodeFitCSV(newRecords(body, o), lim.MaxPoints, o)
+}
+
+// decodeCSVPlain and decodeCSVReader read one dataset by the plain scan
+// and by encoding/csv: the two paths FuzzCSVDifferential holds together.
+func decodeCSVPlain(body []byte, maxRows int, o *CSVOptions) (*Dataset, error) {
+	rs := newRecords(body, o)
+	rs.std = nil
+	return firstGroup(decodeFitCSV(rs, maxRows, o))
+}
+
+func decodeCSVReader(body []byte, maxRows int, o *CSVOptions) (*Dataset, error) {
+	rs := newRecords(body, o)
+	rs.useStd()
+	return firstGroup(decodeFitCSV(rs, maxRows, o))
+}
+
+func firstGroup(g []CSVGroup, err error) (*Dataset, error) {
+	if err != nil {
+		return nil, err
 	}
-	return decodeCSVReader(body, lim.MaxPoints)
+	return g[0].Data, nil
 }
 
 // tooManyRows is the problem for the data row past the limit.
@@ -71,77 +113,6 @@ func newCSVReader(body []byte) *csv.Reader {
 	return cr
 }
 
-// decodeCSVReader is the general path, through encoding/csv (quoted fields).
-func decodeCSVReader(body []byte, maxRows int) (*Dataset, error) {
-	cr := newCSVReader(body)
-	cr.ReuseRecord = true
-
-	header, err := cr.Read()
-	if err == io.EOF {
-		return nil, Invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
-	}
-	if err != nil {
-		return nil, csvReadError(err)
-	}
-	line, _ := cr.FieldPos(0)
-	cols, seen, err := csvHeader(header, line)
-	if err != nil {
-		return nil, err
-	}
-	d := newCSVDataset(seen, 0)
-	for {
-		rec, err := cr.Read()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			return nil, csvReadError(err)
-		}
-		row, _ := cr.FieldPos(0)
-		if maxRows > 0 && d.Len() >= maxRows {
-			return nil, tooManyRows(row, maxRows, "points per dataset")
-		}
-		if err := d.addRecord(rec, cols, row); err != nil {
-			return nil, err
-		}
-	}
-	return d.finishCSV()
-}
-
-// csvHeader maps header fields to column ids (indices into csvColumns).
-func csvHeader(header []string, line int) ([]int, [7]bool, error) {
-	cols := make([]int, len(header))
-	var seen [7]bool
-	for j, h := range header {
-		if !utf8.ValidString(h) {
-			return nil, seen, Invalid(fmt.Sprintf("row %d, column %d", line, j+1), "the header is not valid UTF-8 text")
-		}
-		name := strings.ToLower(strings.TrimSpace(h))
-		k := indexOf(csvColumns, name)
-		if k < 0 {
-			if len(header) == 1 && strings.Contains(h, ";") {
-				return nil, seen, Invalid(fmt.Sprintf("row %d", line),
-					"the header looks semicolon-separated; eivfit reads comma-separated values with '.' as the decimal mark")
-			}
-			if _, perr := strconv.ParseFloat(name, 64); perr == nil {
-				return nil, seen, Invalid(fmt.Sprintf("row %d", line),
-					"the first row must be a header naming the columns, e.g. x,y,sx,sy")
-			}
-			return nil, seen, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(h)), fmt.Sprintf(
-				"unknown column %q (known: x, y, sx, sy, r, id, order)", Truncate(h)))
-		}
-		if seen[k] {
-			return nil, seen, Invalid(fmt.Sprintf("row %d, column %s", line, name), fmt.Sprintf("column %q appears twice", name))
-		}
-		seen[k] = true
-		cols[j] = k
-	}
-	if !seen[0] || !seen[1] {
-		return nil, seen, Invalid(fmt.Sprintf("row %d", line), "the header must name columns x and y")
-	}
-	return cols, seen, nil
-}
-
 // newCSVDataset makes the columns the header names, with room for n rows.
 func newCSVDataset(seen [7]bool, n int) *Dataset {
 	d := &Dataset{csv: true, rows: make([]int, 0, n)}
@@ -155,9 +126,6 @@ func newCSVDataset(seen [7]bool, n int) *Dataset {
 	if seen[4] {
 		d.R = []float64{}
 	}
-	if seen[5] {
-		d.ID = []string{}
-	}
 	if seen[6] {
 		d.Order = make([]float64, 0, n)
 	}
@@ -165,27 +133,6 @@ func newCSVDataset(seen [7]bool, n int) *Dataset {
 		d.ID = make([]string, 0, n)
 	}
 	return d
-}
-
-// addRecord appends one CSV record.
-func (d *Dataset) addRecord(rec []string, cols []int, row int) error {
-	for j, f := range rec {
-		k := cols[j]
-		if k == 5 {
-			if err := csvID([]byte(f), row); err != nil {
-				return err
-			}
-			d.ID = append(d.ID, strings.Clone(f))
-			continue
-		}
-		v, err := parseCell(f)
-		if err != nil {
-			return Invalid(fmt.Sprintf("row %d, column %s", row, csvColumns[k]), err.Error())
-		}
-		d.put(k, v)
-	}
-	d.rows = append(d.rows, row)
-	return nil
 }
 
 func (d *Dataset) put(k int, v float64) {
@@ -212,81 +159,170 @@ func (d *Dataset) finishCSV() (*Dataset, error) {
 	return d, nil
 }
 
-// decodeCSVPlain is the fast path for CSV without quotes: one scan of the
-// body, numbers parsed in place, the columns sized once from the line count.
-func decodeCSVPlain(body []byte, maxRows int) (*Dataset, error) {
+func fitRoleIndex(role string) int { return indexOf(csvColumns, role) }
+
+// decodeFitCSV reads a fit dataset record by record: the header (and units
+// row), then each row's numbers, parsed in place, into its group's
+// dataset. A missing or censored cell is refused with every such row
+// named, or (missing=skip) the row is left out and listed.
+func decodeFitCSV(rs *records, maxRows int, o *CSVOptions) ([]CSVGroup, error) {
+	var lay *layout
+	var seen [7]bool
+	for {
+		fields, line, err := rs.next()
+		if err == io.EOF {
+			return nil, Invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
+		}
+		if err != nil {
+			return nil, err
+		}
+		if lay, err = readHeader(fields, line, o, func(k string) int { return indexOf(csvColumns, k) }, fitRoleIndex, "x, y, sx, sy, r, id, order"); err != nil {
+			return nil, err
+		}
+		break
+	}
+	for _, r := range lay.roles {
+		if r >= 0 {
+			if seen[r] {
+				return nil, Invalid(fmt.Sprintf("row %d, column %s", lay.line, csvColumns[r]), fmt.Sprintf("column %q appears twice", csvColumns[r]))
+			}
+			seen[r] = true
+		}
+	}
+	if !seen[0] || !seen[1] {
+		return nil, Invalid(fmt.Sprintf("row %d", lay.line), "the header must name columns x and y")
+	}
+	dec := o.decimal()
+	skip := o.skip()
+	var missing missingRows
+	var skipped map[*Dataset][]SkippedRow
+	groups := []CSVGroup{}
+	index := map[string]int{}
 	var d *Dataset
-	var cols []int
-	line := 0
-	var fields [][]byte
-	var strs []string
-	for len(body) > 0 {
-		line++
-		var l []byte
-		if i := bytes.IndexByte(body, '\n'); i >= 0 {
-			l, body = body[:i], body[i+1:]
-		} else {
-			l, body = body, nil
+	if lay.group < 0 {
+		d = newCSVDataset(seen, min(rs.linesLeft(), capLimit(maxRows)))
+		groups = append(groups, CSVGroup{Data: d})
+	}
+	first := true
+	points := 0
+	var vals [7]float64
+	for {
+		fields, line, err := rs.next()
+		if err == io.EOF {
+			break
 		}
-		l = bytes.TrimSuffix(l, []byte{'\r'})
-		if len(l) == 0 || l[0] == '#' {
-			continue
+		if err != nil {
+			return nil, err
 		}
-		fields = fields[:0]
-		for {
-			i := bytes.IndexByte(l, ',')
-			if i < 0 {
-				fields = append(fields, l)
-				break
-			}
-			fields = append(fields, l[:i])
-			l = l[i+1:]
-		}
-		if d == nil {
-			strs = strs[:0]
-			for _, f := range fields {
-				strs = append(strs, string(bytes.TrimLeftFunc(f, unicode.IsSpace)))
-			}
-			var seen [7]bool
-			var err error
-			if cols, seen, err = csvHeader(strs, line); err != nil {
+		if first && o != nil && o.UnitsRow {
+			first = false
+			if err := lay.readUnits(fields, line); err != nil {
 				return nil, err
 			}
-			d = newCSVDataset(seen, min(bytes.Count(body, []byte{'\n'})+1, capLimit(maxRows)))
 			continue
 		}
-		if maxRows > 0 && d.Len() >= maxRows {
+		if maxRows > 0 && points >= maxRows {
 			return nil, tooManyRows(line, maxRows, "points per dataset")
 		}
-		if len(fields) != len(cols) {
+		if len(fields) != len(lay.roles) {
 			return nil, Invalid(fmt.Sprintf("row %d, column 1", line), "this row has a different number of fields from the header")
 		}
+		if lay.group >= 0 {
+			g := bytes.TrimSpace(fields[lay.group])
+			if reason, isMissing := missingCell(g, dec); isMissing && len(g) == 0 || !utf8.Valid(g) || len(g) > maxNameBytes {
+				if reason == "" {
+					reason = "the group is not UTF-8 text of at most 256 bytes"
+				}
+				return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(lay.names[lay.group])), "the group is "+reason+": every row needs one")
+			}
+			i, ok := index[string(g)]
+			if !ok {
+				i = len(groups)
+				index[string(g)] = i
+				groups = append(groups, CSVGroup{Name: string(g), Data: newCSVDataset(seen, 0)})
+			}
+			d = groups[i].Data
+		}
+		var id []byte
+		bad := -1
+		badReason := ""
 		for j, f := range fields {
-			k := cols[j]
-			if k == 5 {
-				f = bytes.TrimLeftFunc(f, unicode.IsSpace)
-				if err := csvID(f, line); err != nil {
+			k := lay.roles[j]
+			switch {
+			case k < 0:
+				continue
+			case k == csvIDColumn:
+				id = bytes.TrimLeftFunc(f, unicode.IsSpace)
+				if err := csvID(id, line); err != nil {
 					return nil, err
 				}
-				d.ID = append(d.ID, string(f))
 				continue
 			}
-			v, ok := parseFloat(bytes.TrimSpace(f))
+			v, ok := cellFloat(bytes.TrimSpace(f), dec)
 			if !ok {
-				var err error
-				v, err = parseCell(string(f)) // the slow path names the fault
-				if err != nil {
-					return nil, Invalid(fmt.Sprintf("row %d, column %s", line, csvColumns[k]), err.Error())
+				reason, isMissing := missingCell(f, dec)
+				if !isMissing {
+					if first && looksLikeUnits(f) {
+						return nil, unitsRowHint(line, o, lay.names[j], f)
+					}
+					return nil, Invalid(fmt.Sprintf("row %d, column %s", line, csvColumns[k]), cellError(bytes.TrimSpace(f), o).Error())
 				}
+				if bad < 0 {
+					bad, badReason = j, reason
+				}
+				continue
 			}
-			d.put(k, v)
+			vals[k] = v
+		}
+		first = false
+		if bad >= 0 {
+			if !skip {
+				if o.plain() && len(bytes.TrimSpace(fields[bad])) == 0 && lay.group < 0 {
+					badReason = "the cell is empty; every row needs a number in this column"
+				}
+				missing.add(line, csvColumns[lay.roles[bad]], badReason)
+				continue
+			}
+			if skipped == nil {
+				skipped = map[*Dataset][]SkippedRow{}
+			}
+			skipped[d] = append(skipped[d], SkippedRow{Row: line, Column: lay.names[bad], Value: Truncate(strings.TrimSpace(string(fields[bad]))), Reason: badReason})
+			continue
+		}
+		for k, s := range seen {
+			if s && k != csvIDColumn {
+				d.put(k, vals[k])
+			}
+		}
+		if seen[csvIDColumn] {
+			d.ID = append(d.ID, string(id))
 		}
 		d.rows = append(d.rows, line)
+		points++
 	}
-	if d == nil {
-		return nil, Invalid("row 1", "the CSV body is empty: a header row (x,y[,sx,sy,r,id,order]) and data rows are needed")
+	if err := missing.problem(o); err != nil {
+		if missing.n == 1 && o.plain() {
+			e := missing.errs[0]
+			return nil, Invalid(e.Pointer, e.Detail)
+		}
+		return nil, err
 	}
-	return d.finishCSV()
+	if len(groups) == 0 {
+		return nil, Invalid(fmt.Sprintf("row %d", lay.line), "the file has a header but no data rows")
+	}
+	cols := lay.columns(csvColumns)
+	for i := range groups {
+		d := groups[i].Data
+		if _, err := d.finishCSV(); err != nil {
+			return nil, err
+		}
+		in := &InputOut{Group: groups[i].Name, Columns: cols, IgnoredColumns: lay.ignored, SkippedRows: skipped[d]}
+		if !in.empty() {
+			d.input = in
+		}
+		d.xUnit, d.yUnit = lay.unitOf(0), lay.unitOf(1)
+	}
+	return groups, nil
 }
 
 // parseCell reads a CSV cell or query value: a plain decimal (parseFloat).

@@ -22,7 +22,14 @@ type Dataset struct {
 	// rows maps a point to its CSV line number (1-based; nil for JSON).
 	rows []int
 	csv  bool
+	// input says how a CSV export was read; xUnit and yUnit are the units
+	// its header or units row gave x and y.
+	input        *InputOut
+	xUnit, yUnit string
 }
+
+// Input says how a CSV export was read (nil when there is nothing to say).
+func (d *Dataset) Input() *InputOut { return d.input }
 
 // locate returns the pointer for point i's field: a JSON pointer under
 // /points, or a CSV row and column.

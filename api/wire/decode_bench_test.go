@@ -66,7 +66,7 @@ func BenchmarkDecodeStd(b *testing.B) {
 			b.ReportAllocs()
 			b.SetBytes(int64(len(c)))
 			for b.Loop() {
-				d, err := decodeCSVReader(c, 0)
+				d, err := decodeCSVReader(c, 0, nil)
 				if err != nil || d.Len() != n {
 					b.Fatal(err)
 				}

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"strconv"
 	"strings"
@@ -14,20 +15,36 @@ import (
 // input: the plain CSV scan against encoding/csv, the one-pass JSON
 // decoder against encoding/json.
 
+// csvDialects are the dialects FuzzCSVDifferential reads a body in: a
+// body led by the bytes 0, d is read in dialect d (others in eivfit's own).
+var csvDialects = []*CSVOptions{nil,
+	{Delimiter: "semicolon"}, {Delimiter: "semicolon", Decimal: "comma"}, {Delimiter: "tab", Decimal: "comma"},
+	{Delimiter: "semicolon", Decimal: "comma", Missing: "skip", UnitsRow: true},
+	{Delimiter: "tab", Missing: "skip", ExtraColumns: "ignore", Columns: []ColumnMap{{"x", "Ref"}, {"y", "Cand"}}}}
+
 // FuzzCSVDifferential: the plain-CSV fast path and the encoding/csv path
-// must accept and refuse the same bodies, decode identical numbers, and
-// name the same place for a fault in a cell.
+// must accept and refuse the same bodies, decode identical numbers, skip
+// the same rows, and name the same place for a fault in a cell, in every
+// dialect.
 func FuzzCSVDifferential(f *testing.F) {
 	for _, s := range []string{"x,y\n1,2\n2,3\n", "x,y,sx,sy,r,id,order\n1,2,0.1,0.2,0,a,1\n", "x,y\n1,0x1p3\n",
 		"x,y\n1,1_000\n", "x,y\n1,NaN\n", "x,y\n1,\n", "# c\nX, Y\n 1, 2\n", "x,y\n1,2,3\n", "x,y\r\n1,2\r\n", "x,y\n.5,5.\n"} {
 		f.Add([]byte(s))
 	}
+	for i, s := range []string{"x;y\n1;2\n", "x;y\n1,5;2,25\n3;4\n", "x\ty\n1,5\t2\n", "x (mg);y [mg]\nmg;mg\n1,5;NA\n2;<0,5\n3;4\n",
+		"Ref (mmol/L)\tCand\tnote\n1.5\t\tz\n2\t3\tq\n"} {
+		f.Add(append([]byte{0, byte(i + 1)}, s...))
+	}
 	f.Fuzz(func(t *testing.T, body []byte) {
+		o := csvDialects[0]
+		if len(body) >= 2 && body[0] == 0 { // a body led by 0, d is read in dialect d
+			o, body = csvDialects[int(body[1])%len(csvDialects)], body[2:]
+		}
 		if bytes.IndexByte(body, '"') >= 0 || bytes.IndexByte(body, '\r') >= 0 || !utfLines(body) {
 			return // quotes take the general path anyway; encoding/csv folds \r\n and bare \r
 		}
-		fast, ferr := decodeCSVPlain(body, 0)
-		std, serr := decodeCSVReader(body, 0)
+		fast, ferr := decodeCSVPlain(body, 0, o)
+		std, serr := decodeCSVReader(body, 0, o)
 		if (ferr == nil) != (serr == nil) {
 			t.Fatalf("fast: %v; encoding/csv: %v", ferr, serr)
 		}
@@ -44,6 +61,9 @@ func FuzzCSVDifferential(f *testing.F) {
 			if !sameBits(c[0], c[1]) {
 				t.Fatalf("columns differ: %v and %v", c[0], c[1])
 			}
+		}
+		if fi, si := fmt.Sprint(fast.Input()), fmt.Sprint(std.Input()); fi != si || fast.xUnit != std.xUnit || fast.yUnit != std.yUnit {
+			t.Fatalf("input notes differ: %s / %s", fi, si)
 		}
 	})
 }

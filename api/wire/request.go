@@ -170,11 +170,42 @@ func (b *BootstrapOptions) options() *study.BootstrapOptions {
 // FitFromCSV decodes a CSV dataset and takes the fit's options from the
 // query parameters: POST /v1/fit with a text/csv body.
 func FitFromCSV(r io.Reader, q url.Values) (*FitRequest, error) {
-	d, err := DecodeCSV(r)
+	o, rest, err := TakeCSVOptions(q)
 	if err != nil {
 		return nil, err
 	}
-	return FitRequestFromQuery(q, d)
+	if o.GroupBy != "" {
+		return nil, groupByElsewhere()
+	}
+	d, err := DecodeCSVWith(r, o)
+	if err != nil {
+		return nil, err
+	}
+	req, err := FitRequestFromQuery(rest, d)
+	if err != nil {
+		return nil, err
+	}
+	req.TakeUnits()
+	return req, nil
+}
+
+// TakeUnits sets x_unit and y_unit from the export's header or units row
+// where they were not given.
+func (req *FitRequest) TakeUnits() {
+	if req.XUnit == "" {
+		req.XUnit = req.Points.xUnit
+	}
+	if req.YUnit == "" {
+		req.YUnit = req.Points.yUnit
+	}
+}
+
+// Response is the answer to the request: the fit with its units and how
+// its export was read.
+func (req *FitRequest) Response(r *study.FitResult) *FitResponse {
+	resp := NewFitResponse(r).WithUnits(req.XUnit, req.YUnit)
+	resp.Input = req.Points.input
+	return resp
 }
 
 // DecodeBatch reads a batch body: {"datasets": [...]}, counting the

@@ -16,6 +16,9 @@ type FitResponse struct {
 	OLSBias []OLSBias `json:"ols_bias,omitempty"`
 	// Warnings are non-fatal diagnostics; always an array.
 	Warnings []Warning `json:"warnings"`
+	// Input says how a CSV export was read: columns, units, ignored
+	// columns, skipped rows (present when there is something to say).
+	Input *InputOut `json:"input,omitempty"`
 }
 
 // Fits holds one entry per method that ran, in a fixed order.
@@ -236,6 +239,9 @@ type CompareResponse struct {
 	// "exclude" (present only when some were excluded).
 	WithoutExcluded *Comparison `json:"without_excluded,omitempty"`
 	Caution         string      `json:"caution"`
+	// Input says how a CSV export was read: columns, units, ignored
+	// columns, skipped rows, replicates per sample.
+	Input *InputOut `json:"input,omitempty"`
 }
 
 // Comparison is one analysis of a study.

@@ -47,6 +47,7 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	resamples := fs.Int("resamples", 0, "bootstrap resamples (0 = none)")
 	format := fs.String("format", "json", "output format: json or text")
 	pretty := fs.Bool("pretty", false, "indent the JSON")
+	csvf := addCSVFlags(fs)
 	sv := addSaveFlags(fs)
 	strict := newStrictFlags(fs, []string{"exclude"}, []string{"decision-levels"})
 	file, done, err := parseFileArgs(fs, args, "compare", format, stderr)
@@ -82,6 +83,10 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if opts.Bootstrap, err = bootstrapFlags(*resamples, *seed, *scheme); err != nil {
 		return usageError(stderr, "compare", err)
 	}
+	o, err := csvf.options()
+	if err != nil {
+		return usageError(stderr, "compare", err)
+	}
 	if err := sv.check(setFlags(fs)); err != nil {
 		return usageError(stderr, "compare", err)
 	}
@@ -94,16 +99,34 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 		return err
 	}
 	defer in.Close()
-	req, err := wire.DecodeCompareCSV(in)
+	groups, err := wire.DecodeCompareCSVGroups(in, o)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	req.SetOptions(opts)
-	src := req.Source().AsFlags()
-	res, err := study.Compare(ctx, req.Samples, req.Options(study.Settings{Limits: study.DefaultLimits}))
-	if err != nil {
-		return reportProblem(stderr, name, src.Problem(err))
+	run := func(req *wire.CompareRequest) (*wire.CompareResponse, error) {
+		req.SetOptions(opts)
+		if err := req.TakeUnit("--unit"); err != nil {
+			return nil, err
+		}
+		res, err := study.Compare(ctx, req.Samples, req.Options(study.Settings{Limits: study.DefaultLimits}))
+		if err != nil {
+			return nil, req.Source().AsFlags().Problem(err)
+		}
+		return wire.NewCompareResponse(req, res), nil
 	}
-	resp := wire.NewCompareResponse(req, res)
-	return writeOutput(stdout, stderr, name, src, *format, *pretty, resp, func(w io.Writer) error { return report.WriteCompareText(w, resp) })
+	if o.GroupBy != "" {
+		out := &wire.BatchResponse{}
+		for _, g := range groups {
+			resp, err := run(g.Req)
+			out.Results = append(out.Results, groupResult(g.Name, resp, err, nil))
+		}
+		tally(out)
+		return writeGroups(stdout, stderr, name, *format, *pretty, out, func(w io.Writer, r *wire.BatchResult) error { return report.WriteCompareText(w, r.Comparison) })
+	}
+	req := groups[0].Req
+	resp, err := run(req)
+	if err != nil {
+		return reportProblem(stderr, name, err)
+	}
+	return writeOutput(stdout, stderr, name, req.Source().AsFlags(), *format, *pretty, resp, func(w io.Writer) error { return report.WriteCompareText(w, resp) })
 }

@@ -47,6 +47,7 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	at := fs.String("at", "", "comma list of x values (decision levels) for predictions and bias")
 	xUnit := fs.String("x-unit", "", "unit of x")
 	yUnit := fs.String("y-unit", "", "unit of y (when it differs from x's, nothing compares y with x: no bias y − x)")
+	csvf := addCSVFlags(fs)
 	sv := addSaveFlags(fs)
 	strict := newStrictFlags(fs, []string{"methods"}, []string{"at"})
 
@@ -71,6 +72,10 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	if req.Bootstrap, err = bootstrapFlags(*resamples, *seed, *scheme); err != nil {
 		return usageError(stderr, "fit", err)
 	}
+	o, err := csvf.options()
+	if err != nil {
+		return usageError(stderr, "fit", err)
+	}
 	if err := sv.check(setFlags(fs)); err != nil {
 		return usageError(stderr, "fit", err)
 	}
@@ -83,19 +88,36 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 		return err
 	}
 	defer in.Close()
-	d, err := wire.DecodeCSV(in)
+	groups, err := wire.DecodeCSVGroups(in, o)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	req.Points = *d
 	req.XUnit, req.YUnit = *xUnit, *yUnit
-	src := req.Source().AsFlags()
-	res, err := study.Fit(ctx, d.Data, req.Options(study.Settings{Limits: study.DefaultLimits}))
-	if err != nil {
-		return reportProblem(stderr, name, src.Problem(err))
+	fit := func(g wire.CSVGroup) (*wire.FitRequest, *wire.FitResponse, error) {
+		r := *req
+		r.Points = *g.Data
+		r.TakeUnits()
+		src := r.Source().AsFlags()
+		res, err := study.Fit(ctx, g.Data.Data, r.Options(study.Settings{Limits: study.DefaultLimits}))
+		if err != nil {
+			return &r, nil, src.Problem(err)
+		}
+		return &r, r.Response(res), nil
 	}
-	resp := wire.NewFitResponse(res).WithUnits(req.XUnit, req.YUnit)
-	return writeOutput(stdout, stderr, name, src, *format, *pretty, resp, func(w io.Writer) error { return report.WriteText(w, resp) })
+	if o.GroupBy != "" {
+		out := &wire.BatchResponse{}
+		for _, g := range groups {
+			_, resp, err := fit(g)
+			out.Results = append(out.Results, groupResult(g.Name, resp, err, nil))
+		}
+		tally(out)
+		return writeGroups(stdout, stderr, name, *format, *pretty, out, func(w io.Writer, r *wire.BatchResult) error { return report.WriteText(w, r.Fit) })
+	}
+	r, resp, err := fit(groups[0])
+	if err != nil {
+		return reportProblem(stderr, name, err)
+	}
+	return writeOutput(stdout, stderr, name, r.Source().AsFlags(), *format, *pretty, resp, func(w io.Writer) error { return report.WriteText(w, resp) })
 }
 
 // flagFloat reads an optional finite number given to flag name.
@@ -207,6 +229,9 @@ func reportProblem(stderr io.Writer, name string, err error) error {
 		return exitError{1}
 	}
 	fmt.Fprintf(stderr, "eivfit: %s: %s\n", name, p.Title)
+	if len(p.Errors) > 1 && p.Detail != "" {
+		fmt.Fprintf(stderr, "  %s\n", p.Detail)
+	}
 	for _, e := range p.Errors {
 		fmt.Fprintf(stderr, "  %s: %s\n", e.Pointer, e.Detail)
 	}
