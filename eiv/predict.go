@@ -154,7 +154,9 @@ func (c *OLSComparison) sentence(conf float64) string {
 		s = fmt.Sprintf("OLS and %s differ in slope by %+.3g %% (no interval: the difference is not shown to be real)", c.Method, r.Value)
 	}
 	if len(c.At) > 0 {
-		s += fmt.Sprintf("; at x = %g its bias estimate is off by %+.3g", c.At[0].X, c.At[0].Difference)
+		// The difference of the fitted lines at x0, which is also the
+		// difference of their biases y − x when x and y are one quantity.
+		s += fmt.Sprintf("; at x = %g the OLS line differs from it by %+.3g", c.At[0].X, c.At[0].Difference)
 	}
 	if c.HasReliability {
 		s += fmt.Sprintf("; the reliability ratio κ = %.4g predicts an OLS slope of %.4g", c.Reliability, c.PredictedOLSSlope)
