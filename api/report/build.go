@@ -22,7 +22,8 @@ type plotSet struct {
 	fit          *wire.MethodFit
 	res          *study.MethodResult // the band and the bootstrap replicates
 	ols          *wire.MethodFit
-	diag         wire.DiagnosticsOut
+	diag         wire.DiagnosticsOut // the checks; the residuals are read from resid
+	resid        *study.Diagnostics  // the residuals and Q-Q points, drawn without a copy
 	agreement    *wire.AgreementOut
 	axes         Axes
 }
@@ -48,13 +49,7 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 	if err := ctx.Err(); err != nil {
 		return nil, false, err
 	}
-	d := ps.diag
-	level := make([]float64, len(d.Residuals))
-	resid := make([]float64, len(d.Residuals))
-	order := make([]float64, len(d.Residuals))
-	for i, r := range d.Residuals {
-		level[i], resid[i], order[i] = r.Level, r.Residual, r.Order
-	}
+	d := ps.resid
 	switch kind {
 	case "data":
 		var ols *Line
@@ -64,14 +59,14 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		b, err := DataPlot(ctx, ps.x, ps.y, ps.sx, ps.sy, ps.line(), ols, ps.axes, ps.flagged(kind)...)
 		return b, true, err
 	case "residuals":
-		b, err := ResidualPlot(ctx, level, resid, ps.axes, d.Scale, ps.flagged(kind)...)
+		b, err := ResidualPlot(ctx, d.Level, d.Residual, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "run-order":
-		b, err := RunOrderPlot(ctx, order, resid, ps.axes, d.Scale, ps.flagged(kind)...)
+		b, err := RunOrderPlot(ctx, d.Order, d.Residual, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "qq":
-		th, sm := make([]float64, len(d.Normality.QQ)), make([]float64, len(d.Normality.QQ))
-		for i, q := range d.Normality.QQ {
+		th, sm := make([]float64, len(d.QQ)), make([]float64, len(d.QQ))
+		for i, q := range d.QQ {
 			th[i], sm[i] = q.Theoretical, q.Sample
 		}
 		b, err := QQPlot(ctx, th, sm)
@@ -138,8 +133,9 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 	if resp.SameScale() {
 		ax = Axes{X: "x", Y: "y"}
 	}
+	diag := study.DiagnoseFit(d, pm)
 	return &plotSet{x: d.X, y: d.Y, sx: d.SX, sy: d.SY, fitName: pm.Method.Name, fit: resp.Fits.Get(pm.Method.Name), res: pm,
-		ols: resp.Fits.OLS, diag: wire.DiagnosticsOutOf(study.DiagnoseFit(d, pm)), agreement: wire.AgreementOutOf(ag),
+		ols: resp.Fits.OLS, diag: wire.DiagnosticChecksOf(diag), resid: diag, agreement: wire.AgreementOutOf(ag),
 		axes: ax}, nil
 }
 
@@ -158,7 +154,7 @@ func comparePlots(resp *wire.CompareResponse, c *study.Comparison) *plotSet {
 	pm := c.Primary()
 	return &plotSet{x: c.Data.X, y: c.Data.Y, sx: c.Data.SX, sy: c.Data.SY, fitName: pm.Method.Name,
 		fit: resp.Fits.Get(pm.Method.Name), res: pm, ols: resp.Fits.OLS,
-		diag: resp.Diagnostics, agreement: &resp.Agreement,
+		diag: resp.Diagnostics, resid: c.Diagnostics, agreement: &resp.Agreement,
 		axes: Axes{X: resp.XName + " (x)", Y: resp.YName + " (y)", Unit: resp.Unit}}
 }
 

@@ -21,13 +21,13 @@ func (ps *plotSet) flagged(kind string) []Flagged {
 				i = o.Index
 			}
 		case "residuals", "run-order":
-			for j, r := range ps.diag.Residuals {
-				if o.ID != "" && r.ID == o.ID {
+			for j, id := range ps.resid.IDs {
+				if o.ID != "" && id == o.ID {
 					i = j
 					break
 				}
 			}
-			if i < 0 && o.ID == "" && len(ps.diag.Residuals) == len(ps.x) && o.Index >= 0 && o.Index < len(ps.x) {
+			if i < 0 && o.ID == "" && len(ps.resid.Residual) == len(ps.x) && o.Index >= 0 && o.Index < len(ps.x) {
 				i = o.Index
 			}
 		}

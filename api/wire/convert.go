@@ -111,20 +111,35 @@ func AgreementOutOf(a *study.Agreement) *AgreementOut {
 	return out
 }
 
-// DiagnosticsOutOf is the wire form of the checks of the assumptions.
+// DiagnosticsOutOf is the wire form of the checks of the assumptions,
+// with the residuals and the Q-Q points.
 func DiagnosticsOutOf(d *study.Diagnostics) DiagnosticsOut {
+	out := DiagnosticChecksOf(d)
+	if len(d.QQ) > 0 {
+		out.Normality.QQ = make([]QQOut, len(d.QQ))
+		for k, q := range d.QQ {
+			out.Normality.QQ[k] = QQOut{Theoretical: q.Theoretical, Sample: q.Sample, ID: d.ID(q.Index)}
+		}
+	}
+	if len(d.Residual) > 0 {
+		out.Residuals = make([]ResidualOut, len(d.Residual))
+		for i, e := range d.Residual {
+			out.Residuals[i] = ResidualOut{ID: d.ID(i), Level: d.Level[i], Order: d.Order[i], Residual: e, Standardized: d.Standardized[i]}
+		}
+	}
+	return out
+}
+
+// DiagnosticChecksOf is DiagnosticsOutOf without the residuals and the
+// Q-Q points: the tests, their readings and the flagged outliers, for a
+// report that draws the residuals from d itself.
+func DiagnosticChecksOf(d *study.Diagnostics) DiagnosticsOut {
 	out := DiagnosticsOut{ResidualsOf: d.ResidualsOf, Scale: d.Scale,
 		Normality:    NormalityOut{ShapiroWilk: testOut(d.ShapiroWilk), Reading: d.NormalityReading},
 		Independence: IndependenceOut{OrderSource: d.OrderSource, DurbinWatson: testOut(d.DurbinWatson), Runs: testOut(d.Runs), Reading: d.IndependenceReading},
 		Variance:     VarianceOut{BreuschPagan: testOut(d.BreuschPagan), Spearman: testOut(d.Spearman), Reading: d.VarianceReading},
 		Linearity:    LinearityOut{Cusum: cusumOut(d.Cusum), LackOfFit: testOut(d.LackOfFit), Reading: d.LinearityReading},
 		Outliers:     OutliersOut{Method: d.OutlierTest, MaxTested: d.OutlierMaxTested, Flagged: []OutlierOut{}, Reading: d.OutlierReading},
-	}
-	for _, q := range d.QQ {
-		out.Normality.QQ = append(out.Normality.QQ, QQOut{Theoretical: q.Theoretical, Sample: q.Sample, ID: q.ID})
-	}
-	for _, r := range d.Residuals {
-		out.Residuals = append(out.Residuals, ResidualOut{ID: r.ID, Level: r.Level, Order: r.Order, Residual: r.Value, Standardized: r.Standardized})
 	}
 	for _, o := range d.Outliers {
 		out.Outliers.Flagged = append(out.Outliers.Flagged, OutlierOut{ID: o.ID, Index: o.Index, Residual: o.Residual, R: o.R, Lambda: o.Lambda})

@@ -17,11 +17,17 @@ type Diagnostics struct {
 	// stated SD about the line).
 	ResidualsOf string
 	Scale       string
-	// Residuals are in input order, with the level and run order used.
-	Residuals []Residual
+	// The residuals in input order, one entry per sample in parallel
+	// slices (a plot of 10⁶ points reads them without a copy): Level is
+	// (x + y)/2, Order the run order used, Residual the residual on the
+	// Scale and Standardized the residual over the residuals' SD; IDs are
+	// the samples' ids, nil when the data carry none (ID reads it).
+	Level, Order, Residual, Standardized []float64
+	IDs                                  []string
 
-	ShapiroWilk      *eiv.TestResult
-	QQ               []QQPoint
+	ShapiroWilk *eiv.TestResult
+	// QQ is the normal Q-Q plot; each point's Index is its residual's.
+	QQ               []eiv.QQPoint
 	NormalityReading string
 
 	// OrderSource is "order" (given) or "input".
@@ -46,20 +52,12 @@ type Diagnostics struct {
 	OutlierReading   string
 }
 
-// Residual is one sample's residual.
-type Residual struct {
-	ID    string
-	Level float64 // (x + y)/2
-	Order float64
-	// Value is the residual on the Scale; Standardized is Value over the
-	// residuals' SD.
-	Value, Standardized float64
-}
-
-// QQPoint is one point of the normal Q-Q plot.
-type QQPoint struct {
-	Theoretical, Sample float64
-	ID                  string
+// ID is the id of the sample of residual i, "" when it has none.
+func (d *Diagnostics) ID(i int) string {
+	if d.IDs == nil {
+		return ""
+	}
+	return d.IDs[i]
 }
 
 // Outlier is one flagged sample; Index is its index in the caller's data.
@@ -73,17 +71,14 @@ type Outlier struct {
 // DiagnoseFit checks the assumptions on the residuals of a line fit's
 // method m (constant error model; the cusum linearity test on its line).
 func DiagnoseFit(d *Data, m *MethodResult) *Diagnostics {
-	n := d.Len()
-	st := &reduced{Data: *d, idx: make([]int, n), kx: make([]int, n), ky: make([]int, n)}
-	st.ID, st.Order = make([]string, n), make([]float64, n)
-	for i := range n {
-		st.kx[i], st.ky[i], st.idx[i] = 1, 1, i
-		st.Order[i] = float64(i + 1)
-		if d.Order != nil {
-			st.Order[i], st.hasOrder = d.Order[i], true
-		}
-		if d.ID != nil {
-			st.ID[i] = d.ID[i]
+	// One reading per sample, indexed as the caller's data: no sample
+	// index, replicate counts or copies of the data (a plot of 10⁶ points
+	// would pay for each).
+	st := &reduced{Data: *d, hasOrder: d.Order != nil}
+	if d.Order == nil {
+		st.Order = make([]float64, d.Len())
+		for i := range st.Order {
+			st.Order[i] = float64(i + 1)
 		}
 	}
 	a, b := m.Fit.Intercept.Value, m.Fit.Slope.Value
@@ -119,12 +114,12 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 		ss += v * v
 	}
 	sd := math.Sqrt(ss / float64(max(n-2, 1)))
+	d.Level, d.Order, d.Residual, d.IDs = level, st.Order, e, st.ID
+	d.Standardized = make([]float64, n)
 	for i := range n {
-		z := 0.0
 		if sd > 0 {
-			z = e[i] / sd
+			d.Standardized[i] = e[i] / sd
 		}
-		d.Residuals = append(d.Residuals, Residual{ID: st.ID[i], Level: level[i], Order: st.Order[i], Value: e[i], Standardized: z})
 	}
 	to := func(r eiv.TestResult) *eiv.TestResult { return &r }
 	// Normality.
@@ -138,9 +133,7 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 	} else {
 		d.NormalityReading = "Normality could not be tested (the residuals are all equal)."
 	}
-	for _, q := range eiv.NormalQQ(e) {
-		d.QQ = append(d.QQ, QQPoint{Theoretical: q.Theoretical, Sample: q.Sample, ID: st.ID[q.Index]})
-	}
+	d.QQ = eiv.NormalQQ(e)
 	// Independence in run order.
 	ord := make([]int, n)
 	for i := range ord {
@@ -222,7 +215,11 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 	if n-r >= 3 {
 		if esd, err := eiv.GeneralizedESD(e, r, 0.05); err == nil {
 			for k, i := range esd.Outliers {
-				d.Outliers = append(d.Outliers, Outlier{ID: st.ID[i], Index: st.idx[i], Residual: e[i], R: esd.R[k], Lambda: esd.Lambda[k]})
+				at := i // the caller's index: st's own unless st was reduced
+				if st.idx != nil {
+					at = st.idx[i]
+				}
+				d.Outliers = append(d.Outliers, Outlier{ID: d.ID(i), Index: at, Residual: e[i], R: esd.R[k], Lambda: esd.Lambda[k]})
 			}
 		}
 	}
