@@ -22,9 +22,9 @@ type plotSet struct {
 	fit          *wire.MethodFit
 	res          *study.MethodResult // the band and the bootstrap replicates
 	ols          *wire.MethodFit
-	diag         wire.DiagnosticsOut // the checks; the residuals are read from resid
-	resid        *study.Diagnostics  // the residuals and Q-Q points, drawn without a copy
-	agreement    *wire.AgreementOut
+	diag         wire.DiagnosticsOut                // the checks; the residuals are read from resid
+	resid        *study.Diagnostics                 // the residuals and Q-Q points, drawn without a copy
+	agreement    func() (*wire.AgreementOut, error) // only the difference plot reads it
 	axes         Axes
 }
 
@@ -75,7 +75,10 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		if !ps.axes.SameScale() {
 			return nil, false, wire.Invalid("y_unit", "x and y are in different units: a difference y − x has no meaning, so there is no difference plot")
 		}
-		a := ps.agreement
+		a, err := ps.agreement()
+		if err != nil {
+			return nil, false, err
+		}
 		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
 		for i := range ps.x {
 			mean[i], diff[i] = ps.x[i]/2+ps.y[i]/2, ps.y[i]-ps.x[i] // never overflows
@@ -118,24 +121,33 @@ var plotCaptions = map[string]string{
 }
 
 // fitPlots gathers a line fit's plots; method "" means the primary fit.
-func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, method string) (*plotSet, error) {
+// checks runs the tests on the residuals (for a report, or the Q-Q plot);
+// without it only the residuals and the flagged outliers are computed.
+func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, method string, checks bool) (*plotSet, error) {
 	pm := res.Primary()
 	if method != "" {
 		if pm = res.Get(method); pm == nil {
 			return nil, wire.Invalid("query parameter method", fmt.Sprintf("%q was not fitted; choose one of the fitted methods", wire.Truncate(method)))
 		}
 	}
-	ag, err := study.AgreementOf(d.X, d.Y, res.Confidence, false)
-	if err != nil {
-		return nil, err
+	agree := func() (*wire.AgreementOut, error) {
+		ag, err := study.AgreementOf(d.X, d.Y, res.Confidence, false)
+		if err != nil {
+			return nil, err
+		}
+		return wire.AgreementOutOf(ag), nil
 	}
 	ax := Axes{X: "x", Y: "y", Unit: resp.XUnit, YUnit: resp.YUnit}
 	if resp.SameScale() {
 		ax = Axes{X: "x", Y: "y"}
 	}
-	diag := study.DiagnoseFit(d, pm)
+	diag := study.DiagnoseFit
+	if !checks {
+		diag = study.FitResiduals
+	}
+	dg := diag(d, pm)
 	return &plotSet{x: d.X, y: d.Y, sx: d.SX, sy: d.SY, fitName: pm.Method.Name, fit: resp.Fits.Get(pm.Method.Name), res: pm,
-		ols: resp.Fits.OLS, diag: wire.DiagnosticChecksOf(diag), resid: diag, agreement: wire.AgreementOutOf(ag),
+		ols: resp.Fits.OLS, diag: wire.DiagnosticChecksOf(dg), resid: dg, agreement: agree,
 		axes: ax}, nil
 }
 
@@ -143,7 +155,7 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 // ok is false when the kind does not apply (no bootstrap ran). Drawing
 // stops when ctx is done.
 func FitPlot(ctx context.Context, kind string, resp *wire.FitResponse, res *study.FitResult, d *study.Data, method string) ([]byte, bool, error) {
-	ps, err := fitPlots(resp, res, d, method)
+	ps, err := fitPlots(resp, res, d, method, kind == "qq")
 	if err != nil {
 		return nil, false, err
 	}
@@ -154,8 +166,9 @@ func comparePlots(resp *wire.CompareResponse, c *study.Comparison) *plotSet {
 	pm := c.Primary()
 	return &plotSet{x: c.Data.X, y: c.Data.Y, sx: c.Data.SX, sy: c.Data.SY, fitName: pm.Method.Name,
 		fit: resp.Fits.Get(pm.Method.Name), res: pm, ols: resp.Fits.OLS,
-		diag: resp.Diagnostics, resid: c.Diagnostics, agreement: &resp.Agreement,
-		axes: Axes{X: resp.XName + " (x)", Y: resp.YName + " (y)", Unit: resp.Unit}}
+		diag: resp.Diagnostics, resid: c.Diagnostics,
+		agreement: func() (*wire.AgreementOut, error) { return &resp.Agreement, nil },
+		axes:      Axes{X: resp.XName + " (x)", Y: resp.YName + " (y)", Unit: resp.Unit}}
 }
 
 func g(v float64) string {

@@ -97,7 +97,7 @@ func fitSummary(resp *wire.FitResponse, fitName string, diag wire.DiagnosticsOut
 // when ctx is done.
 func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse, res *study.FitResult, made Made) (*Page, error) {
 	d := &req.Points.Data
-	ps, err := fitPlots(resp, res, d, "")
+	ps, err := fitPlots(resp, res, d, "", true)
 	if err != nil {
 		return nil, err
 	}

@@ -71,22 +71,14 @@ type Outlier struct {
 // DiagnoseFit checks the assumptions on the residuals of a line fit's
 // method m (constant error model; the cusum linearity test on its line).
 func DiagnoseFit(d *Data, m *MethodResult) *Diagnostics {
-	// One reading per sample, indexed as the caller's data: no sample
-	// index, replicate counts or copies of the data (a plot of 10⁶ points
-	// would pay for each).
-	st := &reduced{Data: *d, hasOrder: d.Order != nil}
-	if d.Order == nil {
-		st.Order = make([]float64, d.Len())
-		for i := range st.Order {
-			st.Order[i] = float64(i + 1)
-		}
-	}
 	a, b := m.Fit.Intercept.Value, m.Fit.Slope.Value
 	c := eiv.CusumLinearity(d.X, d.Y, a, b)
-	return diagnose(st, m.Fit, m.Method.Name, string(eiv.ErrorConstant), &c, nil, nil)
+	return diagnose(fitReduced(d), m.Fit, m.Method.Name, string(eiv.ErrorConstant), &c, nil, nil)
 }
 
-func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResult, rx, ry *eiv.Repeatability) *Diagnostics {
+// residuals computes the residuals of fit f on st's scale (model, and
+// York's normalized residuals) and flags outliers among them.
+func residuals(st *reduced, f *eiv.Fit, name, model string) *Diagnostics {
 	n := st.Len()
 	a, b := f.Intercept.Value, f.Slope.Value
 	d := &Diagnostics{ResidualsOf: name, Scale: "absolute"}
@@ -121,6 +113,36 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 			d.Standardized[i] = e[i] / sd
 		}
 	}
+	d.flagOutliers(st)
+	return d
+}
+
+// fitReduced is a line fit's data as diagnose reads them: one reading
+// per sample, indexed as the caller's data, with no sample index,
+// replicate counts or copies of the data (a plot of 10⁶ points would pay
+// for each); the run order is the input's unless the data give one.
+func fitReduced(d *Data) *reduced {
+	st := &reduced{Data: *d, hasOrder: d.Order != nil}
+	if d.Order == nil {
+		st.Order = make([]float64, d.Len())
+		for i := range st.Order {
+			st.Order[i] = float64(i + 1)
+		}
+	}
+	return st
+}
+
+// FitResiduals is DiagnoseFit without the tests and the Q-Q points: the
+// residuals and the flagged outliers, all a plot of the residuals or of
+// the data needs.
+func FitResiduals(d *Data, m *MethodResult) *Diagnostics {
+	return residuals(fitReduced(d), m.Fit, m.Method.Name, string(eiv.ErrorConstant))
+}
+
+func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResult, rx, ry *eiv.Repeatability) *Diagnostics {
+	d := residuals(st, f, name, model)
+	n, e, level := st.Len(), d.Residual, d.Level
+	a, b := f.Intercept.Value, f.Slope.Value
 	to := func(r eiv.TestResult) *eiv.TestResult { return &r }
 	// Normality.
 	if sw, err := eiv.ShapiroWilk(e); err == nil {
@@ -209,7 +231,13 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 	} else {
 		d.LinearityReading = sentence(reads, "No evidence against a straight line.", "; look at the samples with the largest residuals.")
 	}
-	// Outliers: generalized ESD on the residuals; flagged, never dropped.
+	return d
+}
+
+// flagOutliers runs the generalized ESD test on the residuals; outliers
+// are flagged, never dropped.
+func (d *Diagnostics) flagOutliers(st *reduced) {
+	n, e := len(d.Residual), d.Residual
 	r := max(1, min(10, n/10))
 	d.OutlierTest, d.OutlierMaxTested, d.Outliers = "generalized ESD (Rosner 1983), α = 0.05", r, []Outlier{}
 	if n-r >= 3 {
@@ -236,7 +264,6 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 		}
 		d.OutlierReading = fmt.Sprintf("Flagged as outliers: %s. They are kept in every fit; check them against the records, and exclude them only by listing their ids in \"exclude\", which shows the analysis both ways.", strings.Join(names, ", "))
 	}
-	return d
 }
 
 // sentence joins the findings into one sentence ending in tail, or says
