@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"testing"
 
 	"gonum.org/v1/gonum/stat/distuv"
@@ -87,3 +88,19 @@ func BenchmarkCoverageK(b *testing.B) {
 }
 
 var sinkK float64
+
+var sinkT float64
+
+// BenchmarkStudentT: one t draw per op, by ν (the mean of ν + 1 readings).
+func BenchmarkStudentT(b *testing.B) {
+	for _, nu := range []float64{1, 2, 3, 4, 5, 9} {
+		b.Run(fmt.Sprintf("nu=%g", nu), func(b *testing.B) {
+			src := rand.NewPCG(1, 2)
+			var s float64
+			for b.Loop() {
+				s += eiv.StudentT(src, nu)
+			}
+			sinkT = s
+		})
+	}
+}

@@ -3,6 +3,7 @@ package eiv_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -12,6 +13,7 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"eivfit/eiv"
+	"eivfit/eiv/reftest"
 )
 
 // lineCal fits a WLS calibration to x = 1..m on y = 1 + b·x with readings
@@ -148,6 +150,57 @@ func TestStudentTDraws(t *testing.T) {
 		if ks > 1.95/math.Sqrt(n) {
 			t.Errorf("ν = %g: KS distance %.4g > %.4g", nu, ks, 1.95/math.Sqrt(n))
 		}
+	}
+}
+
+// The t draws of the Monte Carlo (tDraw: inversion for ν = 2, Bailey's
+// polar method for ν = 1 and 4, normal over Marsaglia–Tsang gamma above)
+// against Student's t quantiles from Debian's python3-scipy
+// (testdata/ref_tquantile.py: −scipy.stats.t.ppf((1 − p)/2, ν), the upper
+// (1 + p)/2 quantile; the lower one by symmetry). For each ν, 10⁶ draws;
+// at each level P the count of draws at or below scipy's P-quantile is
+// Binomial(n, P) for an exact sampler, and must lie within 5 of its
+// standard deviations √(nP(1 − P)) of nP: 5σ per comparison keeps the
+// chance of a false alarm over all 8 × 12 comparisons below 10⁻⁴ (normal
+// approximation). Tried: draws for ν = 2 scaled by 1 % too much, or the
+// gamma's d = ν/2 − 1/3 off by 0.02, fail it.
+func TestStudentTQuantiles(t *testing.T) {
+	py := reftest.Python(t, "scipy", "mpmath")
+	nus := []float64{1, 2, 3, 4, 5, 7, 9, 30}
+	twoSided := []float64{0.5, 0.8, 0.9, 0.95, 0.99, 0.999}
+	var pts [][2]float64
+	for _, nu := range nus {
+		for _, p := range twoSided {
+			pts = append(pts, [2]float64{p, nu})
+		}
+	}
+	var ref struct{ Scipy []float64 }
+	reftest.Run(t, py, reftest.Script(t, "ref_tquantile.py"), map[string]any{"points": pts}, &ref)
+	if len(ref.Scipy) != len(pts) {
+		t.Fatalf("%d reference quantiles for %d points", len(ref.Scipy), len(pts))
+	}
+	const n = 1_000_000
+	for i, nu := range nus {
+		t.Run(fmt.Sprintf("nu=%g", nu), func(t *testing.T) {
+			src := rand.NewPCG(21, uint64(nu))
+			vals := make([]float64, n)
+			for k := range vals {
+				vals[k] = eiv.StudentT(src, nu)
+			}
+			slices.Sort(vals)
+			for j, p := range twoSided {
+				q := ref.Scipy[i*len(twoSided)+j]
+				for _, lv := range []struct {
+					P, x float64
+				}{{(1 - p) / 2, -q}, {(1 + p) / 2, q}} {
+					cnt, _ := slices.BinarySearch(vals, math.Nextafter(lv.x, math.Inf(1)))
+					sd := math.Sqrt(n * lv.P * (1 - lv.P))
+					if z := (float64(cnt) - n*lv.P) / sd; math.Abs(z) > 5 {
+						t.Errorf("P = %g (t = %.6g): %d draws at or below, want %.0f ± %.0f (z = %.2f)", lv.P, lv.x, cnt, n*lv.P, sd, z)
+					}
+				}
+			}
+		})
 	}
 }
 
