@@ -156,6 +156,14 @@ func TestCompareRunsChangingTrueValue(t *testing.T) {
 	if bodies["json"] != bodies["csv"] {
 		t.Error("the agreement from JSON and from CSV differ")
 	}
+	// The HTML report says which design the limits describe and why.
+	rec := h.do("POST", "/v1/method-comparison", "application/json", st.json, "Accept", "text/html")
+	page := rec.Body.String()
+	for _, w := range []string{"true value changing between runs", "Design of the limits for single measurements: the replicates carry runs that pair them"} {
+		if rec.Code != 200 || !strings.Contains(page, w) {
+			t.Errorf("status %d; the report lacks %q", rec.Code, w)
+		}
+	}
 }
 
 func countPairs(p []pairs) int {

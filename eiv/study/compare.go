@@ -639,6 +639,8 @@ func judge(o *CompareOptions, fits []*MethodResult, x []float64) []LevelResult {
 			at := &f.At[i]
 			b := at.Bias
 			if f.Method.Name == "passing_bablok" && at.Boot != nil {
+				// The interval is the bootstrap's: so is the SE beside it.
+				b.SE = at.BootSE
 				b.CI = eiv.Interval{Lower: at.Boot.Lower - l.Level, Upper: at.Boot.Upper - l.Level, Level: at.Boot.Level,
 					Method: "bootstrap " + at.Boot.Method}
 			}
