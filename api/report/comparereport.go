@@ -133,8 +133,13 @@ func agreementSection(a *wire.AgreementOut, conf float64, unit string) Section {
 		Row{Cells: []string{"lower limit of agreement", g(a.LimitsOfAgreement.Lower.Estimate), ciText(a.LimitsOfAgreement.Lower.CI)}},
 		Row{Cells: []string{"upper limit of agreement", g(a.LimitsOfAgreement.Upper.Estimate), ciText(a.LimitsOfAgreement.Upper.CI)}})
 	if s := a.SingleMeasurements; s != nil {
+		sdRow := "SD of single differences (within-sample variances added back)"
+		if s.Pairs != nil {
+			sdRow = fmt.Sprintf("SD of single differences (true value changing between runs, %d pairs by run)", *s.Pairs)
+			sec.Text = append(sec.Text, "Design of the limits for single measurements: "+s.DesignReason+".")
+		}
 		ag.Rows = append(ag.Rows,
-			Row{Cells: []string{"SD of single differences (within-sample variances added back)", g(s.SD), "-"}},
+			Row{Cells: []string{sdRow, g(s.SD), "-"}},
 			Row{Cells: []string{"lower limit, single measurements", g(s.LimitsOfAgreement.Lower.Estimate), ciText(s.LimitsOfAgreement.Lower.CI)}},
 			Row{Cells: []string{"upper limit, single measurements", g(s.LimitsOfAgreement.Upper.Estimate), ciText(s.LimitsOfAgreement.Upper.CI)}})
 	}

@@ -291,10 +291,15 @@ func writeAgreementText(b *strings.Builder, a *wire.AgreementOut) {
 	if a.Reading != "" {
 		fmt.Fprintf(b, "  %s\n", a.Reading)
 	}
-	if s := a.SingleMeasurements; s != nil {
+	if s := a.SingleMeasurements; s != nil && s.MeansLimits != nil {
 		fmt.Fprintf(b, "  Single measurements: limits %.4g %s to %.4g %s (SD %.4g; means alone: %.4g to %.4g)\n",
 			s.LimitsOfAgreement.Lower.Estimate, textCI(s.LimitsOfAgreement.Lower.CI, "%.4g"),
 			s.LimitsOfAgreement.Upper.Estimate, textCI(s.LimitsOfAgreement.Upper.CI, "%.4g"), s.SD, s.MeansLimits.Lower, s.MeansLimits.Upper)
+	} else if s != nil && s.Pairs != nil {
+		fmt.Fprintf(b, "  Single measurements, true value changing between runs (%d pairs): limits %.4g %s to %.4g %s (SD %.4g: within-sample %.4g, between-sample %.4g)\n",
+			*s.Pairs, s.LimitsOfAgreement.Lower.Estimate, textCI(s.LimitsOfAgreement.Lower.CI, "%.4g"),
+			s.LimitsOfAgreement.Upper.Estimate, textCI(s.LimitsOfAgreement.Upper.CI, "%.4g"), s.SD, *s.WithinSD, *s.BetweenSD)
+		fmt.Fprintf(b, "  Design: %s.\n", s.DesignReason)
 	}
 	if c := a.Concordance; c != nil {
 		fmt.Fprintf(b, "  Lin's concordance %.4f %s: precision (ρ) %.4f, accuracy (C_b) %.4f\n", c.CCC.Estimate, textCI(c.CCC.CI, "%.4f"), c.Precision, c.Accuracy)

@@ -6,22 +6,34 @@ import (
 )
 
 // SingleLimitsOut is the limits of agreement for single measurements from
-// replicates (Bland & Altman 1999, §5.2).
+// replicates: for a true value constant within a sample (Bland & Altman
+// 1999, §5.2) or, when runs pair the replicates, changing between runs
+// (Bland & Altman 2007, §3).
 type SingleLimitsOut struct {
-	Design            string    `json:"design"`    // "true_value_constant"
+	Design string `json:"design"` // "true_value_constant" or "true_value_varying"
+	// DesignReason says why the limits take that design.
+	DesignReason      string    `json:"design_reason"`
 	Describes         string    `json:"describes"` // "single_measurements"
 	Subjects          int       `json:"subjects"`
 	MeanDifference    Interval  `json:"mean_difference"`
 	SD                float64   `json:"sd"`
 	Multiplier        float64   `json:"multiplier"`
 	LimitsOfAgreement LimitsOut `json:"limits_of_agreement"`
-	// SDOfMeans is the SD of the samples' differences of means; WithinXSD
-	// and WithinYSD the pooled within-sample SDs added back.
-	SDOfMeans float64 `json:"sd_of_means"`
-	WithinXSD float64 `json:"within_x_sd"`
-	WithinYSD float64 `json:"within_y_sd"`
-	// MeansLimits are the limits the means alone give, for comparison.
-	MeansLimits Bounds `json:"means_limits"`
+	// Constant design: SDOfMeans is the SD of the samples' differences of
+	// means; WithinXSD and WithinYSD the pooled within-sample SDs added
+	// back; MeansLimits the limits the means alone give, for comparison.
+	SDOfMeans   *float64 `json:"sd_of_means,omitempty"`
+	WithinXSD   *float64 `json:"within_x_sd,omitempty"`
+	WithinYSD   *float64 `json:"within_y_sd,omitempty"`
+	MeansLimits *Bounds  `json:"means_limits,omitempty"`
+	// Changing design: Pairs is the number of x–y pairs formed by equal
+	// run labels, UnpairedSamples the samples without one (left out),
+	// WithinSD the within-sample SD of the paired differences and
+	// BetweenSD the between-sample SD of their true means.
+	Pairs           *int     `json:"pairs,omitempty"`
+	UnpairedSamples *int     `json:"unpaired_samples,omitempty"`
+	WithinSD        *float64 `json:"within_sd,omitempty"`
+	BetweenSD       *float64 `json:"between_sd,omitempty"`
 }
 
 // LimitsFormOut says which form of limits the data call for.
@@ -126,11 +138,16 @@ func agreementForms(out *AgreementOut, a *study.Agreement) {
 	out.Describes = string(a.Describes)
 	out.Reading = a.Reading
 	if s := a.Single; s != nil {
-		out.SingleMeasurements = &SingleLimitsOut{Design: string(s.Design), Describes: string(s.Describes), Subjects: s.Subjects,
+		so := &SingleLimitsOut{Design: string(s.Design), DesignReason: a.DesignReason, Describes: string(s.Describes), Subjects: s.Subjects,
 			MeanDifference: interval(s.MeanDifference), SD: s.SD, Multiplier: s.Multiplier,
-			LimitsOfAgreement: LimitsOut{Lower: interval(s.Lower), Upper: interval(s.Upper)},
-			SDOfMeans:         s.SDOfMeans, WithinXSD: s.WithinX, WithinYSD: s.WithinY,
-			MeansLimits: Bounds{Lower: s.MeansLower, Upper: s.MeansUpper}}
+			LimitsOfAgreement: LimitsOut{Lower: interval(s.Lower), Upper: interval(s.Upper)}}
+		if s.Design == eiv.DesignVarying {
+			so.Pairs, so.UnpairedSamples, so.WithinSD, so.BetweenSD = &a.Pairs, &a.Unpaired, ptr(s.WithinSD), ptr(s.BetweenSD)
+		} else {
+			so.SDOfMeans, so.WithinXSD, so.WithinYSD = ptr(s.SDOfMeans), ptr(s.WithinX), ptr(s.WithinY)
+			so.MeansLimits = &Bounds{Lower: s.MeansLower, Upper: s.MeansUpper}
+		}
+		out.SingleMeasurements = so
 	}
 	if f := a.Form; f != nil {
 		fo := &LimitsFormOut{Form: string(f.Form), ProportionalP: f.ProportionalP, SpreadP: f.SpreadP, Alpha: f.Alpha, Reason: f.Reason}

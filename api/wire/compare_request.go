@@ -163,7 +163,7 @@ func (p *pointParser) decisionLevel(ptr string) (DecisionLevel, error) {
 var compareKeys = []string{"samples", "x_name", "y_name", "unit", "decision_levels", "allowable_bias",
 	"error_model", "lambda", "confidence", "bootstrap", "exclude"}
 
-var sampleKeys = []string{"id", "x", "y", "sx", "sy", "order"}
+var sampleKeys = []string{"id", "x", "y", "sx", "sy", "order", "runs", "x_runs", "y_runs"}
 
 // DecodeCompareJSON reads a CompareRequest strictly, in one pass: every
 // list (samples, replicates, decision levels, excluded ids) is counted
@@ -274,7 +274,8 @@ func (p *pointParser) sample(i int) (Sample, error) {
 		}
 		return s, Invalid(ptr.String(), "each sample must be an object such as {\"id\": \"S1\", \"x\": [1.2, 1.3], \"y\": 1.4}")
 	}
-	var seen [6]bool // by index in sampleKeys
+	var seen [9]bool // by index in sampleKeys
+	var r Runs
 	p.pos++
 	p.ws()
 	if p.pos < len(p.b) && p.b[p.pos] == '}' {
@@ -300,6 +301,12 @@ func (p *pointParser) sample(i int) (Sample, error) {
 				k = 4
 			case "order":
 				k = 5
+			case "runs":
+				k = 6
+			case "x_runs":
+				k = 7
+			case "y_runs":
+				k = 8
 			default:
 				return s, p.unknownKey(ptr.String(), kb, sampleKeys)
 			}
@@ -328,6 +335,13 @@ func (p *pointParser) sample(i int) (Sample, error) {
 				s.SY, err = p.optLazyNumber(fp.String)
 			case 5:
 				s.Order, err = p.optLazyNumber(fp.String)
+			case 6:
+				r.X, err = p.runs(fp)
+				r.Y = r.X
+			case 7:
+				r.X, err = p.runs(fp)
+			case 8:
+				r.Y, err = p.runs(fp)
 			}
 			if err != nil {
 				return s, err
@@ -353,11 +367,77 @@ func (p *pointParser) sample(i int) (Sample, error) {
 	if s.Y == nil {
 		return s, Invalid(ptr.String()+"/y", "required: a number, or an array of replicate numbers")
 	}
-	return s, nil
+	if seen[6] || seen[7] || seen[8] {
+		s.Runs = &r
+	}
+	return s, checkSampleRuns(&s, ptr, seen[6], seen[7] || seen[8])
+}
+
+// Runs label a sample's replicates with their run or time.
+type Runs = study.Runs
+
+// checkSampleRuns checks a sample's run labels as read: runs (one label
+// per pair, x and y alike) or x_runs and y_runs (one label per value of
+// each method), never both, no label twice within a method.
+func checkSampleRuns(s *Sample, ptr samplePtr, runs, split bool) error {
+	if s.Runs == nil {
+		return nil
+	}
+	r := s.Runs
+	fp := func(f string) string { return ptr.String() + "/" + f }
+	switch {
+	case runs && split:
+		return Invalid(fp("runs"), "give runs (the x and y replicates paired in order) or x_runs and y_runs, not both")
+	case runs && (len(r.X) != len(s.X) || len(r.X) != len(s.Y)):
+		return Invalid(fp("runs"), fmt.Sprintf("runs pairs the replicates in order: %d labels for %d x and %d y values (x_runs and y_runs label each method's replicates apart)", len(r.X), len(s.X), len(s.Y)))
+	case split && (r.X == nil) != (r.Y == nil):
+		return Invalid(fp(map[bool]string{true: "y_runs", false: "x_runs"}[r.Y == nil]), "x_runs and y_runs go together")
+	case split && len(r.X) != len(s.X):
+		return Invalid(fp("x_runs"), fmt.Sprintf("%d labels for %d x values: one run per replicate", len(r.X), len(s.X)))
+	case split && len(r.Y) != len(s.Y):
+		return Invalid(fp("y_runs"), fmt.Sprintf("%d labels for %d y values: one run per replicate", len(r.Y), len(s.Y)))
+	}
+	for _, f := range []struct {
+		name string
+		runs []string
+	}{{map[bool]string{true: "runs", false: "x_runs"}[runs], r.X}, {"y_runs", r.Y}} {
+		if runs && f.name == "y_runs" {
+			break
+		}
+		for k, r := range f.runs {
+			if slices.Contains(f.runs[:k], r) {
+				return Invalid(fmt.Sprintf("%s/%d", fp(f.name), k), fmt.Sprintf("run %q appears twice in this sample: each replicate of a method needs its own run", Truncate(r)))
+			}
+		}
+	}
+	return nil
+}
+
+// runs reads an array of 1 to maxReplicates run labels (strings or numbers).
+func (p *pointParser) runs(fp samplePtr) ([]string, error) {
+	if p.null() {
+		return nil, Invalid(fp.String(), "an array of run labels, one per replicate")
+	}
+	var out []string
+	err := p.array(fp.String(), maxReplicates, KindInvalid, "run labels", func(k int) error {
+		l, err := p.label(samplePtr{i: fp.i, field: fmt.Sprintf("%s/%d", fp.field, k)}, "a run label")
+		if err == nil && l == "" {
+			err = Invalid(fmt.Sprintf("%v/%d", fp, k), "a run label is a non-empty string or a number")
+		}
+		out = append(out, l)
+		return err
+	})
+	if err == nil && len(out) == 0 {
+		err = Invalid(fp.String(), fmt.Sprintf("give 1 to %d run labels", maxReplicates))
+	}
+	return out, err
 }
 
 // sampleID reads a string or number id (null: none).
-func (p *pointParser) sampleID(fp samplePtr) (string, error) {
+func (p *pointParser) sampleID(fp samplePtr) (string, error) { return p.label(fp, "id") }
+
+// label reads a string or number (null: none); what names it in an error.
+func (p *pointParser) label(fp samplePtr, what string) (string, error) {
 	if p.null() {
 		return "", nil
 	}
@@ -371,7 +451,7 @@ func (p *pointParser) sampleID(fp samplePtr) (string, error) {
 				return "", serr
 			}
 		}
-		return "", Invalid(fp.String(), "id must be a string or a number")
+		return "", Invalid(fp.String(), what+" must be a string or a number")
 	}
 	return strconv.FormatFloat(v, 'g', -1, 64), nil
 }

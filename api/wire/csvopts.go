@@ -16,7 +16,7 @@ import (
 // Option values themselves (decision levels, at, lambda, …) always use a
 // point as the decimal mark, whatever Decimal says about the file.
 type CSVOptions struct {
-	// Columns maps a role (x, y, sx, sy, r, id, order, method, value) to
+	// Columns maps a role (x, y, sx, sy, r, id, order, method, value, run) to
 	// the header that carries it, matched like every header: ignoring
 	// case, surrounding spaces and a trailing unit in brackets. In a
 	// method comparison x and y may be mapped to several columns
@@ -62,7 +62,7 @@ var CSVQueryParameters = []string{"columns", "extra_columns", "units_row", "deli
 	"x_method", "y_method", "group_by"}
 
 // csvRoles are the roles a column may be mapped to.
-var csvRoles = []string{"x", "y", "sx", "sy", "r", "id", "order", "method", "value"}
+var csvRoles = []string{"x", "y", "sx", "sy", "r", "id", "order", "method", "value", "run"}
 
 // csvOptionNamer names an option where it was given: "query parameter
 // columns" or "--columns".

@@ -10,7 +10,9 @@ import (
 )
 
 // compareRoles are the roles of a comparison's columns.
-var compareRoles = []string{"id", "order", "x", "y", "sx", "sy", "method", "value"}
+// run (or a header named time) labels each row's replicates with their
+// run or time: an x and a y with equal labels are one pair.
+var compareRoles = []string{"id", "order", "x", "y", "sx", "sy", "method", "value", "run"}
 
 const (
 	cmpID = iota
@@ -21,6 +23,7 @@ const (
 	cmpSY
 	cmpMethod
 	cmpValue
+	cmpRun
 )
 
 // CompareGroup is one group of a comparison CSV split by group_by (the
@@ -80,6 +83,8 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 			return -1
 		case replicateColumn.MatchString(key):
 			return indexOf(compareRoles, replicateColumn.FindStringSubmatch(key)[1])
+		case key == "time":
+			return cmpRun
 		}
 		return indexOf(compareRoles, key)
 	}
@@ -91,15 +96,15 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 	if err != nil {
 		return nil, err
 	}
-	what := "id, order, x or x1, x2, …, y or y1, y2, …, sx, sy"
+	what := "id, order, x or x1, x2, …, y or y1, y2, …, sx, sy, run or time"
 	if long {
-		what = "id, method, value, order, sx, sy"
+		what = "id, method, value, order, sx, sy, run or time"
 	}
 	lay, err := readHeader(fields, line, o, known, roleIndex, what)
 	if err != nil {
 		return nil, err
 	}
-	var count [8]int
+	var count [9]int
 	for j, k := range lay.roles {
 		if k < 0 {
 			continue
@@ -119,8 +124,15 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 		return nil, Invalid(fmt.Sprintf("row %d", line), "with x_method and y_method the values come from the value column: no x or y columns")
 	case !long && (count[cmpX] == 0 || count[cmpY] == 0):
 		return nil, Invalid(fmt.Sprintf("row %d", line), "the header must name x (or x1, x2, …) and y (or y1, y2, …) columns")
+	case count[cmpRun] > 0 && (count[cmpX] > 1 || count[cmpY] > 1):
+		return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(lay.names[slices.Index(lay.roles, cmpRun)])),
+			"a run column labels one x and one y per row: give the replicates as rows (id, x, y, run repeated) or as id, method, value, run")
 	}
 	dec, skip := o.decimal(), o.skip()
+	runColumn := ""
+	if j := slices.Index(lay.roles, cmpRun); j >= 0 {
+		runColumn = lay.names[j]
+	}
 	var missing missingRows
 	accs := []*compareAcc{}
 	names := []string{}
@@ -168,7 +180,7 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 		}
 		a := acc(group)
 		var s Sample
-		var method string
+		var method, run string
 		bad, badReason := -1, ""
 		for j, f := range fields {
 			k := lay.roles[j]
@@ -185,6 +197,12 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 				continue
 			case cmpMethod:
 				method = string(f)
+				continue
+			case cmpRun:
+				if len(f) == 0 || !utf8.Valid(f) || len(f) > maxNameBytes {
+					return nil, Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(lay.names[j])), "every row needs its run or time: UTF-8 text of at most 256 bytes")
+				}
+				run = string(f)
 				continue
 			}
 			if len(f) == 0 && (k == cmpX || k == cmpY) {
@@ -254,7 +272,10 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 			missing.add(line, c, fmt.Sprintf("every sample needs at least one %s value", c))
 			continue
 		}
-		if err := a.add(s, line, count[cmpID] > 0); err != nil {
+		if count[cmpRun] > 0 {
+			s.Runs = &Runs{X: runLabels(run, len(s.X)), Y: runLabels(run, len(s.Y))}
+		}
+		if err := a.add(s, line, count[cmpID] > 0, runColumn); err != nil {
 			return nil, err
 		}
 		if lim.MaxPoints > 0 && len(a.samples) > lim.MaxPoints {
@@ -293,7 +314,7 @@ func DecodeCompareCSVGroups(r io.Reader, o *CSVOptions) ([]CompareGroup, error) 
 }
 
 // add merges a row into its sample: rows with the same id are replicates.
-func (a *compareAcc) add(s Sample, line int, hasID bool) error {
+func (a *compareAcc) add(s Sample, line int, hasID bool, runColumn string) error {
 	a.rows++
 	if !hasID || s.ID == "" {
 		a.samples = append(a.samples, &sampleAcc{s: s, row: line, rows: 1})
@@ -307,6 +328,20 @@ func (a *compareAcc) add(s Sample, line int, hasID bool) error {
 		return nil
 	}
 	p.rows++
+	if s.Runs != nil {
+		for _, m := range []struct {
+			name      string
+			runs, new []string
+		}{{"x", p.s.Runs.X, s.Runs.X}, {"y", p.s.Runs.Y, s.Runs.Y}} {
+			for _, r := range m.new {
+				if slices.Contains(m.runs, r) {
+					return Invalid(fmt.Sprintf("row %d, column %s", line, Truncate(runColumn)), fmt.Sprintf("sample %q has a %s value for run %q already: each replicate of a method needs its own run", Truncate(s.ID), m.name, Truncate(r)))
+				}
+			}
+		}
+		p.s.Runs.X = append(p.s.Runs.X, s.Runs.X...)
+		p.s.Runs.Y = append(p.s.Runs.Y, s.Runs.Y...)
+	}
 	p.s.X = append(p.s.X, s.X...)
 	p.s.Y = append(p.s.Y, s.Y...)
 	for _, c := range []struct {
@@ -326,6 +361,18 @@ func (a *compareAcc) add(s Sample, line int, hasID bool) error {
 		return Invalid(fmt.Sprintf("row %d, column id", line), fmt.Sprintf("sample %q has more than %d replicates of a method", Truncate(s.ID), maxReplicates))
 	}
 	return nil
+}
+
+// runLabels is a row's run label once per value it carries (nil for none).
+func runLabels(run string, n int) []string {
+	if n == 0 {
+		return nil
+	}
+	out := make([]string, n)
+	for i := range out {
+		out[i] = run
+	}
+	return out
 }
 
 // request makes the group's study; a sample left without x or y (its

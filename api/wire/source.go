@@ -82,7 +82,7 @@ func (s *Source) Locate(e *study.Error) string {
 			return s.option("methods", slices.Index(s.Methods, e.Method))
 		}
 		return s.Root
-	case "x", "y", "sx", "sy", "r", "id", "order":
+	case "x", "y", "sx", "sy", "r", "id", "order", "runs", "x_runs", "y_runs":
 		return s.point(e.Index, e.Field)
 	}
 	return s.option(e.Field, e.Index)

@@ -14,9 +14,16 @@ import (
 // nil (with a warning where the reason is not obvious).
 type AgreementForms struct {
 	// Single is the limits for single measurements when samples were
-	// measured in replicate (Bland & Altman 1999, §5.2: the true value
-	// constant within a sample); nil without replicates.
-	Single *eiv.ReplicateAgreement
+	// measured in replicate; nil without replicates. Its Design is the
+	// true value constant within a sample (Bland & Altman 1999, §5.2) or,
+	// when the replicates carry runs that pair them, changing between runs
+	// (Bland & Altman 2007, §3; 1999, §5.3). DesignReason says why.
+	Single       *eiv.ReplicateAgreement
+	DesignReason string
+	// Pairs is the number of x–y pairs formed by equal run labels and
+	// Unpaired the number of samples left out of the changing-value limits
+	// for want of a pair (both zero without runs).
+	Pairs, Unpaired int
 	// Form says which form of limits the data call for (constant, ratio
 	// or regression-based) and why.
 	Form *eiv.LimitsChoice
@@ -54,16 +61,21 @@ func (a *Agreement) forms(st *reduced, conf float64, positive bool, unit string,
 	}
 	if st.replicates {
 		a.Describes = eiv.LimitsMeans
-		subj := make([]eiv.Subject, len(st.repX))
-		for i := range subj {
-			subj[i] = eiv.Subject{X: st.repX[i], Y: st.repY[i]}
+		r, err := a.pairedLimits(st, ao, warnings)
+		if r == nil && err == nil {
+			subj := make([]eiv.Subject, len(st.repX))
+			for i := range subj {
+				subj[i] = eiv.Subject{X: st.repX[i], Y: st.repY[i]}
+			}
+			r, err = eiv.ReplicateLimits(subj, ao)
 		}
-		if r, err := eiv.ReplicateLimits(subj, ao); err == nil {
+		if err == nil {
 			a.Single = r
 			for _, w := range r.Warnings {
 				*warnings = append(*warnings, warning("agreement", w))
 			}
 		} else {
+			a.DesignReason = ""
 			note("the limits of agreement for single measurements", err)
 		}
 		if r, err := eiv.MethodRepeatability(st.repX, ao); err == nil {
@@ -95,6 +107,39 @@ func (a *Agreement) forms(st *reduced, conf float64, positive bool, unit string,
 	a.Reading = a.reading(unit)
 }
 
+// pairedLimits computes the limits for a true value changing between runs
+// when the samples' replicates carry runs that pair them (Bland & Altman
+// 2007, §3) and sets DesignReason; without usable pairs it returns nil and
+// no error, with the reason the constant design is used instead.
+func (a *Agreement) pairedLimits(st *reduced, ao *eiv.AgreementOptions, warnings *[]Warning) (*eiv.ReplicateAgreement, error) {
+	const constant = "the true value is taken as constant within a sample (Bland & Altman 1999, §5.2)"
+	if st.pairs == nil {
+		a.DesignReason = "the replicates carry no run or time: " + constant
+		return nil, nil
+	}
+	var subj []eiv.Subject
+	multi := false
+	for _, p := range st.pairs {
+		a.Pairs += len(p.X)
+		if len(p.X) == 0 {
+			a.Unpaired++
+			continue
+		}
+		multi = multi || len(p.X) > 1
+		subj = append(subj, p)
+	}
+	if !multi {
+		a.DesignReason = "the runs pair no sample's replicates more than once, so a change of the true value between runs cannot be told from error: " + constant
+		return nil, nil
+	}
+	a.DesignReason = fmt.Sprintf("the replicates carry runs that pair them (%d pairs), so the true value may change between runs: the limits follow Bland & Altman (2007, §3; 1999, §5.3)", a.Pairs)
+	if a.Unpaired > 0 {
+		*warnings = append(*warnings, Warning{Code: "samples_without_pair",
+			Message: fmt.Sprintf("%d samples have no x and y replicate with the same run and are left out of the limits for single measurements", a.Unpaired)})
+	}
+	return eiv.PairedReplicateLimits(subj, ao)
+}
+
 // reading says which limits describe what and which form the data call for.
 func (a *Agreement) reading(unit string) string {
 	u := ""
@@ -103,6 +148,9 @@ func (a *Agreement) reading(unit string) string {
 	}
 	var s string
 	switch {
+	case a.Single != nil && a.Single.Design == eiv.DesignVarying:
+		s = fmt.Sprintf("For single measurements the limits of agreement are %.4g to %.4g%s (the true value changing between runs: the replicates are paired by run, Bland & Altman 2007 §3); limits on the means of the replicates (%.4g to %.4g) describe means only.",
+			a.Single.Lower.Value, a.Single.Upper.Value, u, a.Lower.Value, a.Upper.Value)
 	case a.Single != nil:
 		s = fmt.Sprintf("For single measurements the limits of agreement are %.4g to %.4g%s (the within-sample variation added back, Bland & Altman 1999 §5.2); limits on the means of the replicates (%.4g to %.4g) describe means only.",
 			a.Single.Lower.Value, a.Single.Upper.Value, u, a.Lower.Value, a.Upper.Value)

@@ -27,6 +27,18 @@ type Sample struct {
 	SX    *float64  // standard uncertainty of the sample's x value (its mean)
 	SY    *float64
 	Order *float64 // run order; nil means the input order
+	// Runs are the run or time of each replicate (nil: none given).
+	Runs *Runs
+}
+
+// Runs label a sample's replicates with their run or time: one label per
+// value of X and of Y, none twice within a method. An x and a y replicate
+// with equal labels are one pair, measured at the same run or time, and
+// the limits for single measurements then allow the true value to change
+// between runs (Bland & Altman 2007, §3). (A pointer keeps Sample small
+// for the many studies without runs.)
+type Runs struct {
+	X, Y []string
 }
 
 // Samples are a method-comparison study's data.
@@ -194,9 +206,14 @@ func CheckCompare(samples Samples, o *CompareOptions) error {
 		return &Error{Kind: TooLarge, Field: FieldData, Index: -1,
 			Err: fmt.Errorf("%d samples exceed this server's limit of %d", n, o.MaxPoints)}
 	}
-	var nsx, nsy, nord int
+	var nsx, nsy, nord, nruns int
 	ids := map[string]bool{}
 	for i, s := range samples {
+		if s.Runs != nil {
+			nruns++
+			checkRuns(&c, i, "x_runs", s.Runs.X, len(s.X))
+			checkRuns(&c, i, "y_runs", s.Runs.Y, len(s.Y))
+		}
 		for _, col := range []struct {
 			name string
 			v    *float64
@@ -218,7 +235,8 @@ func CheckCompare(samples Samples, o *CompareOptions) error {
 		cnt  int
 		has  func(Sample) bool
 	}{{"sx", nsx, func(s Sample) bool { return s.SX != nil }}, {"sy", nsy, func(s Sample) bool { return s.SY != nil }},
-		{"order", nord, func(s Sample) bool { return s.Order != nil }}} {
+		{"order", nord, func(s Sample) bool { return s.Order != nil }},
+		{"runs", nruns, func(s Sample) bool { return s.Runs != nil }}} {
 		if col.cnt > 0 && col.cnt < n {
 			i := slices.IndexFunc(samples, func(s Sample) bool { return !col.has(s) })
 			c.add(col.name, i, "%s is given for some samples but missing here: give it for every sample or none", col.name)
@@ -264,6 +282,21 @@ func CheckCompare(samples Samples, o *CompareOptions) error {
 	return c.err()
 }
 
+// checkRuns checks one method's run labels of sample i: one per value,
+// none twice.
+func checkRuns(c *checker, i int, field string, runs []string, values int) {
+	if len(runs) != values {
+		c.add(field, i, "%s needs one run label per replicate value: %d labels for %d values", field, len(runs), values)
+		return
+	}
+	for k, r := range runs {
+		if slices.Contains(runs[:k], r) {
+			c.add(field, i, "run %q appears twice: each replicate of a method needs its own run", truncate(r))
+			return
+		}
+	}
+}
+
 func checkCommonAfter(c *checker, o *CompareOptions, hasSigma bool) {
 	checkCommon(c, o.Lambda, o.Confidence, o.Bootstrap, hasSigma, o.Limits)
 }
@@ -274,6 +307,9 @@ type reduced struct {
 	idx        []int // index into the caller's samples
 	kx, ky     []int
 	repX, repY [][]float64
+	// pairs holds each sample's x and y replicates paired by equal run
+	// labels (nil without runs).
+	pairs      []eiv.Subject
 	hasOrder   bool
 	replicates bool
 }
@@ -292,6 +328,9 @@ func reduce(samples Samples, skip map[string]bool) *reduced {
 		st.ky = append(st.ky, len(s.Y))
 		st.repX = append(st.repX, s.X)
 		st.repY = append(st.repY, s.Y)
+		if s.Runs != nil {
+			st.pairs = append(st.pairs, pairByRun(s))
+		}
 		if len(s.X) > 1 || len(s.Y) > 1 {
 			st.replicates = true
 		}
@@ -309,6 +348,19 @@ func reduce(samples Samples, skip map[string]bool) *reduced {
 		st.SX, st.SY = nil, nil
 	}
 	return st
+}
+
+// pairByRun pairs a sample's x and y replicates with equal run labels, in
+// the order of the x replicates; a replicate without its partner is left out.
+func pairByRun(s Sample) eiv.Subject {
+	var p eiv.Subject
+	for i, r := range s.Runs.X {
+		if j := slices.Index(s.Runs.Y, r); j >= 0 {
+			p.X = append(p.X, s.X[i])
+			p.Y = append(p.Y, s.Y[j])
+		}
+	}
+	return p
 }
 
 func mean(v []float64) float64 {
@@ -587,6 +639,8 @@ func judge(o *CompareOptions, fits []*MethodResult, x []float64) []LevelResult {
 			at := &f.At[i]
 			b := at.Bias
 			if f.Method.Name == "passing_bablok" && at.Boot != nil {
+				// The interval is the bootstrap's: so is the SE beside it.
+				b.SE = at.BootSE
 				b.CI = eiv.Interval{Lower: at.Boot.Lower - l.Level, Upper: at.Boot.Upper - l.Level, Level: at.Boot.Level,
 					Method: "bootstrap " + at.Boot.Method}
 			}

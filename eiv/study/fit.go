@@ -178,6 +178,9 @@ type Prediction struct {
 	// Boot is the bootstrap interval of the fitted y (BCa, else
 	// percentile), nil without a bootstrap; the bias's is Boot − X.
 	Boot *eiv.Interval
+	// BootSE is the bootstrap SE of the fitted y (and of the bias): the SD
+	// of its replicates; zero without a bootstrap.
+	BootSE float64
 	// Extrapolated says X lies outside the range of the fitted x values
 	// (the study then warns with WarnExtrapolated).
 	Extrapolated bool
@@ -488,7 +491,7 @@ func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float6
 					if sum.BCa != nil {
 						iv = sum.BCa
 					}
-					f.At[i].Boot = iv
+					f.At[i].Boot, f.At[i].BootSE = iv, sum.SE
 				}
 			}
 		}
