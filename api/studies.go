@@ -390,16 +390,17 @@ func (s *Server) handleHistory(c *gin.Context) {
 	s.writeJSON(c, http.StatusOK, map[string]any{"id": st.ID, "chain": chain, "revisions": wire.RevisionsOut(revs)})
 }
 
-// handleRevise serves POST /v1/studies/{id}/revisions: a reason, the
-// revision it changes (based_on, the latest; 409 otherwise) and the
-// change, recomputed from the stored input.
-func (s *Server) handleRevise(c *gin.Context) {
+// studyChange serves a POST on a stored study: it reads the body, decodes
+// it with decode and reads the study, then calls change; where one of these
+// fails it writes the problem instead.
+func studyChange[Req any](s *Server, c *gin.Context, decode func(io.Reader) (Req, error),
+	change func(req Req, store study.Store, st *study.Study, revs []study.Revision)) {
 	kind, body, release := s.open(c, false)
 	if kind == "" {
 		return
 	}
 	defer release()
-	req, err := wire.DecodeRevise(body)
+	req, err := decode(body)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
 		return
@@ -408,70 +409,67 @@ func (s *Server) handleRevise(c *gin.Context) {
 	if !ok {
 		return
 	}
-	if *req.BasedOn != len(revs)-1 {
-		s.problem(c, s.problemFor(c, fmt.Errorf("%w: based_on %d, latest %d", study.ErrConflict, *req.BasedOn, len(revs)-1)))
-		return
-	}
-	rev := &study.Revision{Reason: req.Reason, Who: s.whoName(c)}
-	for _, x := range req.Exclude {
-		rev.Change.Excluded = append(rev.Change.Excluded, study.Exclusion{ID: x.ID, Reason: x.Reason})
-	}
-	if len(req.Options) > 0 {
-		var b bytes.Buffer
-		if err := json.Compact(&b, req.Options); err != nil {
-			s.problem(c, wire.Invalid("/options", "options is a JSON object"))
+	change(req, store, st, revs)
+}
+
+// handleRevise serves POST /v1/studies/{id}/revisions: a reason, the
+// revision it changes (based_on, the latest; 409 otherwise) and the
+// change, recomputed from the stored input.
+func (s *Server) handleRevise(c *gin.Context) {
+	studyChange(s, c, wire.DecodeRevise, func(req *wire.ReviseRequest, store study.Store, st *study.Study, revs []study.Revision) {
+		if *req.BasedOn != len(revs)-1 {
+			s.problem(c, s.problemFor(c, fmt.Errorf("%w: based_on %d, latest %d", study.ErrConflict, *req.BasedOn, len(revs)-1)))
 			return
 		}
-		rev.Change.Options = b.Bytes()
-	}
-	all := append(revs, *rev)
-	r, err := inSlot(s, c, func(ctx context.Context) (*recomputed, error) { return s.recomputeAt(ctx, st, all, len(all)-1) })
-	if err != nil {
-		s.problem(c, s.problemFor(c, err))
-		return
-	}
-	rev.Result = r.json
-	stored, err := store.AddRevision(c.Request.Context(), st.ID, *req.BasedOn, rev)
-	if err != nil {
-		s.problem(c, s.problemFor(c, err))
-		return
-	}
-	loc := "/v1/studies/" + st.ID + "?revision=" + strconv.Itoa(stored.Number)
-	c.Header("Location", loc)
-	out := wire.RevisionsOut([]study.Revision{*stored})[0]
-	s.writeJSON(c, http.StatusCreated, map[string]any{"id": st.ID, "location": loc, "revision": out, "result": json.RawMessage(stored.Result)})
+		rev := &study.Revision{Reason: req.Reason, Who: s.whoName(c)}
+		for _, x := range req.Exclude {
+			rev.Change.Excluded = append(rev.Change.Excluded, study.Exclusion{ID: x.ID, Reason: x.Reason})
+		}
+		if len(req.Options) > 0 {
+			var b bytes.Buffer
+			if err := json.Compact(&b, req.Options); err != nil {
+				s.problem(c, wire.Invalid("/options", "options is a JSON object"))
+				return
+			}
+			rev.Change.Options = b.Bytes()
+		}
+		all := append(revs, *rev)
+		r, err := inSlot(s, c, func(ctx context.Context) (*recomputed, error) { return s.recomputeAt(ctx, st, all, len(all)-1) })
+		if err != nil {
+			s.problem(c, s.problemFor(c, err))
+			return
+		}
+		rev.Result = r.json
+		stored, err := store.AddRevision(c.Request.Context(), st.ID, *req.BasedOn, rev)
+		if err != nil {
+			s.problem(c, s.problemFor(c, err))
+			return
+		}
+		loc := "/v1/studies/" + st.ID + "?revision=" + strconv.Itoa(stored.Number)
+		c.Header("Location", loc)
+		out := wire.RevisionsOut([]study.Revision{*stored})[0]
+		s.writeJSON(c, http.StatusCreated, map[string]any{"id": st.ID, "location": loc, "revision": out, "result": json.RawMessage(stored.Result)})
+	})
 }
 
 // handleSign serves POST /v1/studies/{id}/revisions/{n}/signatures: the
 // key's holder signs revision n with a meaning; the signature covers the
 // revision's hash and carries the server's time.
 func (s *Server) handleSign(c *gin.Context) {
-	kind, body, release := s.open(c, false)
-	if kind == "" {
-		return
-	}
-	defer release()
-	req, err := wire.DecodeSign(body)
-	if err != nil {
-		s.problem(c, s.problemFor(c, err))
-		return
-	}
-	store, st, revs, ok := s.studyRoute(c)
-	if !ok {
-		return
-	}
-	n, err := strconv.Atoi(c.Param("n"))
-	if err != nil || n < 0 || n >= len(revs) {
-		s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("study %s has revisions 0 to %d", st.ID, len(revs)-1)))
-		return
-	}
-	sig := &study.Signature{Revision: n, Meaning: study.Meaning(req.Meaning), Signer: s.whoName(c), Comment: req.Comment,
-		RevisionHash: revs[n].Hash}
-	if err := store.Sign(c.Request.Context(), st.ID, n, sig); err != nil {
-		s.problem(c, s.problemFor(c, err))
-		return
-	}
-	s.writeJSON(c, http.StatusCreated, wire.SignaturesOut([]study.Signature{*sig})[0])
+	studyChange(s, c, wire.DecodeSign, func(req *wire.SignRequest, store study.Store, st *study.Study, revs []study.Revision) {
+		n, err := strconv.Atoi(c.Param("n"))
+		if err != nil || n < 0 || n >= len(revs) {
+			s.problem(c, wire.NewProblem(wire.KindNotFound, fmt.Sprintf("study %s has revisions 0 to %d", st.ID, len(revs)-1)))
+			return
+		}
+		sig := &study.Signature{Revision: n, Meaning: study.Meaning(req.Meaning), Signer: s.whoName(c), Comment: req.Comment,
+			RevisionHash: revs[n].Hash}
+		if err := store.Sign(c.Request.Context(), st.ID, n, sig); err != nil {
+			s.problem(c, s.problemFor(c, err))
+			return
+		}
+		s.writeJSON(c, http.StatusCreated, wire.SignaturesOut([]study.Signature{*sig})[0])
+	})
 }
 
 // handleStudies serves GET /v1/studies: a page of summaries, newest

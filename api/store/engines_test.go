@@ -135,6 +135,19 @@ func sample(series uint64, i int) *study.Study {
 }
 
 // sameContent compares everything a caller sets (not ID, Created).
+// chainOf reads st's history and fails the test unless its hash chain holds.
+func chainOf(tb testing.TB, ctx context.Context, s study.Store, st *study.Study) []study.Revision {
+	tb.Helper()
+	h, err := s.History(ctx, st.ID)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	if err := study.VerifyChain(st, h); err != nil {
+		tb.Fatal(err)
+	}
+	return h
+}
+
 func sameContent(got, want *study.Study) error {
 	switch {
 	case got.Kind != want.Kind, got.Label != want.Label, got.Who != want.Who,

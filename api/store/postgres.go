@@ -106,11 +106,7 @@ func (p pgQuerier) exec(ctx context.Context, q string, args ...any) error {
 }
 
 func (p pgQuerier) queryRow(ctx context.Context, q string, args []any, dest ...any) error {
-	err := p.q.QueryRow(ctx, q, args...).Scan(dest...)
-	if errors.Is(err, pgx.ErrNoRows) {
-		return errNoRows
-	}
-	return err
+	return noRows(p.q.QueryRow(ctx, q, args...).Scan(dest...), pgx.ErrNoRows)
 }
 
 func (p pgQuerier) query(ctx context.Context, q string, args []any, row func(scan func(...any) error) error) error {
@@ -119,10 +115,5 @@ func (p pgQuerier) query(ctx context.Context, q string, args []any, row func(sca
 		return err
 	}
 	defer rows.Close()
-	for rows.Next() {
-		if err := row(rows.Scan); err != nil {
-			return err
-		}
-	}
-	return rows.Err()
+	return scanRows(rows, row)
 }

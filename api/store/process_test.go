@@ -197,13 +197,7 @@ func checkAcked(t *testing.T, cfg Config, series uint64, acks map[int]string) {
 		if err := sameContent(got, sample(series, i)); err != nil {
 			t.Fatalf("acknowledged study %d (%s): %v", i, id, err)
 		}
-		h, err := s.History(ctx, id)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if err := study.VerifyChain(got, h); err != nil {
-			t.Fatal(err)
-		}
+		chainOf(t, ctx, s, got)
 	}
 	page, _, err := s.List(ctx, study.Filter{Limit: study.MaxLimit})
 	if err != nil {
@@ -369,15 +363,9 @@ func TestTwoProcessesRevise(t *testing.T) {
 				t.Fatalf("process %d: %v", p, err)
 			}
 		}
-		h, err := s.History(ctx, st.ID)
-		if err != nil {
-			t.Fatal(err)
-		}
+		h := chainOf(t, ctx, s, st)
 		if len(h) != rounds+1 {
 			t.Fatalf("%d revisions, want %d", len(h), rounds+1)
-		}
-		if err := study.VerifyChain(st, h); err != nil {
-			t.Fatal(err)
 		}
 		procsWon := map[byte]bool{}
 		for b := range rounds {

@@ -177,11 +177,7 @@ func (s sqlQuerier) exec(ctx context.Context, q string, args ...any) error {
 }
 
 func (s sqlQuerier) queryRow(ctx context.Context, q string, args []any, dest ...any) error {
-	err := s.q.QueryRowContext(ctx, q, args...).Scan(dest...)
-	if errors.Is(err, sql.ErrNoRows) {
-		return errNoRows
-	}
-	return err
+	return noRows(s.q.QueryRowContext(ctx, q, args...).Scan(dest...), sql.ErrNoRows)
 }
 
 func (s sqlQuerier) query(ctx context.Context, q string, args []any, row func(scan func(...any) error) error) error {
@@ -190,10 +186,5 @@ func (s sqlQuerier) query(ctx context.Context, q string, args []any, row func(sc
 		return err
 	}
 	defer rows.Close()
-	for rows.Next() {
-		if err := row(rows.Scan); err != nil {
-			return err
-		}
-	}
-	return rows.Err()
+	return scanRows(rows, row)
 }

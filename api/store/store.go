@@ -98,6 +98,29 @@ type querier interface {
 
 var errNoRows = errors.New("store: no rows")
 
+// noRows returns errNoRows for a driver's own "no rows" error, err otherwise.
+func noRows(err, driverNoRows error) error {
+	if errors.Is(err, driverNoRows) {
+		return errNoRows
+	}
+	return err
+}
+
+// scanRows hands each row of a driver's result set to row, then returns the
+// set's own error; the caller closes the set.
+func scanRows(rows interface {
+	Next() bool
+	Scan(dest ...any) error
+	Err() error
+}, row func(scan func(dest ...any) error) error) error {
+	for rows.Next() {
+		if err := row(rows.Scan); err != nil {
+			return err
+		}
+	}
+	return rows.Err()
+}
+
 // dbTime scans a time stored either way (SQLite: integer microseconds;
 // PostgreSQL: timestamptz).
 type dbTime struct{ t time.Time }

@@ -271,15 +271,9 @@ func TestRevisions(t *testing.T) {
 				t.Fatalf("revision %d returned as %+v", i+1, got)
 			}
 		}
-		hist, err := s.History(ctx, st.ID)
-		if err != nil {
-			t.Fatal(err)
-		}
+		hist := chainOf(t, ctx, s, st)
 		if len(hist) != len(changes)+1 {
 			t.Fatalf("%d revisions, want %d", len(hist), len(changes)+1)
-		}
-		if err := study.VerifyChain(st, hist); err != nil {
-			t.Fatal(err)
 		}
 		for i, ch := range changes {
 			r := hist[i+1]
@@ -393,15 +387,9 @@ func TestConcurrentRevisionsOneWins(t *testing.T) {
 				t.Fatalf("round %d: %d winners, want exactly 1", round, won)
 			}
 		}
-		h, err := s.History(ctx, st.ID)
-		if err != nil {
-			t.Fatal(err)
-		}
+		h := chainOf(t, ctx, s, st)
 		if len(h) != rounds+1 {
 			t.Fatalf("%d revisions, want %d", len(h), rounds+1)
-		}
-		if err := study.VerifyChain(st, h); err != nil {
-			t.Fatal(err)
 		}
 	})
 }
@@ -494,13 +482,7 @@ func TestSignatures(t *testing.T) {
 		if _, err := s.AddRevision(ctx, st.ID, 1, &study.Revision{Reason: "use Deming", Who: "analyst"}); err != nil {
 			t.Fatal(err)
 		}
-		h, err := s.History(ctx, st.ID)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if err := study.VerifyChain(st, h); err != nil {
-			t.Fatal(err)
-		}
+		h := chainOf(t, ctx, s, st)
 		want := [][]string{{"reviewed by rev-a"}, {"approved by boss", "reviewed by rev-a"}, nil}
 		for i, r := range h {
 			var got []string

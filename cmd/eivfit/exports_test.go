@@ -1,8 +1,6 @@
 package main
 
 import (
-	"bytes"
-	"net/http/httptest"
 	"os"
 	"strings"
 	"testing"
@@ -52,10 +50,7 @@ func TestExportsCLI(t *testing.T) {
 			if err != nil {
 				t.Fatalf("%v: %s", err, stderr)
 			}
-			req := httptest.NewRequest("POST", c.path+"?"+c.query, bytes.NewReader(body))
-			req.Header.Set("Content-Type", "text/csv")
-			rec := httptest.NewRecorder()
-			srv.Handler().ServeHTTP(rec, req)
+			rec := serveCSV(srv, c.path+"?"+c.query, body)
 			if rec.Code != 200 {
 				t.Fatalf("status %d %s", rec.Code, rec.Body.String())
 			}

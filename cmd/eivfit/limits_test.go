@@ -1,17 +1,14 @@
 package main
 
 import (
-	"bufio"
 	"bytes"
 	"fmt"
 	"io"
 	"math/rand/v2"
-	"net"
 	"net/http"
 	"os"
 	"strconv"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 )
@@ -247,29 +244,17 @@ func TestIdleUploadsDoNotBlock(t *testing.T) {
 	timed() // warm up
 	unloaded := min(timed(), timed(), timed())
 	addr := strings.TrimPrefix(p.base, "http://")
-	var wg sync.WaitGroup
-	answers := make([]string, 4)
-	for i := range 4 {
-		conn, err := net.Dial("tcp", addr)
-		if err != nil {
-			t.Fatal(err)
-		}
-		defer conn.Close()
-		fmt.Fprintf(conn, "POST /v1/fit HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\nContent-Length: %d\r\n\r\n", 64<<20)
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			_ = conn.SetReadDeadline(time.Now().Add(10 * time.Second))
-			line, _ := bufio.NewReader(conn).ReadString('\n')
-			answers[i] = strings.TrimSpace(line)
-		}()
+	uploads, err := openIdleConns(addr, 4, 10*time.Second)
+	if err != nil {
+		t.Fatal(err)
 	}
+	defer uploads.close()
 	time.Sleep(200 * time.Millisecond) // the uploads are in their handlers
 	loaded := min(timed(), timed(), timed())
 	if loaded > unloaded+100*time.Millisecond {
 		t.Errorf("with four idle uploads a small fit took %v (unloaded %v)", loaded, unloaded)
 	}
-	wg.Wait()
+	answers, _ := uploads.wait()
 	for i, a := range answers {
 		if !strings.HasPrefix(a, "HTTP/1.1 408") {
 			t.Errorf("idle upload %d answered %q, want 408", i, a)

@@ -199,31 +199,63 @@ func idleUploads(stdout io.Writer, client *http.Client, base string) error {
 		return d, codes
 	}
 	unloaded, _ := best()
-	answers := make([]string, 4)
-	var wg sync.WaitGroup
-	t0 := time.Now()
-	took := make([]time.Duration, 4)
-	for i := range answers {
-		conn, err := net.Dial("tcp", strings.TrimPrefix(base, "http://"))
-		if err != nil {
-			return err
-		}
-		defer conn.Close()
-		fmt.Fprintf(conn, "POST /v1/fit HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\nContent-Length: %d\r\n\r\n", 64<<20)
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			_ = conn.SetReadDeadline(time.Now().Add(90 * time.Second))
-			line, _ := bufio.NewReader(conn).ReadString('\n')
-			answers[i], took[i] = strings.TrimSpace(line), time.Since(t0)
-		}()
+	uploads, err := openIdleConns(strings.TrimPrefix(base, "http://"), 4, 90*time.Second)
+	if err != nil {
+		return err
 	}
+	defer uploads.close()
 	time.Sleep(200 * time.Millisecond)
 	loaded, codes := best()
-	wg.Wait()
+	answers, took := uploads.wait()
 	fmt.Fprintf(stdout, "four idle 64 MiB uploads: small fit %v (unloaded %v), statuses %v; the uploads answered %q after %v\n",
 		loaded.Round(time.Microsecond), unloaded.Round(time.Microsecond), codes, answers[0], took[0].Round(time.Millisecond))
 	return nil
+}
+
+// idleConns are connections that each sent the head of a POST /v1/fit
+// declaring a 64 MiB body and then nothing, each reading its status line.
+type idleConns struct {
+	conns   []net.Conn
+	wg      sync.WaitGroup
+	answers []string        // the status lines, trimmed
+	took    []time.Duration // when each came, from the opening
+}
+
+// openIdleConns opens n idle uploads to addr (host:port), each waiting
+// at most timeout for its answer; on an error those opened are closed.
+func openIdleConns(addr string, n int, timeout time.Duration) (*idleConns, error) {
+	u := &idleConns{answers: make([]string, n), took: make([]time.Duration, n)}
+	t0 := time.Now()
+	for i := range n {
+		conn, err := net.Dial("tcp", addr)
+		if err != nil {
+			u.close()
+			return nil, err
+		}
+		u.conns = append(u.conns, conn)
+		fmt.Fprintf(conn, "POST /v1/fit HTTP/1.1\r\nHost: x\r\nContent-Type: application/json\r\nContent-Length: %d\r\n\r\n", 64<<20)
+		u.wg.Add(1)
+		go func() {
+			defer u.wg.Done()
+			_ = conn.SetReadDeadline(time.Now().Add(timeout))
+			line, _ := bufio.NewReader(conn).ReadString('\n')
+			u.answers[i], u.took[i] = strings.TrimSpace(line), time.Since(t0)
+		}()
+	}
+	return u, nil
+}
+
+// wait returns the status lines and their times once every upload has one
+// (or has timed out).
+func (u *idleConns) wait() ([]string, []time.Duration) {
+	u.wg.Wait()
+	return u.answers, u.took
+}
+
+func (u *idleConns) close() {
+	for _, c := range u.conns {
+		c.Close()
+	}
 }
 
 // giantLists sends bodies of about 60 MB that hold one giant list each.

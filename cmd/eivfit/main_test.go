@@ -169,10 +169,7 @@ func TestCLIAndServiceIdentical(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%v: %s", err, stderr)
 		}
-		req := httptest.NewRequest("POST", "/v1/fit?"+c.query, bytes.NewReader(body))
-		req.Header.Set("Content-Type", "text/csv")
-		rec := httptest.NewRecorder()
-		srv.Handler().ServeHTTP(rec, req)
+		rec := serveCSV(srv, "/v1/fit?"+c.query, body)
 		if rec.Code != 200 {
 			t.Fatalf("%s: status %d %s", c.file, rec.Code, rec.Body.String())
 		}
@@ -209,10 +206,7 @@ func TestCalibrateCLIAndServiceIdentical(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%v: %s", err, stderr)
 		}
-		req := httptest.NewRequest("POST", "/v1/calibration?"+c.query, bytes.NewReader(body))
-		req.Header.Set("Content-Type", "text/csv")
-		rec := httptest.NewRecorder()
-		srv.Handler().ServeHTTP(rec, req)
+		rec := serveCSV(srv, "/v1/calibration?"+c.query, body)
 		if rec.Code != 200 {
 			t.Fatalf("status %d %s", rec.Code, rec.Body.String())
 		}
@@ -307,10 +301,7 @@ func TestCompareCLI(t *testing.T) {
 	}
 	body, _ := os.ReadFile("../../testdata/demo-glucose-duplicates.csv")
 	srv, _ := api.NewServer(api.Config{})
-	req := httptest.NewRequest("POST", "/v1/method-comparison?decision_levels=3.9,7,11.1&allowable_percent=5&unit=mmol/L&confidence=0.95", bytes.NewReader(body))
-	req.Header.Set("Content-Type", "text/csv")
-	rec := httptest.NewRecorder()
-	srv.Handler().ServeHTTP(rec, req)
+	rec := serveCSV(srv, "/v1/method-comparison?decision_levels=3.9,7,11.1&allowable_percent=5&unit=mmol/L&confidence=0.95", body)
 	if rec.Body.String() != out {
 		t.Error("CLI and service differ")
 	}
@@ -359,15 +350,7 @@ func TestSIGTERMDrains(t *testing.T) {
 	if err := cmd.Start(); err != nil {
 		t.Fatal(err)
 	}
-	sc := bufio.NewScanner(out)
-	base := ""
-	for sc.Scan() {
-		if u, ok := strings.CutPrefix(sc.Text(), "eivfit dev listening on "); ok {
-			base = u
-			break
-		}
-	}
-	go io.Copy(io.Discard, out)
+	base := listeningOn(out)
 	if base == "" {
 		cmd.Process.Kill()
 		t.Fatal("the server did not start")
@@ -441,15 +424,7 @@ func TestServeAPIKeysFile(t *testing.T) {
 		done <- run(ctx, []string{"serve", "--addr", "127.0.0.1:0", "--api-keys-file", keys, "--log-level", "error"}, nil, pw, io.Discard)
 		pw.Close()
 	}()
-	sc := bufio.NewScanner(pr)
-	base := ""
-	for sc.Scan() {
-		if u, ok := strings.CutPrefix(sc.Text(), "eivfit dev listening on "); ok {
-			base = u
-			break
-		}
-	}
-	go io.Copy(io.Discard, pr)
+	base := listeningOn(pr)
 	body := `{"points":[{"x":1,"y":2},{"x":2,"y":3},{"x":3,"y":5}]}`
 	for _, c := range []struct {
 		key  string
@@ -507,4 +482,30 @@ func TestPlanCLIAndServiceIdentical(t *testing.T) {
 	if err != nil || !strings.Contains(text, "in duplicate") || !strings.Contains(text, "slope power") {
 		t.Errorf("text output (%v):\n%s", err, text)
 	}
+}
+
+// serveCSV posts body as CSV to target (path and query) through srv's
+// handler.
+func serveCSV(srv *api.Server, target string, body []byte) *httptest.ResponseRecorder {
+	req := httptest.NewRequest("POST", target, bytes.NewReader(body))
+	req.Header.Set("Content-Type", "text/csv")
+	rec := httptest.NewRecorder()
+	srv.Handler().ServeHTTP(rec, req)
+	return rec
+}
+
+// listeningOn reads the output of `eivfit serve` up to the line that says
+// where it listens and returns that address ("" when the output ends
+// first); the rest of the output is drained.
+func listeningOn(out io.Reader) string {
+	sc := bufio.NewScanner(out)
+	base := ""
+	for sc.Scan() {
+		if u, ok := strings.CutPrefix(sc.Text(), "eivfit dev listening on "); ok {
+			base = u
+			break
+		}
+	}
+	go io.Copy(io.Discard, out)
+	return base
 }
