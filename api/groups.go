@@ -83,6 +83,12 @@ func serveGroups[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res],
 	})
 	cancel()
 	free()
+	s.countPoints(resp)
+	s.writeJSON(c, http.StatusOK, resp)
+}
+
+// countPoints adds the points of every answer of a batch to the metrics.
+func (s *Server) countPoints(resp *wire.BatchResponse) {
 	for _, r := range resp.Results {
 		switch {
 		case r.Fit != nil:
@@ -91,7 +97,6 @@ func serveGroups[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res],
 			s.metrics.points.Add(float64(r.Comparison.N))
 		}
 	}
-	s.writeJSON(c, http.StatusOK, resp)
 }
 
 func putFit(r *wire.BatchResult, a any)     { r.Fit = a.(*wire.FitResponse) }

@@ -14,7 +14,7 @@ func FuzzBatchJSON(f *testing.F) {
 	}
 	f.Fuzz(func(t *testing.T, data []byte) {
 		var req BatchRequest
-		if err := decodeBatch(data, &req, 50); err != nil {
+		if err := decodeBatch(data, &req, Limits{Limits: DefaultLimits.Limits, MaxBatch: 50}); err != nil {
 			if _, ok := err.(*Problem); !ok {
 				t.Fatalf("not a problem: %v", err)
 			}
@@ -22,7 +22,7 @@ func FuzzBatchJSON(f *testing.F) {
 		}
 		for _, raw := range req.Datasets {
 			var e BatchEntry
-			if err := decodeBatchEntry(raw, &e, DefaultLimits); err != nil {
+			if err := decodeBatchEntry(raw, &e, DefaultLimits, req.fit, req.cmp); err != nil {
 				if _, ok := err.(*Problem); !ok {
 					t.Fatalf("not a problem: %v", err)
 				}
