@@ -3,8 +3,10 @@ package api
 import (
 	"context"
 	"fmt"
+	"maps"
 	"net/http"
 	"runtime"
+	"slices"
 	"sync"
 
 	"eivfit/api/wire"
@@ -114,6 +116,10 @@ func (s *Server) handleBatch(c *gin.Context) {
 		return
 	}
 	defer release()
+	if p := batchQuery(c.Request.URL.RawQuery); p != nil {
+		s.problem(c, p)
+		return
+	}
 	req, err := wire.DecodeBatch(body)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
@@ -134,6 +140,26 @@ func (s *Server) handleBatch(c *gin.Context) {
 	}
 	s.countPoints(resp)
 	s.writeJSON(c, http.StatusOK, resp)
+}
+
+// batchQuery refuses every query parameter on /v1/batch: its options are
+// in the body (defaults and each dataset's own), and a batch is not saved
+// as studies.
+func batchQuery(raw string) *wire.Problem {
+	q, err := wire.ParseQuery(raw)
+	if err != nil {
+		if p, ok := err.(*wire.Problem); ok {
+			return p
+		}
+		return wire.Invalid("query", err.Error())
+	}
+	for _, k := range slices.Sorted(maps.Keys(q)) {
+		if k == "save" || k == "label" || k == "tags" || k == "tag" {
+			return wire.Invalid(wire.QueryName(k), "a batch is not saved as studies: send each dataset to /v1/fit or /v1/method-comparison with save=true")
+		}
+		return wire.Invalid(wire.QueryName(k), fmt.Sprintf("unknown query parameter %q: a batch carries its options in the body (defaults, and each dataset's own)", wire.Truncate(k)))
+	}
+	return nil
 }
 
 // batchSlots takes one compute slot (waiting up to SlotWait), then up to

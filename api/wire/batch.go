@@ -169,28 +169,7 @@ func (req *BatchRequest) decodeDefaults(lim Limits) error {
 	if req.Defaults == nil {
 		return nil
 	}
-	p := &pointParser{b: req.Defaults, lim: lim}
-	fit, cmp := &FitRequest{}, &CompareRequest{}
-	var given []string
-	err := p.object("/defaults", func(key []byte) error {
-		k := string(key)
-		given = append(given, k)
-		switch {
-		case slices.Contains(fitDefaultKeys, k):
-			return p.fitMember(fit, key, "/defaults")
-		case slices.Contains(compareDefaultKeys, k):
-			return prefixedErr(p.compareMember(cmp, key), "/defaults")
-		case slices.Contains(sharedDefaultKeys, k):
-			if err := p.fitMember(fit, key, "/defaults"); err != nil {
-				return err
-			}
-			cmp.Lambda, cmp.Confidence, cmp.Bootstrap = fit.Lambda, fit.Confidence, fit.Bootstrap
-			return nil
-		case k == "name" || k == "kind" || k == "points" || k == "samples" || k == "exclude":
-			return Invalid("/defaults/"+k, fmt.Sprintf("%q belongs to each dataset, not to the defaults (defaults hold options: %s)", k, strings.Join(defaultKeys, ", ")))
-		}
-		return p.unknownKey("/defaults", key, defaultKeys)
-	}, defaultKeys)
+	fit, cmp, given, err := decodeOptions(req.Defaults, "/defaults", lim)
 	if err != nil {
 		return err
 	}
@@ -201,6 +180,41 @@ func (req *BatchRequest) decodeDefaults(lim Limits) error {
 	}
 	req.fit, req.cmp = fit, cmp
 	return nil
+}
+
+// decodeOptions reads an object of options (the members of a batch's
+// defaults) strictly, pointers under ptr: the fit options into fit, the
+// comparison options into cmp, the shared ones into both; given lists the
+// members in the order given.
+func decodeOptions(b []byte, ptr string, lim Limits) (fit *FitRequest, cmp *CompareRequest, given []string, err error) {
+	p := &pointParser{b: b, lim: lim}
+	fit, cmp = &FitRequest{}, &CompareRequest{}
+	err = p.object(ptr, func(key []byte) error {
+		k := string(key)
+		given = append(given, k)
+		switch {
+		case slices.Contains(fitDefaultKeys, k):
+			return p.fitMember(fit, key, ptr)
+		case slices.Contains(compareDefaultKeys, k):
+			return prefixedErr(p.compareMember(cmp, key), ptr)
+		case slices.Contains(sharedDefaultKeys, k):
+			if err := p.fitMember(fit, key, ptr); err != nil {
+				return err
+			}
+			cmp.Lambda, cmp.Confidence, cmp.Bootstrap = fit.Lambda, fit.Confidence, fit.Bootstrap
+			return nil
+		case k == "name" || k == "kind" || k == "points" || k == "samples" || k == "exclude":
+			return Invalid(ptr+"/"+k, fmt.Sprintf("%q belongs to each dataset, not to shared options (they hold: %s)", k, strings.Join(defaultKeys, ", ")))
+		}
+		return p.unknownKey(ptr, key, defaultKeys)
+	}, defaultKeys)
+	if err == nil {
+		p.ws()
+		if p.pos != len(p.b) {
+			err = Invalid(ptr, "holds more than one JSON value")
+		}
+	}
+	return fit, cmp, given, err
 }
 
 // defaultUsed refuses default k when no dataset takes it. A dataset whose
