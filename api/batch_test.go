@@ -184,3 +184,39 @@ func TestBatchFaults(t *testing.T) {
 		})
 	}
 }
+
+// A batch carries its options in its body, and a file split by group_by
+// is not saved: a query that would be ignored is a 400 naming it.
+func TestBatchAndGroupQueries(t *testing.T) {
+	p, _ := batchPoints(4, 10)
+	batch := `{"datasets":[{"points":` + p + `}]}`
+	const csv = "analyte,id,x,y\na,1,1,1.1\na,2,2,2.1\na,3,3,3.2\na,4,4,4.1\nb,1,1,1.1\nb,2,2,2.3\nb,3,3,3.2\nb,4,4,4.4\n"
+	cases := []struct {
+		name, target, ctype, body string
+		pointer, detail           string
+	}{
+		{"batch with save", "/v1/batch?save=true", "application/json", batch, "query parameter save", "not saved"},
+		{"batch with a label", "/v1/batch?label=x", "application/json", batch, "query parameter label", "not saved"},
+		{"batch with an option", "/v1/batch?confidence=0.9", "application/json", batch, "query parameter confidence", "defaults"},
+		{"batch with a bad escape", "/v1/batch?x=%zz", "application/json", batch, "", "escape"},
+		{"groups with save", "/v1/fit?group_by=analyte&save=true", "text/csv", csv, "query parameter save", "group_by is not saved"},
+		{"comparison groups with a tag", "/v1/method-comparison?group_by=analyte&tag=a:b", "text/csv", csv, "query parameter tag", "group_by is not saved"},
+		{"groups with a bad escape", "/v1/fit?group_by=analyte&at=%zz", "text/csv", csv, "", "escape"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			h := newHarness(t, Config{})
+			rec := h.do("POST", c.target, c.ctype, c.body)
+			if rec.Code != 400 {
+				t.Fatalf("status %d\n%s", rec.Code, rec.Body.String())
+			}
+			pr := decodeProblem(t, rec)
+			if c.pointer != "" && (len(pr.Errors) == 0 || pr.Errors[0].Pointer != c.pointer) {
+				t.Errorf("errors %+v, want pointer %q", pr.Errors, c.pointer)
+			}
+			if !strings.Contains(pr.Error(), c.detail) {
+				t.Errorf("problem %q, want it to contain %q", pr.Error(), c.detail)
+			}
+		})
+	}
+}
