@@ -69,12 +69,20 @@ var (
 )
 
 // datasetHead is what a batch knows of a dataset before decoding it: its
-// name and kind (when they read as strings) and its members.
+// name and kind (when they read as strings) and which of the defaults'
+// members it sets (bit i for defaultKeys[i]; other keys are not kept, so
+// a dataset of a million keys costs nothing here).
 type datasetHead struct {
 	object bool
 	name   string
 	kind   string // "" when absent: a fit
-	keys   []string
+	sets   uint32
+}
+
+// has says whether the dataset sets default member k.
+func (h datasetHead) has(k string) bool {
+	i := slices.Index(defaultKeys, k)
+	return i >= 0 && h.sets&(1<<i) != 0
 }
 
 // readHead reads the top level of a dataset leniently; the strict reading
@@ -98,7 +106,9 @@ func readHead(raw []byte) (h datasetHead) {
 			return h
 		}
 		k := string(kb)
-		h.keys = append(h.keys, k)
+		if i := slices.Index(defaultKeys, k); i >= 0 {
+			h.sets |= 1 << i
+		}
 		p.ws()
 		if p.pos >= len(p.b) || p.b[p.pos] != ':' {
 			return h
@@ -235,7 +245,7 @@ func (req *BatchRequest) defaultUsed(k string) error {
 		}
 		if slices.Contains(kinds, kind) {
 			of = true
-			if !slices.Contains(h.keys, k) {
+			if !h.has(k) {
 				return nil
 			}
 		}
