@@ -2,10 +2,11 @@ package api
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
+	"maps"
 	"net/http"
 	"runtime"
+	"slices"
 	"sync"
 
 	"eivfit/api/wire"
@@ -14,21 +15,42 @@ import (
 	"github.com/gin-gonic/gin"
 )
 
-// RunBatch decodes and fits every dataset, set.Workers of them at once
-// (zero means GOMAXPROCS), each fit and its bootstrap on one core. When ctx
-// ends, the datasets already fitted keep their results and every other one
-// gets a deadline-exceeded problem: a batch at its deadline loses nothing
-// it finished.
+// RunBatch decodes and runs every dataset (a fit, or a method comparison
+// with kind "method-comparison"), set.Workers of them at once (zero means
+// GOMAXPROCS), each study and its bootstrap on one core. When ctx ends,
+// the datasets already done keep their results and every other one gets a
+// deadline-exceeded problem: a batch at its deadline loses nothing it
+// finished.
 func RunBatch(ctx context.Context, req *wire.BatchRequest, set study.Settings, maxBatch int) (*wire.BatchResponse, error) {
 	if len(req.Datasets) == 0 {
-		return nil, wire.Invalid("/datasets", "datasets is required: an array of fit requests, each with a name")
+		return nil, wire.Invalid("/datasets", "datasets is required: an array of fit requests or method comparisons, each with a name")
 	}
 	if maxBatch > 0 && len(req.Datasets) > maxBatch {
 		return nil, wire.Invalid("/datasets", fmt.Sprintf("at most %d datasets per batch", maxBatch))
 	}
+	fit, cmp := groupStudy(fitEndpoint, putFit), groupStudy(compareEndpoint, putCompare)
+	lim := wire.Limits{Limits: set.Limits}
 	out := runEach(ctx, len(req.Datasets), set, func(ctx context.Context, i int, set study.Settings) wire.BatchResult {
-		return runEntry(ctx, i, req.Datasets[i], set)
-	}, func(i int) wire.BatchResult { return unfinished(i, req.Datasets[i]) })
+		var res wire.BatchResult
+		e, err := req.Entry(i, lim)
+		switch {
+		case e.Kind == wire.DatasetComparison:
+			res = cmp(ctx, wire.Grouped[*wire.CompareRequest]{Req: e.Comparison, Err: err}, set)
+		default:
+			res = fit(ctx, wire.Grouped[*wire.FitRequest]{Req: &e.FitRequest, Err: err}, set)
+		}
+		res.Name = req.Name(i)
+		if e.Name != "" {
+			res.Name = e.Name
+		}
+		if res.Problem != nil {
+			res.Problem = wire.Prefixed(res.Problem, fmt.Sprintf("/datasets/%d", i))
+		}
+		return res
+	}, func(i int) wire.BatchResult {
+		p := batchDeadline()
+		return wire.BatchResult{Name: req.Name(i), Status: p.Status, Problem: wire.Prefixed(p, fmt.Sprintf("/datasets/%d", i))}
+	})
 	return out, nil
 }
 
@@ -77,60 +99,11 @@ dispatch:
 	return out
 }
 
-// unfinished is the result of a dataset the batch's deadline left unfitted.
-func unfinished(i int, raw json.RawMessage) wire.BatchResult {
-	res := wire.BatchResult{Name: fmt.Sprintf("dataset %d", i+1)}
-	var named struct {
-		Name string `json:"name"`
-	}
-	if json.Unmarshal(raw, &named) == nil && named.Name != "" {
-		res.Name = named.Name
-	}
-	p := batchDeadline()
-	res.Problem, res.Status = wire.Prefixed(p, fmt.Sprintf("/datasets/%d", i)), p.Status
-	return res
-}
-
 // batchDeadline is the problem of a dataset left unfitted at the deadline;
 // its one error points at the dataset (once prefixed).
 func batchDeadline() *wire.Problem {
 	const detail = "the batch ran past its deadline before this dataset was fitted; send it again, or in a smaller batch"
 	return wire.NewProblem(wire.KindDeadline, detail, wire.FieldError{Detail: detail})
-}
-
-func runEntry(ctx context.Context, i int, raw json.RawMessage, set study.Settings) wire.BatchResult {
-	prefix := fmt.Sprintf("/datasets/%d", i)
-	res := wire.BatchResult{Name: fmt.Sprintf("dataset %d", i+1)}
-	fail := func(err error) wire.BatchResult {
-		p, ok := err.(*wire.Problem)
-		if !ok {
-			p = wire.NewProblem(wire.KindUnfittable, err.Error())
-		}
-		res.Problem = wire.Prefixed(p, prefix)
-		res.Status = p.Status
-		return res
-	}
-	e, err := wire.DecodeBatchEntry(raw, wire.Limits{Limits: set.Limits})
-	if err != nil {
-		return fail(err)
-	}
-	if e.Name != "" {
-		res.Name = e.Name
-	}
-	src := e.FitRequest.Source()
-	r, err := study.Fit(ctx, e.Points.Data, e.Options(set))
-	if err != nil {
-		if ctx.Err() != nil {
-			return fail(batchDeadline())
-		}
-		return fail(src.Problem(err))
-	}
-	fit := wire.NewFitResponse(r).WithUnits(e.XUnit, e.YUnit)
-	if _, err := wire.Marshal(fit); err != nil { // the finite check of every answer
-		return fail(src.Problem(err))
-	}
-	res.Status, res.Fit = http.StatusOK, fit
-	return res
 }
 
 // handleBatch serves POST /v1/batch. The batch takes one compute slot,
@@ -143,6 +116,10 @@ func (s *Server) handleBatch(c *gin.Context) {
 		return
 	}
 	defer release()
+	if p := batchQuery(c.Request.URL.RawQuery); p != nil {
+		s.problem(c, p)
+		return
+	}
 	req, err := wire.DecodeBatch(body)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
@@ -161,12 +138,28 @@ func (s *Server) handleBatch(c *gin.Context) {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	for _, r := range resp.Results {
-		if r.Fit != nil {
-			s.metrics.points.Add(float64(r.Fit.N))
-		}
-	}
+	s.countPoints(resp)
 	s.writeJSON(c, http.StatusOK, resp)
+}
+
+// batchQuery refuses every query parameter on /v1/batch: its options are
+// in the body (defaults and each dataset's own), and a batch is not saved
+// as studies.
+func batchQuery(raw string) *wire.Problem {
+	q, err := wire.ParseQuery(raw)
+	if err != nil {
+		if p, ok := err.(*wire.Problem); ok {
+			return p
+		}
+		return wire.Invalid("query", err.Error())
+	}
+	for _, k := range slices.Sorted(maps.Keys(q)) {
+		if k == "save" || k == "label" || k == "tags" || k == "tag" {
+			return wire.Invalid(wire.QueryName(k), "a batch is not saved as studies: send each dataset to /v1/fit or /v1/method-comparison with save=true")
+		}
+		return wire.Invalid(wire.QueryName(k), fmt.Sprintf("unknown query parameter %q: a batch carries its options in the body (defaults, and each dataset's own)", wire.Truncate(k)))
+	}
+	return nil
 }
 
 // batchSlots takes one compute slot (waiting up to SlotWait), then up to

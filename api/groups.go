@@ -63,7 +63,18 @@ func serveGroups[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res],
 		s.problem(c, wire.Invalid("query parameter group_by", "group_by splits a CSV file: send the body as text/csv (a JSON request is one study; /v1/batch takes many)"))
 		return
 	}
-	groups, err := decode(body, c.Request.URL.Query())
+	q, err := wire.ParseQuery(c.Request.URL.RawQuery)
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return
+	}
+	for _, k := range []string{"save", "label", "tags", "tag"} {
+		if _, ok := q[k]; ok {
+			s.problem(c, wire.Invalid(wire.QueryName(k), "a file split by group_by is not saved as studies (the store keeps one study per request): send each group's rows on their own with save=true"))
+			return
+		}
+	}
+	groups, err := decode(body, q)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
 		return
@@ -83,6 +94,12 @@ func serveGroups[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res],
 	})
 	cancel()
 	free()
+	s.countPoints(resp)
+	s.writeJSON(c, http.StatusOK, resp)
+}
+
+// countPoints adds the points of every answer of a batch to the metrics.
+func (s *Server) countPoints(resp *wire.BatchResponse) {
 	for _, r := range resp.Results {
 		switch {
 		case r.Fit != nil:
@@ -91,7 +108,6 @@ func serveGroups[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res],
 			s.metrics.points.Add(float64(r.Comparison.N))
 		}
 	}
-	s.writeJSON(c, http.StatusOK, resp)
 }
 
 func putFit(r *wire.BatchResult, a any)     { r.Fit = a.(*wire.FitResponse) }

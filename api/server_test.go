@@ -275,7 +275,7 @@ func TestBatch(t *testing.T) {
 	if r[2].Status != 400 || r[2].Problem.Errors[0].Pointer != "/datasets/2/points/0/sigma_x" {
 		t.Errorf("result 2: %+v", r[2].Problem)
 	}
-	if r[3].Name != "dataset 4" || r[3].Fit.Fits.Deming.Bootstrap == nil {
+	if r[3].Name != "dataset 3" || r[3].Fit.Fits.Deming.Bootstrap == nil {
 		t.Errorf("result 3: %+v", r[3])
 	}
 	// The same dataset alone gives the same fit as inside the batch.

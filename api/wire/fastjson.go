@@ -499,45 +499,6 @@ func (p *pointParser) syntax(want string) error {
 	return Invalid(pointerAt(p.b, int64(p.pos)), fmt.Sprintf("the body is not valid JSON at byte %d: expected %s", p.pos+1, want))
 }
 
-// decodeBatch reads a batch body: {"datasets": [...]}, counting datasets
-// against maxBatch as they are read. Each dataset's bytes are kept as a
-// slice of the body (no copy) and decoded when it is fitted.
-func decodeBatch(body []byte, req *BatchRequest, maxBatch int) error {
-	p := &pointParser{b: body}
-	*req = BatchRequest{}
-	return p.document("", func(key []byte) error {
-		if string(key) != "datasets" {
-			return p.unknownKey("", key, []string{"datasets"})
-		}
-		req.Datasets = nil
-		return p.array("/datasets", maxBatch, KindInvalid, "datasets per batch", func(i int) error {
-			start, err := p.skip(0)
-			if err != nil {
-				return err
-			}
-			req.Datasets = append(req.Datasets, json.RawMessage(p.b[start:p.pos:p.pos]))
-			return nil
-		})
-	}, []string{"datasets"})
-}
-
-var batchEntryKeys = append([]string{"name"}, fitKeys...)
-
-// decodeBatchEntry reads one dataset of a batch; its pointers are relative
-// to the dataset (the batch prefixes /datasets/i).
-func decodeBatchEntry(raw []byte, e *BatchEntry, lim Limits) error {
-	p := &pointParser{b: raw, lim: lim}
-	*e = BatchEntry{}
-	return p.document("", func(key []byte) error {
-		if string(key) == "name" {
-			s, err := p.text("/name", true)
-			e.Name = s
-			return err
-		}
-		return p.fitMember(&e.FitRequest, key, "")
-	}, batchEntryKeys)
-}
-
 // limitsOf returns the limits a body was read under: the server's for a
 // *Body it read, else DefaultLimits.
 func limitsOf(r io.Reader) Limits {

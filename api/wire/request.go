@@ -207,24 +207,3 @@ func (req *FitRequest) Response(r *study.FitResult) *FitResponse {
 	resp.Input = req.Points.input
 	return resp
 }
-
-// DecodeBatch reads a batch body: {"datasets": [...]}, counting the
-// datasets against the limits (the server's, for a *Body it read; else
-// DefaultLimits) as they are read. Each dataset is kept as its bytes, and
-// read by DecodeBatchEntry when it is fitted.
-func DecodeBatch(r io.Reader) (*BatchRequest, error) {
-	lim := limitsOf(r)
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	req := &BatchRequest{}
-	return req, decodeBatch(body, req, lim.MaxBatch)
-}
-
-// DecodeBatchEntry reads one dataset of a batch strictly, counting its
-// lists against lim; its pointers are relative to the dataset.
-func DecodeBatchEntry(raw []byte, lim Limits) (*BatchEntry, error) {
-	e := &BatchEntry{}
-	return e, decodeBatchEntry(raw, e, lim)
-}

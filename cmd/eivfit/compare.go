@@ -90,6 +90,9 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if err := sv.check(setFlags(fs)); err != nil {
 		return usageError(stderr, "compare", err)
 	}
+	if err := csvf.checkGroupFlags(sv.save, o); err != nil {
+		return usageError(stderr, "compare", err)
+	}
 	if sv.save {
 		return sv.run(ctx, saveRun{cmd: "compare", path: "/v1/method-comparison", format: *format, pretty: *pretty,
 			text: textOf(report.WriteCompareText)}, fs, file, stdin, stdout, stderr)
@@ -103,7 +106,7 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
-	run := func(req *wire.CompareRequest) (*wire.CompareResponse, error) {
+	run := func(req, opts *wire.CompareRequest) (*wire.CompareResponse, error) {
 		req.SetOptions(opts)
 		if err := req.TakeUnit("--unit"); err != nil {
 			return nil, err
@@ -115,16 +118,24 @@ func runCompare(ctx context.Context, args []string, stdin io.Reader, stdout, std
 		return wire.NewCompareResponse(req, res), nil
 	}
 	if o.GroupBy != "" {
+		names := make([]string, len(groups))
+		for i, g := range groups {
+			names[i] = g.Name
+		}
+		per, err := csvf.groups(o, wire.DatasetComparison, names)
+		if err != nil {
+			return usageError(stderr, "compare", err)
+		}
 		out := &wire.BatchResponse{}
 		for _, g := range groups {
-			resp, err := run(g.Req)
+			resp, err := run(g.Req, per.Compare(g.Name, opts))
 			out.Results = append(out.Results, groupResult(g.Name, resp, err, nil))
 		}
 		tally(out)
 		return writeGroups(stdout, stderr, name, *format, *pretty, out, func(w io.Writer, r *wire.BatchResult) error { return report.WriteCompareText(w, r.Comparison) })
 	}
 	req := groups[0].Req
-	resp, err := run(req)
+	resp, err := run(req, opts)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}

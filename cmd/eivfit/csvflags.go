@@ -1,10 +1,12 @@
 package main
 
 import (
+	"errors"
 	"flag"
 	"fmt"
 	"io"
 	"net/url"
+	"os"
 	"strings"
 
 	"eivfit/api/wire"
@@ -13,8 +15,9 @@ import (
 // csvFlags are the flags that read instruments' and LIMS's exports, the
 // query parameters of wire.CSVQueryParameters spelt with '-'.
 type csvFlags struct {
-	values   map[string]*string
-	unitsRow *bool
+	values       map[string]*string
+	unitsRow     *bool
+	groupOptions *string
 }
 
 func addCSVFlags(fs *flag.FlagSet) *csvFlags {
@@ -36,7 +39,48 @@ func addCSVFlags(fs *flag.FlagSet) *csvFlags {
 		f.values[name] = fs.String(strings.ReplaceAll(name, "_", "-"), "", usage[name])
 	}
 	f.unitsRow = fs.Bool("units-row", false, "read the row after the header as the columns' units")
+	f.groupOptions = fs.String("group-options", "", `with --group-by: a JSON file of each group's own options, e.g. {"glucose": {"decision_levels": [3.9, 7]}} (the members of a batch's defaults; each replaces its flag for that group)`)
 	return f
+}
+
+// groups reads --group-options for a file split by o.GroupBy into names
+// (nil without the flag) and checks it against the groups and the study
+// (kind: wire.DatasetFit or wire.DatasetComparison).
+func (f *csvFlags) groups(o *wire.CSVOptions, kind string, names []string) (*wire.GroupOptions, error) {
+	if *f.groupOptions == "" {
+		return nil, nil
+	}
+	fail := func(err error) error {
+		if p, ok := err.(*wire.Problem); ok && len(p.Errors) > 0 {
+			return fmt.Errorf("--group-options %s: %s: %s", *f.groupOptions, p.Errors[0].Pointer, p.Errors[0].Detail)
+		}
+		return fmt.Errorf("--group-options %s: %v", *f.groupOptions, err)
+	}
+	file, err := os.Open(*f.groupOptions)
+	if err != nil {
+		return nil, fmt.Errorf("--group-options: %v", err)
+	}
+	defer file.Close()
+	g, err := wire.DecodeGroupOptions(io.LimitReader(file, 1<<20))
+	if err != nil {
+		return nil, fail(err)
+	}
+	if err := g.Check(kind, names); err != nil {
+		return nil, fail(err)
+	}
+	return g, nil
+}
+
+// checkGroupFlags refuses --group-options without --group-by, and --save
+// with --group-by: the store keeps one study per request.
+func (f *csvFlags) checkGroupFlags(save bool, o *wire.CSVOptions) error {
+	if *f.groupOptions != "" && o.GroupBy == "" {
+		return errors.New("--group-options gives options per group: add --group-by naming the column that splits the file")
+	}
+	if save && o.GroupBy != "" {
+		return errors.New("--save with --group-by: a file split into groups is not saved as studies (the store keeps one study per request); save each group's rows on their own")
+	}
+	return nil
 }
 
 // options reads the flags as the service reads the query parameters.

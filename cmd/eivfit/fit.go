@@ -79,6 +79,9 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 	if err := sv.check(setFlags(fs)); err != nil {
 		return usageError(stderr, "fit", err)
 	}
+	if err := csvf.checkGroupFlags(sv.save, o); err != nil {
+		return usageError(stderr, "fit", err)
+	}
 	if sv.save {
 		return sv.run(ctx, saveRun{cmd: "fit", path: "/v1/fit", format: *format, pretty: *pretty, text: textOf(report.WriteText)},
 			fs, file, stdin, stdout, stderr)
@@ -93,7 +96,7 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 		return reportProblem(stderr, name, err)
 	}
 	req.XUnit, req.YUnit = *xUnit, *yUnit
-	fit := func(g wire.CSVGroup) (*wire.FitRequest, *wire.FitResponse, error) {
+	fit := func(g wire.CSVGroup, req *wire.FitRequest) (*wire.FitRequest, *wire.FitResponse, error) {
 		r := *req
 		r.Points = *g.Data
 		r.TakeUnits()
@@ -105,15 +108,23 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 		return &r, r.Response(res), nil
 	}
 	if o.GroupBy != "" {
+		names := make([]string, len(groups))
+		for i, g := range groups {
+			names[i] = g.Name
+		}
+		per, err := csvf.groups(o, wire.DatasetFit, names)
+		if err != nil {
+			return usageError(stderr, "fit", err)
+		}
 		out := &wire.BatchResponse{}
 		for _, g := range groups {
-			_, resp, err := fit(g)
+			_, resp, err := fit(g, per.Fit(g.Name, req))
 			out.Results = append(out.Results, groupResult(g.Name, resp, err, nil))
 		}
 		tally(out)
 		return writeGroups(stdout, stderr, name, *format, *pretty, out, func(w io.Writer, r *wire.BatchResult) error { return report.WriteText(w, r.Fit) })
 	}
-	r, resp, err := fit(groups[0])
+	r, resp, err := fit(groups[0], req)
 	if err != nil {
 		return reportProblem(stderr, name, err)
 	}
