@@ -112,6 +112,13 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		s.problem(c, wire.Invalid("query", "a JSON request carries its options in the body, not the query string (save, label and tag excepted)"))
 		return
 	}
+	html := page != nil && wantsHTML(c)
+	var input report.Input
+	if html && rec == nil {
+		// The report needs only the body's hash and counts: take them now
+		// so the body is not held while the report is drawn.
+		input, raw = report.InputOf(raw, kind == "csv"), nil
+	}
 	a, err := analyse(s, c, e, kind, in, q)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
@@ -121,11 +128,12 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		saveStudy(s, c, e.record, a, rec)
 		return
 	}
-	if page != nil && wantsHTML(c) {
+	if html {
 		if rec != nil {
-			raw = rec.raw // the body as received
+			input = report.InputOf(rec.raw, kind == "csv") // the body as received
 		}
-		pg, err := drawPage(s, c, a, report.InputOf(raw, kind == "csv"), page)
+		a.json = nil // checked finite by the encoding; the page does not need it
+		pg, err := drawPage(s, c, a, input, page)
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))
 			return

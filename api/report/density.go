@@ -56,16 +56,18 @@ type density struct {
 	n      int
 }
 
-// binned counts the points (already in unit coordinates) per cell.
-func binned(ctx context.Context, u, v []float64) (*density, error) {
-	d := &density{counts: make([]int32, DensityCols*DensityRows), n: len(u)}
-	for i := range u {
+// binned counts n points per cell; at(i) gives point i in unit
+// coordinates, so the points are binned without a copy of them.
+func binned(ctx context.Context, n int, at func(i int) (u, v float64)) (*density, error) {
+	d := &density{counts: make([]int32, DensityCols*DensityRows), n: n}
+	for i := range n {
 		if i%checkEvery == 0 {
 			if err := ctx.Err(); err != nil {
 				return nil, err
 			}
 		}
-		c, r := cell(u[i], DensityCols), cell(v[i], DensityRows)
+		u, v := at(i)
+		c, r := cell(u, DensityCols), cell(v, DensityRows)
 		k := r*DensityCols + c
 		d.counts[k]++
 		d.max = max(d.max, d.counts[k])

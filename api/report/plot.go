@@ -195,18 +195,18 @@ func (f *figure) hline(v float64, xlo, xhi float64, c color.Color, dash []vg.Len
 // points draws the points one by one up to MaxMarkers, else as a binned
 // density; the legend entry names which.
 func (f *figure) points(ctx context.Context, xs, ys []float64, legend string) (*density, error) {
-	u, v := make([]float64, len(xs)), make([]float64, len(xs))
-	for i := range xs {
-		u[i], v[i] = f.x.u(xs[i]), f.y.u(ys[i])
-	}
 	if Binned(len(xs)) {
-		d, err := binned(ctx, u, v)
+		d, err := binned(ctx, len(xs), func(i int) (float64, float64) { return f.x.u(xs[i]), f.y.u(ys[i]) })
 		if err != nil {
 			return nil, err
 		}
 		f.add(areas, d)
 		f.legendAdd(d.legend(), d)
 		return d, nil
+	}
+	u, v := make([]float64, len(xs)), make([]float64, len(xs))
+	for i := range xs {
+		u[i], v[i] = f.x.u(xs[i]), f.y.u(ys[i])
 	}
 	s, err := plotter.NewScatter(unitXYs(u, v))
 	if err != nil {
