@@ -64,10 +64,10 @@ func (p *serveProcess) postAccept(path, ctype, accept string, body []byte) (int,
 const (
 	memMultiple = 8
 	// reportMultiple bounds the HTML report of the largest CSV: it runs
-	// every check on the residuals and draws all six plots, 19 × the body
+	// every check on the residuals and draws all six plots, 14 × the body
 	// measured (a single plot is within memMultiple); bringing it to
 	// memMultiple is open work (README, limits).
-	reportMultiple = 24
+	reportMultiple = 17
 	memSlack       = 48 << 20 // the runtime, the compute's own buffers, page granularity
 )
 
