@@ -53,15 +53,8 @@ var (
 // their members, covariance rows and columns, forward evaluations) is
 // counted against its limit as it is read.
 func DecodeCalibrationJSON(r io.Reader) (*CalibrationRequest, error) {
-	lim := limitsOf(r)
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	p := &pointParser{b: body, lim: lim}
 	req := &CalibrationRequest{}
-	err = p.document("", func(key []byte) error { return p.calMember(req, key) }, calKeys)
-	if err != nil {
+	if err := readDocument(r, calKeys, func(p *pointParser, key []byte) error { return p.calMember(req, key) }); err != nil {
 		return nil, err
 	}
 	return req, nil

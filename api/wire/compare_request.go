@@ -169,15 +169,8 @@ var sampleKeys = []string{"id", "x", "y", "sx", "sy", "order", "runs", "x_runs",
 // list (samples, replicates, decision levels, excluded ids) is counted
 // against its limit as it is read.
 func DecodeCompareJSON(r io.Reader) (*CompareRequest, error) {
-	lim := limitsOf(r)
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	p := &pointParser{b: body, lim: lim}
 	req := &CompareRequest{}
-	err = p.document("", func(key []byte) error { return p.compareMember(req, key) }, compareKeys)
-	if err != nil {
+	if err := readDocument(r, compareKeys, func(p *pointParser, key []byte) error { return p.compareMember(req, key) }); err != nil {
 		return nil, err
 	}
 	return req, nil

@@ -41,21 +41,26 @@ var fitKeys = []string{"points", "methods", "lambda", "confidence", "bootstrap",
 // against the limits as it is read (the server's, for a *Body it read;
 // else DefaultLimits).
 func DecodeFitJSON(r io.Reader) (*FitRequest, error) {
-	lim := limitsOf(r)
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	p := &pointParser{b: body, lim: lim}
 	req := &FitRequest{}
-	err = p.document("", func(key []byte) error { return p.fitMember(req, key, "") }, fitKeys)
-	if err != nil {
+	if err := readDocument(r, fitKeys, func(p *pointParser, key []byte) error { return p.fitMember(req, key, "") }); err != nil {
 		return nil, err
 	}
 	return req, nil
 }
 
 // document reads a whole body holding one object.
+// readDocument reads r's body (within r's limits) as one JSON object,
+// strictly: member reads the value of each key with the parser p, and
+// known lists the keys an unknown or case-variant one is held against.
+func readDocument(r io.Reader, known []string, member func(p *pointParser, key []byte) error) error {
+	body, err := readBody(r)
+	if err != nil {
+		return err
+	}
+	p := &pointParser{b: body, lim: limitsOf(r)}
+	return p.document("", func(key []byte) error { return member(p, key) }, known)
+}
+
 func (p *pointParser) document(base string, member func(key []byte) error, known []string) error {
 	p.ws()
 	if p.pos >= len(p.b) {

@@ -84,13 +84,8 @@ var (
 // differences, decision levels) is counted against the planner's limit as
 // it is read.
 func DecodePlanJSON(r io.Reader) (*PlanRequest, error) {
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	p := &pointParser{b: body, lim: limitsOf(r)}
 	req := &PlanRequest{}
-	err = p.document("", func(key []byte) error {
+	err := readDocument(r, planKeys, func(p *pointParser, key []byte) error {
 		var err error
 		switch k := string(key); k {
 		case "low":
@@ -181,7 +176,7 @@ func DecodePlanJSON(r io.Reader) (*PlanRequest, error) {
 			return p.unknownKey("", key, planKeys)
 		}
 		return err
-	}, planKeys)
+	})
 	if err != nil {
 		return nil, err
 	}

@@ -298,13 +298,8 @@ func (p *pointParser) reason(ptr string) (string, error) {
 // DecodeRevise reads a ReviseRequest strictly, in one pass (the excluded
 // points counted against the limit as they are read), and checks it.
 func DecodeRevise(r io.Reader) (*ReviseRequest, error) {
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	p := &pointParser{b: body, lim: limitsOf(r)}
 	var req ReviseRequest
-	err = p.document("", func(key []byte) error {
+	err := readDocument(r, reviseKeys, func(p *pointParser, key []byte) error {
 		var err error
 		switch string(key) {
 		case "reason":
@@ -357,7 +352,7 @@ func DecodeRevise(r io.Reader) (*ReviseRequest, error) {
 			return p.unknownKey("", key, reviseKeys)
 		}
 		return err
-	}, reviseKeys)
+	})
 	if err != nil {
 		return nil, err
 	}
@@ -392,13 +387,8 @@ type SignRequest struct {
 
 // DecodeSign reads a SignRequest strictly and checks it.
 func DecodeSign(r io.Reader) (*SignRequest, error) {
-	body, err := readBody(r)
-	if err != nil {
-		return nil, err
-	}
-	p := &pointParser{b: body, lim: limitsOf(r)}
 	var req SignRequest
-	err = p.document("", func(key []byte) error {
+	err := readDocument(r, signKeys, func(p *pointParser, key []byte) error {
 		var err error
 		switch string(key) {
 		case "meaning":
@@ -409,7 +399,7 @@ func DecodeSign(r io.Reader) (*SignRequest, error) {
 			return p.unknownKey("", key, signKeys)
 		}
 		return err
-	}, signKeys)
+	})
 	if err != nil {
 		return nil, err
 	}
