@@ -331,7 +331,7 @@ func (s *Server) handleStudy(c *gin.Context) {
 		return
 	}
 	if v := q.Get("revision"); v != "" {
-		k, err := strconv.Atoi(v)
+		k, err := wire.QueryInt("query parameter revision", v)
 		if err != nil || k < 0 || k > n {
 			s.problem(c, wire.Invalid("query parameter revision", fmt.Sprintf("revision must be a number from 0 to %d", n)))
 			return
@@ -550,7 +550,7 @@ func studyFilter(q url.Values) (study.Filter, *wire.Problem) {
 		*p.t = t
 	}
 	if v := q.Get("limit"); v != "" {
-		n, err := strconv.Atoi(v)
+		n, err := wire.QueryInt("query parameter limit", v)
 		if err != nil || n < 1 || n > study.MaxLimit {
 			return f, wire.Invalid("query parameter limit", fmt.Sprintf("limit is a number from 1 to %d", study.MaxLimit))
 		}

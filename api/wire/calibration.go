@@ -617,9 +617,9 @@ func CalibrationOptionsFromQuery(q url.Values, req *CalibrationRequest) error {
 	if q.Get("trials") != "" || q.Get("seed") != "" {
 		req.MonteCarlo = &study.CalMonteCarlo{}
 		if s := q.Get("trials"); s != "" {
-			n, err := strconv.Atoi(s)
+			n, err := QueryInt("query parameter trials", s)
 			if err != nil {
-				return Invalid("query parameter trials", fmt.Sprintf("%q is not an integer", Truncate(s)))
+				return err
 			}
 			req.MonteCarlo.Trials = n
 		}

@@ -6,6 +6,7 @@ import (
 	"regexp"
 	"slices"
 	"sort"
+	"strconv"
 	"strings"
 )
 
@@ -130,4 +131,15 @@ func queryList(q url.Values, name string) []string {
 		out = append(out, SplitList(v)...)
 	}
 	return out
+}
+
+// QueryInt reads an integer option value written as plain decimal digits,
+// optionally after a '-': the same rule as numbers everywhere else in a
+// request, so "+5", " 5", "5.0", "0x5" and "1_000" are refused (strconv.Atoi
+// would take "+5"). what names the option in the problem.
+func QueryInt(what, s string) (int, error) {
+	if !integer.MatchString(s) || len(strings.TrimPrefix(s, "-")) > 18 {
+		return 0, Invalid(what, fmt.Sprintf("%q is not an integer (plain digits, at most 18)", Truncate(s)))
+	}
+	return strconv.Atoi(s) // 18 digits cannot overflow
 }

@@ -86,3 +86,34 @@ func TestSplitOptionDecimalComma(t *testing.T) {
 		})
 	}
 }
+
+// Integer options take plain digits only, like every number in a request
+// (strconv.Atoi alone took "+5"; common practice for strict APIs).
+func TestQueryInt(t *testing.T) {
+	for _, c := range []struct {
+		in   string
+		want int
+		ok   bool
+	}{
+		{"5", 5, true},
+		{"-3", -3, true},
+		{"0", 0, true},
+		{"999999999999999999", 999999999999999999, true},
+		{"+5", 0, false},
+		{" 5", 0, false},
+		{"5.0", 0, false},
+		{"0x5", 0, false},
+		{"1_000", 0, false},
+		{"", 0, false},
+		{"-", 0, false},
+		{"9999999999999999999", 0, false},
+	} {
+		got, err := QueryInt("query parameter resamples", c.in)
+		if (err == nil) != c.ok || got != c.want {
+			t.Errorf("%q: %d, %v; want %d, ok %v", c.in, got, err, c.want, c.ok)
+		}
+		if err != nil && !strings.Contains(err.Error(), "resamples") {
+			t.Errorf("%q: the problem does not name the option: %v", c.in, err)
+		}
+	}
+}

@@ -75,9 +75,9 @@ func FitRequestFromQuery(q url.Values, d *Dataset) (*FitRequest, error) {
 	if s := q.Get("resamples"); s != "" || q.Get("seed") != "" || q.Get("scheme") != "" {
 		req.Bootstrap = &BootstrapOptions{Scheme: q.Get("scheme")}
 		if s != "" {
-			n, err := strconv.Atoi(s)
+			n, err := QueryInt("query parameter resamples", s)
 			if err != nil {
-				return nil, Invalid("query parameter resamples", fmt.Sprintf("%q is not an integer", Truncate(s)))
+				return nil, err
 			}
 			req.Bootstrap.Resamples = n
 		}
