@@ -2,12 +2,17 @@ package wire
 
 import (
 	"bytes"
+	"context"
 	"encoding/json"
 	"errors"
 	"math"
 	"math/rand/v2"
 	"reflect"
 	"testing"
+	"time"
+
+	"eivfit/api/wire/wiretest"
+	"eivfit/eiv/study"
 )
 
 // fill sets v (settable) to random contents: pointers and slices nil,
@@ -160,21 +165,44 @@ func TestFitEncoderRefusesNonFinite(t *testing.T) {
 	}
 }
 
-// BenchmarkEncodeFit is the encoding of a typical small fit's answer.
+// BenchmarkEncodeFit encodes the answer of the small fit (n = 40; ols,
+// deming, york) by the hand-written encoder and by encoding/json.
 func BenchmarkEncodeFit(b *testing.B) {
-	r := rand.New(rand.NewPCG(3, 3))
-	v := new(FitResponse)
-	for v.Fits.York == nil || v.Fits.OLS == nil {
-		*v = FitResponse{}
-		fill(r, reflect.ValueOf(v).Elem(), 0)
+	req, err := DecodeFitJSON(bytes.NewReader(wiretest.SmallFit()))
+	if err != nil {
+		b.Fatal(err)
 	}
-	v.Input = nil
-	b.ReportAllocs()
-	for b.Loop() {
-		e, err := Encode(v)
-		if err != nil {
-			b.Fatal(err)
+	res, err := study.Fit(context.Background(), req.Points.Data, req.Options(study.Settings{Limits: study.DefaultLimits}))
+	if err != nil {
+		b.Fatal(err)
+	}
+	v := req.Response(res)
+	b.Run("direct", func(b *testing.B) {
+		b.ReportAllocs()
+		defer reportCPU(b, wiretest.CPUTime())
+		for b.Loop() {
+			e, err := Encode(v)
+			if err != nil {
+				b.Fatal(err)
+			}
+			e.Free()
 		}
-		e.Free()
-	}
+	})
+	b.Run("encoding-json", func(b *testing.B) {
+		b.ReportAllocs()
+		defer reportCPU(b, wiretest.CPUTime())
+		var buf bytes.Buffer
+		for b.Loop() {
+			buf.Reset()
+			if err := encodeReflect(&buf, v); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+}
+
+// reportCPU reports the process's CPU time per operation since start
+// (wiretest.CPUTime).
+func reportCPU(b *testing.B, start time.Duration) {
+	b.ReportMetric(float64(wiretest.CPUTime()-start)/float64(b.N), "cpu-ns/op")
 }
