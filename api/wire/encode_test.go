@@ -137,6 +137,28 @@ func TestFitEncoderMatchesEncodingJSON(t *testing.T) {
 	}
 }
 
+// FuzzFitEncoder: on answers drawn from the fuzzed seed, with the fuzzed
+// string as a warning's message and a unit (any bytes, invalid UTF-8
+// included), the hand-written encoder writes what encoding/json writes.
+func FuzzFitEncoder(f *testing.F) {
+	f.Add(uint64(1), "slope")
+	f.Add(uint64(2), "\x00\u2028\xff\"<>&\\")
+	f.Fuzz(func(t *testing.T, seed uint64, text string) {
+		v := new(FitResponse)
+		fill(rand.New(rand.NewPCG(seed, 2)), reflect.ValueOf(v).Elem(), 0)
+		v.XUnit = text
+		v.Warnings = append(v.Warnings, Warning{Code: "fuzz", Message: text})
+		want, err := referenceJSON(v)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got, err := Marshal(v)
+		if err != nil || !bytes.Equal(got, want) {
+			t.Fatalf("got %q, %v\nwant %q", got, err, want)
+		}
+	})
+}
+
 // TestFitEncoderRefusesNonFinite: a NaN or an infinity anywhere in a fit's
 // answer is ErrNotFinite, as encoding/json refuses it.
 func TestFitEncoderRefusesNonFinite(t *testing.T) {
