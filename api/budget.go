@@ -38,6 +38,18 @@ func (b *budget) acquire(ctx context.Context, n int64) bool {
 	}
 }
 
+// tryAcquire takes n units if they are free now, without waiting.
+func (b *budget) tryAcquire(n int64) bool {
+	n = min(n, b.cap)
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	if n > b.free {
+		return false
+	}
+	b.free -= n
+	return true
+}
+
 func (b *budget) release(n int64) {
 	n = min(n, b.cap)
 	b.mu.Lock()

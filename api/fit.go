@@ -44,7 +44,7 @@ func (s *Server) fitPage(ctx context.Context, a *fitAnswer, in report.Input) (*r
 // With group_by, a CSV is split into one fit per group, answered as a
 // batch (groups.go).
 func (s *Server) handleFit(c *gin.Context) {
-	if c.Query("group_by") != "" {
+	if c.Request.URL.RawQuery != "" && c.Query("group_by") != "" {
 		serveGroups(s, c, fitEndpoint, fitGroupsFromBody, putFit)
 		return
 	}

@@ -39,12 +39,14 @@ type endpoint[Req, Res any] struct {
 }
 
 // answer is a computed request: the study's result, its wire form and the
-// encoded JSON.
+// encoded JSON (in enc's pooled buffer: free it once json is written, or
+// keep json and let the collector take it).
 type answer[Req, Res any] struct {
 	req  Req
 	res  Res
 	resp any
 	json []byte
+	enc  *wire.Encoded
 }
 
 // analyse is the one flow from a body to its answer: decode, compute (the
@@ -77,9 +79,10 @@ func solve[Req, Res any](ctx context.Context, s *Server, e *endpoint[Req, Res], 
 	}
 	s.metrics.points.Add(float64(e.points(res)))
 	a := &answer[Req, Res]{req: req, res: res, resp: e.answer(req, res)}
-	if a.json, err = wire.Marshal(a.resp); err != nil {
+	if a.enc, err = wire.Encode(a.resp); err != nil {
 		return nil, src.Problem(err)
 	}
+	a.json = a.enc.Bytes()
 	return a, nil
 }
 
@@ -133,6 +136,7 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 			input = report.InputOf(rec.raw, kind == "csv") // the body as received
 		}
 		a.json = nil // checked finite by the encoding; the page does not need it
+		a.enc.Free()
 		pg, err := drawPage(s, c, a, input, page)
 		if err != nil {
 			s.problem(c, s.problemFor(c, err))
@@ -142,6 +146,7 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 		return
 	}
 	c.Data(http.StatusOK, "application/json", a.json)
+	a.enc.Free() // written: the connection's buffer holds a copy
 }
 
 // open is every body-taking handler's opening: the media type ("json",
@@ -249,12 +254,13 @@ func inSlot[T any](s *Server, c *gin.Context, compute func(context.Context) (T, 
 }
 
 func (s *Server) writeJSON(c *gin.Context, status int, v any) {
-	b, err := wire.Marshal(v)
+	e, err := wire.Encode(v)
 	if err != nil {
 		s.problem(c, s.problemFor(c, err))
 		return
 	}
-	c.Data(status, "application/json", b)
+	c.Data(status, "application/json", e.Bytes())
+	e.Free()
 }
 
 // wantsHTML says whether the client asked for the HTML report.
@@ -278,6 +284,11 @@ func (s *Server) writeHTML(c *gin.Context, status int, write func(io.Writer) err
 // as it arrives: a request holds at most one chunk more than it has
 // received, so that idle or slow uploads hold next to nothing.
 const bodyChunk = 256 << 10
+
+// smallBody is the first buffer of a body sent without a declared length
+// (chunked): most such bodies are small requests, and each doubling
+// copies at most what has arrived.
+const smallBody = 4 << 10
 
 // body reads the whole request body into memory within the size limit,
 // the intake budget and the body timeouts, and returns it; the caller must
@@ -304,10 +315,12 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 		if upTo <= held {
 			return true
 		}
-		ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
-		defer cancel()
-		if !s.intake.acquire(ctx, upTo-held) {
-			return false
+		if !s.intake.tryAcquire(upTo - held) {
+			ctx, cancel := context.WithTimeout(c.Request.Context(), s.cfg.SlotWait)
+			defer cancel()
+			if !s.intake.acquire(ctx, upTo-held) {
+				return false
+			}
 		}
 		s.metrics.intakeBytes.Add(float64(upTo - held))
 		held = upTo
@@ -320,9 +333,13 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 	rc := http.NewResponseController(c.Writer)
 	start := time.Now()
 	whole := start.Add(s.cfg.ReadTimeout)
+	// A declared length is read into one buffer with a byte to spare, so
+	// that the EOF after it is seen without growing (pages become resident
+	// only as bytes arrive); an undeclared one starts small and doubles,
+	// within the limit plus one byte to detect an overrun.
 	var buf []byte
 	if n >= 0 {
-		buf = make([]byte, 0, n) // pages become resident only as bytes arrive
+		buf = make([]byte, 0, n+1)
 	}
 	r := c.Request.Body
 	for {
@@ -330,15 +347,17 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 			if int64(len(buf)) > limit {
 				return tooLarge()
 			}
-			// A declared length is read to its end (then EOF); an
-			// undeclared one grows, within the limit plus one byte to
-			// detect an overrun.
-			grow := max(int64(cap(buf)), bodyChunk)
+			grow := max(int64(cap(buf)), smallBody)
 			buf = slices.Grow(buf, int(min(grow, limit+1-int64(len(buf)))))
 		}
-		// Charge the next chunk before its pages are touched.
+		// Charge the next chunk before its pages are touched (not the
+		// spare byte after a declared length, which stays untouched).
 		end := min(int64(len(buf))+bodyChunk, int64(cap(buf)))
-		if !charge(end) {
+		charged := end
+		if n >= 0 {
+			charged = min(end, n)
+		}
+		if !charge(charged) {
 			release()
 			p := wire.NewProblem(wire.KindBodyBudget, fmt.Sprintf("the server is holding as many request-body bytes as its memory budget (%d bytes) allows, and none were freed within %v; retry later",
 				s.cfg.MaxInFlightBytes, s.cfg.SlotWait))
@@ -389,6 +408,9 @@ func (s *Server) bodyReadProblem(c *gin.Context, err error, took time.Duration) 
 // writing a 415.
 func (s *Server) mediaType(c *gin.Context, allowCSV bool) string {
 	ct := c.GetHeader("Content-Type")
+	if ct == "application/json" {
+		return "json" // the common case, without parsing
+	}
 	mt, _, err := mime.ParseMediaType(ct)
 	if ct == "" {
 		err = errors.New("missing")

@@ -1,6 +1,11 @@
 package api
 
 import (
+	"maps"
+	"strconv"
+	"sync"
+	"sync/atomic"
+
 	"github.com/prometheus/client_golang/prometheus"
 	"github.com/prometheus/client_golang/prometheus/collectors"
 )
@@ -23,6 +28,52 @@ type metrics struct {
 	// The study store: operation latency and errors.
 	storeDuration *prometheus.HistogramVec
 	storeErrors   *prometheus.CounterVec
+
+	// The children of the vectors a request touches, by label values, so
+	// that a request does not hash its labels into the vector each time.
+	requestsOf labelCache[requestLabels, prometheus.Counter]
+	durationOf labelCache[string, prometheus.Observer]
+	fitOf      labelCache[string, prometheus.Observer]
+	problemsOf labelCache[string, prometheus.Counter]
+}
+
+// requestLabels are the labels of eivfit_http_requests_total.
+type requestLabels struct {
+	route, method string
+	code          int
+}
+
+// labelCache maps label values to a vector's child: reads are lock-free
+// on a map that is copied when a new child is added. It holds at most
+// maxCachedLabels children; values beyond (a client's invented methods,
+// say) go to the vector directly, as before.
+type labelCache[K comparable, M any] struct {
+	m     atomic.Pointer[map[K]M]
+	mu    sync.Mutex
+	child func(K) M
+}
+
+const maxCachedLabels = 512
+
+func (c *labelCache[K, M]) get(k K) M {
+	if m := c.m.Load(); m != nil {
+		if v, ok := (*m)[k]; ok {
+			return v
+		}
+	}
+	v := c.child(k)
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	old := c.m.Load()
+	if old != nil && len(*old) >= maxCachedLabels {
+		return v
+	}
+	n := map[K]M{k: v}
+	if old != nil {
+		maps.Copy(n, *old)
+	}
+	c.m.Store(&n)
+	return v
 }
 
 func newMetrics(slots int) *metrics {
@@ -90,6 +141,12 @@ func newMetrics(slots int) *metrics {
 		}, []string{"op", "class"}),
 	}
 	m.slotsTotal.Set(float64(slots))
+	m.requestsOf.child = func(l requestLabels) prometheus.Counter {
+		return m.requests.WithLabelValues(l.route, l.method, strconv.Itoa(l.code))
+	}
+	m.durationOf.child = func(route string) prometheus.Observer { return m.duration.WithLabelValues(route) }
+	m.fitOf.child = func(method string) prometheus.Observer { return m.fitDuration.WithLabelValues(method) }
+	m.problemsOf.child = func(typ string) prometheus.Counter { return m.problems.WithLabelValues(typ) }
 	m.reg.MustRegister(m.requests, m.duration, m.problems, m.fitDuration, m.points, m.resamples,
 		m.slotsInUse, m.slotsTotal, m.slotRejected, m.slotWait, m.inFlight, m.intakeBytes, m.storeDuration, m.storeErrors,
 		collectors.NewGoCollector(), collectors.NewProcessCollector(collectors.ProcessCollectorOpts{}))

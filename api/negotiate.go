@@ -98,6 +98,9 @@ func (m mediaRange) matches(offer string) bool {
 // empty header accepts the first offer; ok is false when every offer has
 // weight 0 (or the header is malformed and nothing can be trusted of it).
 func negotiate(accept string, offers ...string) (string, bool) {
+	if accept == "" || accept == "*/*" {
+		return offers[0], true // the common cases, without parsing
+	}
 	ranges, valid := parseAccept(accept)
 	if !valid {
 		return "", false

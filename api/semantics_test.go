@@ -29,6 +29,7 @@ func TestNegotiate(t *testing.T) {
 		ok           bool
 	}{
 		{"no header", "", jh, "application/json", true},
+		{"anything", "*/*", jh, "application/json", true},
 		{"json", "application/json", jh, "application/json", true},
 		{"html", "text/html", jh, "text/html", true},
 		{"json q=0 alone", "application/json;q=0", jh, "", false},

@@ -292,8 +292,8 @@ func (s *Server) observe(c *gin.Context) {
 	}
 	status := c.Writer.Status()
 	d := time.Since(start)
-	s.metrics.requests.WithLabelValues(route, c.Request.Method, strconv.Itoa(status)).Inc()
-	s.metrics.duration.WithLabelValues(route).Observe(d.Seconds())
+	s.metrics.requestsOf.get(requestLabels{route, c.Request.Method, status}).Inc()
+	s.metrics.durationOf.get(route).Observe(d.Seconds())
 	level := slog.LevelInfo
 	if status >= 500 {
 		level = slog.LevelWarn
@@ -325,7 +325,7 @@ func (s *Server) recovered(c *gin.Context, v any) {
 
 // problem writes an RFC 9457 answer and counts it.
 func (s *Server) problem(c *gin.Context, p *wire.Problem) {
-	s.metrics.problems.WithLabelValues(strings.TrimPrefix(p.Type, wire.ProblemTypeBase)).Inc()
+	s.metrics.problemsOf.get(strings.TrimPrefix(p.Type, wire.ProblemTypeBase)).Inc()
 	if p.RetryAfter > 0 {
 		c.Header("Retry-After", strconv.Itoa(p.RetryAfter))
 	}
@@ -341,26 +341,38 @@ func (s *Server) problem(c *gin.Context, p *wire.Problem) {
 // acquire takes a compute slot, waiting up to SlotWait.
 func (s *Server) acquire(ctx context.Context) (release func(), p *wire.Problem) {
 	start := time.Now()
-	t := time.NewTimer(s.cfg.SlotWait)
-	defer t.Stop()
 	select {
-	case s.slots <- struct{}{}:
-	case <-t.C:
-		s.metrics.slotRejected.Inc()
-		p := wire.NewProblem(wire.KindBusy, fmt.Sprintf("every compute slot (%d) stayed busy for %v; retry later", cap(s.slots), s.cfg.SlotWait))
-		p.RetryAfter = 1
-		return nil, p
-	case <-ctx.Done():
-		return nil, wire.NewProblem(wire.KindDeadline, "the request was cancelled while waiting for a compute slot")
+	case s.slots <- struct{}{}: // a free slot: no timer to arm
+	default:
+		if p := s.awaitSlot(ctx); p != nil {
+			return nil, p
+		}
 	}
 	s.metrics.slotWait.Observe(time.Since(start).Seconds())
 	s.metrics.slotsInUse.Inc()
 	return func() { <-s.slots; s.metrics.slotsInUse.Dec() }, nil
 }
 
+// awaitSlot waits up to SlotWait for a compute slot and takes it.
+func (s *Server) awaitSlot(ctx context.Context) *wire.Problem {
+	t := time.NewTimer(s.cfg.SlotWait)
+	defer t.Stop()
+	select {
+	case s.slots <- struct{}{}:
+		return nil
+	case <-t.C:
+		s.metrics.slotRejected.Inc()
+		p := wire.NewProblem(wire.KindBusy, fmt.Sprintf("every compute slot (%d) stayed busy for %v; retry later", cap(s.slots), s.cfg.SlotWait))
+		p.RetryAfter = 1
+		return p
+	case <-ctx.Done():
+		return wire.NewProblem(wire.KindDeadline, "the request was cancelled while waiting for a compute slot")
+	}
+}
+
 func (s *Server) settings(workers int) study.Settings {
 	return study.Settings{Limits: s.cfg.Limits, Workers: workers, Observe: func(method string, d time.Duration, resamples int) {
-		s.metrics.fitDuration.WithLabelValues(method).Observe(d.Seconds())
+		s.metrics.fitOf.get(method).Observe(d.Seconds())
 		s.metrics.resamples.Add(float64(resamples))
 	}}
 }
