@@ -65,11 +65,7 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		b, err := RunOrderPlot(ctx, d.Order, d.Residual, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "qq":
-		th, sm := make([]float64, len(d.QQ)), make([]float64, len(d.QQ))
-		for i, q := range d.QQ {
-			th[i], sm[i] = q.Theoretical, q.Sample
-		}
-		b, err := QQPlot(ctx, th, sm)
+		b, err := qqPlot(ctx, pts{n: len(d.QQ), at: func(i int) (float64, float64) { return d.QQ[i].Theoretical, d.QQ[i].Sample }})
 		return b, true, err
 	case "difference":
 		if !ps.axes.SameScale() {
@@ -79,15 +75,13 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		if err != nil {
 			return nil, false, err
 		}
-		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
-		for i := range ps.x {
-			mean[i], diff[i] = ps.x[i]/2+ps.y[i]/2, ps.y[i]-ps.x[i] // never overflows
+		x, y := ps.x, ps.y
+		md := pts{n: len(x), at: func(i int) (float64, float64) { return x[i]/2 + y[i]/2, y[i] - x[i] }} // never overflows
+		f, ok := differenceForm(a)
+		if !ok {
+			f = DifferenceForm{Form: "constant"} // the plain plot, as DifferencePlot
 		}
-		if f, ok := differenceForm(a); ok {
-			b, err := DifferencePlotForm(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes, ps.flagged(kind)...)
-			return b, true, err
-		}
-		b, err := DifferencePlot(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes, ps.flagged(kind)...)
+		b, err := differencePlot(ctx, md, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes, ps.flagged(kind)...)
 		return b, true, err
 	case "bootstrap":
 		bs := ps.fit.Bootstrap
