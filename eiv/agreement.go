@@ -21,7 +21,8 @@ type Agreement struct {
 	// interval of Bland & Altman (1986): SE ≈ √(3s²/n), t on n−1 df.
 	Lower, Upper Estimate
 	// Proportional is the OLS regression of d on the mean (x+y)/2 (Bland
-	// & Altman 1999, §3.2): a slope different from 0 shows a proportional bias.
+	// & Altman 1999, §3.2), without its jackknife: a slope different from
+	// 0 shows a proportional bias.
 	Proportional *Fit
 	// ProportionalP is the two-sided p-value of that slope.
 	ProportionalP float64
@@ -91,7 +92,9 @@ func agreementOf(d, m []float64, multiplier, conf float64) (*Agreement, error) {
 		Lower:          Estimate{Value: lo, SE: seLim, CI: symmetric(lo, t*seLim, conf, "t, SE √(3s²/n)")},
 		Upper:          Estimate{Value: hi, SE: seLim, CI: symmetric(hi, t*seLim, conf, "t, SE √(3s²/n)")},
 	}
-	if f, err := OLS(m, d, &Options{Confidence: conf}); err == nil {
+	// The regression's own SEs give its p-value; its jackknife (three
+	// arrays of n) is not reported.
+	if f, err := ols(m, d, &Options{Confidence: conf}, false); err == nil {
 		a.Proportional = f
 		tt := 0.0
 		if f.Slope.SE > 0 {

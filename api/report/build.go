@@ -62,10 +62,14 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		b, err := ResidualPlot(ctx, d.Level, d.Residual, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "run-order":
-		b, err := RunOrderPlot(ctx, d.Order, d.Residual, ps.axes, d.Scale, ps.flagged(kind)...)
+		p := xys(d.Order, d.Residual)
+		if d.Order == nil { // the input order
+			p = pts{n: len(d.Residual), at: func(i int) (float64, float64) { return float64(i + 1), d.Residual[i] }}
+		}
+		b, err := runOrderPlot(ctx, p, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "qq":
-		b, err := qqPlot(ctx, pts{n: len(d.QQ), at: func(i int) (float64, float64) { return d.QQ[i].Theoretical, d.QQ[i].Sample }})
+		b, err := qqPlot(ctx, pts{n: d.QQLen(), at: d.QQAt})
 		return b, true, err
 	case "difference":
 		if !ps.axes.SameScale() {

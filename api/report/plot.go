@@ -562,17 +562,26 @@ func residualLabel(ax Axes, scale string) string {
 // Above MaxMarkers points it draws their density and joins the mean
 // residual of each column instead.
 func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale string, flagged ...Flagged) ([]byte, error) {
-	if len(order) == 0 {
+	if len(resid) != len(order) {
+		return nil, errLengths
+	}
+	return runOrderPlot(ctx, xys(order, resid), ax, scale, flagged...)
+}
+
+// runOrderPlot is RunOrderPlot of the points (order, residual) read in
+// place.
+func runOrderPlot(ctx context.Context, p pts, ax Axes, scale string, flagged ...Flagged) ([]byte, error) {
+	if p.n == 0 {
 		return nil, ErrNoData
 	}
-	if err := finite(order, resid); err != nil {
+	if err := p.finite(); err != nil {
 		return nil, err
 	}
 	return drawn(func() (*figure, error) {
-		p := xys(order, resid)
 		f := newFigure("Residuals in run order", "run order", residualLabel(ax, scale),
-			newAxis(order), newAxis(resid, []float64{0}))
-		f.hline(0, slices.Min(order), slices.Max(order), inkIdentity, dashRef, "")
+			axisOf(p.xs()), axisOf(p.ys(), slices.Values([]float64{0})))
+		lo, hi := p.xRange()
+		f.hline(0, lo, hi, inkIdentity, dashRef, "")
 		var ju, jv []float64
 		legend := ""
 		if Binned(p.n) {
@@ -586,11 +595,12 @@ func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale st
 			for i := range idx {
 				idx[i] = i
 			}
+			at := func(i int) float64 { o, _ := p.at(i); return o }
 			slices.SortStableFunc(idx, func(a, b int) int {
-				switch {
-				case order[a] < order[b]:
+				switch oa, ob := at(a), at(b); {
+				case oa < ob:
 					return -1
-				case order[a] > order[b]:
+				case oa > ob:
 					return 1
 				}
 				return 0
@@ -611,7 +621,7 @@ func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale st
 		if _, err := f.pointsOf(ctx, p, ""); err != nil {
 			return nil, err
 		}
-		return f, f.flag(order, resid, flagged)
+		return f, f.flagOf(p, flagged)
 	})
 }
 
