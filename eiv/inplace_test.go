@@ -258,3 +258,52 @@ func TestInPlaceVariantsEqual(t *testing.T) {
 		})
 	}
 }
+
+// BlandAltmanLimits is BlandAltman's bias and limits without the copies of
+// the differences and means (nor the regression of one on the other): to
+// the bit, and the same error for the same fault. BlandAltman itself is
+// checked against Bland & Altman (1986) in TestBlandAltman1986.
+func TestBlandAltmanLimitsEqual(t *testing.T) {
+	nan := math.NaN()
+	for _, c := range []struct {
+		name string
+		x, y []float64
+		mult float64
+	}{
+		{"seeded 200", nil, nil, 0},
+		{"seeded 200, 2.576", nil, nil, 2.576},
+		{"three points", []float64{1, 2, 3}, []float64{1.1, 2.3, 2.8}, 0},
+		{"equal differences", []float64{1, 2, 3, 4}, []float64{2, 3, 4, 5}, 0},
+		{"two points", []float64{1, 2}, []float64{1, 2}, 0},
+		{"NaN at 2", []float64{1, 2, nan, 4}, []float64{1, 2, 3, 4}, 0},
+		{"overflowing mean at 1", []float64{1, math.MaxFloat64, 3}, []float64{1, math.MaxFloat64, 3}, 0},
+		{"lengths differ", []float64{1, 2, 3}, []float64{1, 2}, 0},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			x, y := c.x, c.y
+			if x == nil {
+				r := rand.New(rand.NewPCG(8, 8))
+				for range 200 {
+					v := 1e6 + 100*r.Float64()
+					x, y = append(x, v), append(y, v*1.01+r.NormFloat64())
+				}
+			}
+			opt := &eiv.Options{Confidence: 0.9}
+			got, err1 := eiv.BlandAltmanLimits(x, y, c.mult, opt)
+			want, err2 := eiv.BlandAltman(x, y, c.mult, opt)
+			if (err1 == nil) != (err2 == nil) || err1 != nil && err1.Error() != err2.Error() {
+				t.Fatalf("errors %v, BlandAltman %v", err1, err2)
+			}
+			if err1 != nil {
+				return
+			}
+			if got.Proportional != nil {
+				t.Error("the limits carry a regression")
+			}
+			want.Proportional, want.ProportionalP = nil, 0
+			if *got != *want {
+				t.Errorf("limits %+v\nBlandAltman %+v", *got, *want)
+			}
+		})
+	}
+}

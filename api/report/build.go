@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"eivfit/api/wire"
+	"eivfit/eiv"
 	"eivfit/eiv/study"
 )
 
@@ -129,11 +130,12 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 		}
 	}
 	agree := func() (*wire.AgreementOut, error) {
-		ag, err := study.AgreementOf(d.X, d.Y, res.Confidence, false)
+		// A fit's difference plot draws the bias and the limits only.
+		ag, err := eiv.BlandAltmanLimits(d.X, d.Y, 0, &eiv.Options{Confidence: res.Confidence})
 		if err != nil {
 			return nil, err
 		}
-		return wire.AgreementOutOf(ag), nil
+		return wire.AgreementOutOf(&study.Agreement{Agreement: ag}), nil
 	}
 	ax := Axes{X: "x", Y: "y", Unit: resp.XUnit, YUnit: resp.YUnit}
 	if resp.SameScale() {
