@@ -21,7 +21,8 @@ type Agreement struct {
 	// interval of Bland & Altman (1986): SE ≈ √(3s²/n), t on n−1 df.
 	Lower, Upper Estimate
 	// Proportional is the OLS regression of d on the mean (x+y)/2 (Bland
-	// & Altman 1999, §3.2): a slope different from 0 shows a proportional bias.
+	// & Altman 1999, §3.2), without its jackknife: a slope different from
+	// 0 shows a proportional bias.
 	Proportional *Fit
 	// ProportionalP is the two-sided p-value of that slope.
 	ProportionalP float64
@@ -64,13 +65,49 @@ func blandAltman(x, y []float64, multiplier float64, opt *Options, percent bool)
 	return agreementOf(d, m, multiplier, conf)
 }
 
+// BlandAltmanLimits is BlandAltman without the regression of the
+// differences on the means (Proportional nil): the bias and the limits of
+// agreement, the differences y − x formed as they are read, with no copy
+// of them or of the means (a difference plot of 10⁶ points draws only
+// these). The numbers are BlandAltman's to the bit.
+func BlandAltmanLimits(x, y []float64, multiplier float64, opt *Options) (*Agreement, error) {
+	conf, err := opt.confidence()
+	if err != nil {
+		return nil, err
+	}
+	if len(x) != len(y) {
+		return nil, ErrLengthMismatch
+	}
+	n := len(x)
+	if n < 3 {
+		return nil, ErrTooFewPoints
+	}
+	for i := range x {
+		if !allFinite(y[i]-x[i], (x[i]+y[i])/2) {
+			return nil, &PointError{Index: i, Field: "y", Err: ErrNonFinite}
+		}
+	}
+	// centredMoments(d, d)'s mean and Sxx, d formed in each pass.
+	fn := float64(n)
+	var s float64
+	for i := range x {
+		s += y[i] - x[i]
+	}
+	mean := s / fn
+	var c, ss float64
+	for i := range x {
+		dv := (y[i] - x[i]) - mean
+		c += dv
+		ss += dv * dv
+	}
+	mean, _ = twoSum(mean, c/fn)
+	return limitsOf(n, mean, ss-c*c/fn, multiplier, conf), nil
+}
+
 func agreementOf(d, m []float64, multiplier, conf float64) (*Agreement, error) {
 	n := len(d)
 	if n < 3 {
 		return nil, ErrTooFewPoints
-	}
-	if multiplier == 0 {
-		multiplier = 1.96
 	}
 	for i := range d {
 		if !allFinite(d[i], m[i]) {
@@ -78,20 +115,10 @@ func agreementOf(d, m []float64, multiplier, conf float64) (*Agreement, error) {
 		}
 	}
 	mm := centredMoments(d, d)
-	mean, sd := mm.mx, math.Sqrt(mm.sxx/float64(n-1))
-	t := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n - 1)}.Quantile(0.5 + conf/2)
-	seMean := sd / math.Sqrt(float64(n))
-	seLim := math.Sqrt(3 * sd * sd / float64(n))
-	lo, hi := mean-multiplier*sd, mean+multiplier*sd
-	a := &Agreement{
-		N:              n,
-		MeanDifference: Estimate{Value: mean, SE: seMean, CI: symmetric(mean, t*seMean, conf, "t")},
-		SDDifference:   sd,
-		Multiplier:     multiplier,
-		Lower:          Estimate{Value: lo, SE: seLim, CI: symmetric(lo, t*seLim, conf, "t, SE √(3s²/n)")},
-		Upper:          Estimate{Value: hi, SE: seLim, CI: symmetric(hi, t*seLim, conf, "t, SE √(3s²/n)")},
-	}
-	if f, err := OLS(m, d, &Options{Confidence: conf}); err == nil {
+	a := limitsOf(n, mm.mx, mm.sxx, multiplier, conf)
+	// The regression's own SEs give its p-value; its jackknife (three
+	// arrays of n) is not reported.
+	if f, err := ols(m, d, &Options{Confidence: conf}, false); err == nil {
 		a.Proportional = f
 		tt := 0.0
 		if f.Slope.SE > 0 {
@@ -105,4 +132,25 @@ func agreementOf(d, m []float64, multiplier, conf float64) (*Agreement, error) {
 		}
 	}
 	return a, nil
+}
+
+// limitsOf is the bias and the limits of agreement of n differences with
+// mean and centred sum of squares sxx.
+func limitsOf(n int, mean, sxx, multiplier, conf float64) *Agreement {
+	if multiplier == 0 {
+		multiplier = 1.96
+	}
+	sd := math.Sqrt(sxx / float64(n-1))
+	t := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n - 1)}.Quantile(0.5 + conf/2)
+	seMean := sd / math.Sqrt(float64(n))
+	seLim := math.Sqrt(3 * sd * sd / float64(n))
+	lo, hi := mean-multiplier*sd, mean+multiplier*sd
+	return &Agreement{
+		N:              n,
+		MeanDifference: Estimate{Value: mean, SE: seMean, CI: symmetric(mean, t*seMean, conf, "t")},
+		SDDifference:   sd,
+		Multiplier:     multiplier,
+		Lower:          Estimate{Value: lo, SE: seLim, CI: symmetric(lo, t*seLim, conf, "t, SE √(3s²/n)")},
+		Upper:          Estimate{Value: hi, SE: seLim, CI: symmetric(hi, t*seLim, conf, "t, SE √(3s²/n)")},
+	}
 }

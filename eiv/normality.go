@@ -139,6 +139,46 @@ func NormalQQ(v []float64) []QQPoint {
 	if n < 2 {
 		return nil
 	}
+	z := standardizer(v)
+	// The points are sorted in place by value (ties in input order), with
+	// no index array beside them.
+	out := make([]QQPoint, n)
+	for i, x := range v {
+		out[i] = QQPoint{Sample: z(x), Index: i}
+	}
+	slices.SortStableFunc(out, func(a, b QQPoint) int { return cmpFloat(v[a.Index], v[b.Index]) })
+	for r := range out {
+		out[r].Theoretical = BlomQuantile(r, n)
+	}
+	return out
+}
+
+// NormalQQSample is the Sample of NormalQQ's points without their
+// indices: the standardized values in ascending order, point r against
+// BlomQuantile(r, n) (a third of NormalQQ's memory).
+func NormalQQSample(v []float64) []float64 {
+	if len(v) < 2 {
+		return nil
+	}
+	z := standardizer(v)
+	s := slices.Clone(v)
+	slices.Sort(s) // z is increasing, so the order of v is the order of z
+	for i, x := range s {
+		s[i] = z(x)
+	}
+	return s
+}
+
+// BlomQuantile is the standard normal quantile at Blom's plotting
+// position (r + 1 − 3/8)/(n + 1/4) of the r-th (from 0) of n ordered
+// values.
+func BlomQuantile(r, n int) float64 {
+	return distuv.UnitNormal.Quantile((float64(r+1) - 0.375) / (float64(n) + 0.25))
+}
+
+// standardizer returns z(x) = (x − mean)/SD of v (0 when the SD is 0).
+func standardizer(v []float64) func(float64) float64 {
+	n := len(v)
 	var mean float64
 	for _, x := range v {
 		mean += x
@@ -149,13 +189,10 @@ func NormalQQ(v []float64) []QQPoint {
 		ss += (x - mean) * (x - mean)
 	}
 	sd := math.Sqrt(ss / float64(n-1))
-	out := make([]QQPoint, n)
-	for r, i := range order(v) {
-		z := 0.0
+	return func(x float64) float64 {
 		if sd > 0 {
-			z = (v[i] - mean) / sd
+			return (x - mean) / sd
 		}
-		out[r] = QQPoint{Theoretical: distuv.UnitNormal.Quantile((float64(r+1) - 0.375) / (float64(n) + 0.25)), Sample: z, Index: i}
+		return 0
 	}
-	return out
 }

@@ -25,7 +25,10 @@ func (o *Options) confidence() (float64, error) {
 // with n−2 degrees of freedom; intervals use Student's t with n−2 df.
 // Fit.Jackknife holds the leave-one-out standard errors. Values outside
 // [2^-100, 2^100] in magnitude are fitted in rescaled units (see Scale).
-func OLS(x, y []float64, opt *Options) (*Fit, error) {
+func OLS(x, y []float64, opt *Options) (*Fit, error) { return ols(x, y, opt, true) }
+
+// ols is OLS, with the jackknife only when jackknife is set.
+func ols(x, y []float64, opt *Options, jackknife bool) (*Fit, error) {
 	conf, err := opt.confidence()
 	if err != nil {
 		return nil, err
@@ -66,10 +69,12 @@ func OLS(x, y []float64, opt *Options) (*Fit, error) {
 	if !allFinite(a, b, varA, varB, f.CovSlopeIntercept) {
 		return nil, fmt.Errorf("%w: the line's slope or its variance leaves the double-precision range", ErrDegenerate)
 	}
-	if jk, err := demingJackknife(xs, ys, m, math.Inf(1), a, b, t, conf); err != nil {
-		f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: "ols: no jackknife: " + trimPrefix(err.Error())})
-	} else {
-		f.Jackknife = jk
+	if jackknife {
+		if jk, err := demingJackknife(xs, ys, m, math.Inf(1), a, b, t, conf); err != nil {
+			f.Warnings = append(f.Warnings, &Warning{Code: WarnJackknifeSkipped, Message: "ols: no jackknife: " + trimPrefix(err.Error())})
+		} else {
+			f.Jackknife = jk
+		}
 	}
 	if w := perfectFit(ssr, m, b); w != nil {
 		f.Warnings = append(f.Warnings, w)

@@ -105,25 +105,17 @@ func kendallExactCDF(n, c int) float64 {
 	return s
 }
 
-// order returns the indices of v in ascending order of value, ties in
-// input order.
-func order(v []float64) []int {
-	idx := make([]int, len(v))
+// rankInto sets r to the average ranks (1-based) of key(v[i]), ties
+// sharing the mean rank; idx is scratch of len(v) for their order.
+func rankInto(r []float64, idx []int, v []float64, key func(float64) float64) {
+	n := len(v)
 	for i := range idx {
 		idx[i] = i
 	}
-	slices.SortStableFunc(idx, func(a, b int) int { return cmpFloat(v[a], v[b]) })
-	return idx
-}
-
-// ranks returns average ranks (1-based), ties sharing the mean rank.
-func ranks(v []float64) []float64 {
-	n := len(v)
-	idx := order(v)
-	r := make([]float64, n)
+	slices.SortStableFunc(idx, func(a, b int) int { return cmpFloat(key(v[a]), key(v[b])) })
 	for i := 0; i < n; {
 		j := i
-		for j < n && v[idx[j]] == v[idx[i]] {
+		for j < n && key(v[idx[j]]) == key(v[idx[i]]) {
 			j++
 		}
 		avg := float64(i+j+1) / 2
@@ -132,13 +124,21 @@ func ranks(v []float64) []float64 {
 		}
 		i = j
 	}
-	return r
 }
 
 // Spearman returns Spearman's ρ (Pearson's r of the average ranks) and its
 // two-sided p-value from t = ρ√((n−2)/(1−ρ²)) on n−2 df, as
 // scipy.stats.spearmanr does.
-func Spearman(x, y []float64) (TestResult, error) {
+func Spearman(x, y []float64) (TestResult, error) { return spearman(x, y, same) }
+
+// SpearmanAbs is Spearman's ρ of x with |y| (a spread growing with x),
+// ranked without a copy of |y|.
+func SpearmanAbs(x, y []float64) (TestResult, error) { return spearman(x, y, math.Abs) }
+
+func same(v float64) float64 { return v }
+
+// spearman is Spearman's ρ of x with key(y).
+func spearman(x, y []float64, key func(float64) float64) (TestResult, error) {
 	n := len(x)
 	if n != len(y) {
 		return TestResult{}, ErrLengthMismatch
@@ -146,7 +146,9 @@ func Spearman(x, y []float64) (TestResult, error) {
 	if n < 3 {
 		return TestResult{}, ErrTooFewPoints
 	}
-	rx, ry := ranks(x), ranks(y)
+	rx, ry, idx := make([]float64, n), make([]float64, n), make([]int, n)
+	rankInto(rx, idx, x, same)
+	rankInto(ry, idx, y, key)
 	m := centredMoments(rx, ry)
 	if m.sxx == 0 || m.syy == 0 {
 		return TestResult{}, ErrDegenerate
@@ -190,20 +192,34 @@ func mirrored(rx, ry []float64) bool {
 //	E d = tr(MA)/(n−2),  var d = 2[(n−2)·tr((MA)²) − tr(MA)²]/((n−2)²·n)
 //
 // with M = I − X(XᵀX)⁻¹Xᵀ and A the first-difference matrix (computed in
-// O(n) from the rank-2 structure of I − M).
+// O(n) from the rank-2 structure of I − M, without allocating).
 func DurbinWatson(e, level []float64) (TestResult, error) {
+	return DurbinWatsonInOrder(e, level, nil)
+}
+
+// DurbinWatsonInOrder is DurbinWatson of e and level taken in the order
+// ord (e[ord[0]], e[ord[1]], …; nil: as given), so that residuals kept in
+// input order are tested in run order without a permuted copy.
+func DurbinWatsonInOrder(e, level []float64, ord []int) (TestResult, error) {
 	n := len(e)
-	if n != len(level) {
+	if n != len(level) || ord != nil && len(ord) != n {
 		return TestResult{}, ErrLengthMismatch
 	}
 	if n < 4 {
 		return TestResult{}, ErrTooFewPoints
 	}
+	at := func(k int) int {
+		if ord == nil {
+			return k
+		}
+		return ord[k]
+	}
 	var num, den float64
-	for i, v := range e {
+	for k := range n {
+		v := e[at(k)]
 		den += v * v
-		if i > 0 {
-			d := v - e[i-1]
+		if k > 0 {
+			d := v - e[at(k-1)]
 			num += d * d
 		}
 	}
@@ -211,28 +227,41 @@ func DurbinWatson(e, level []float64) (TestResult, error) {
 		return TestResult{}, ErrDegenerate
 	}
 	d := num / den
-	// Moments under H0 for design X = [1, level].
+	// Moments under H0 for design X = [1, level] (of the levels, which
+	// their order does not change).
 	m := centredMoments(level, level)
 	if m.sxx == 0 {
 		return TestResult{Statistic: d, PValue: math.NaN()}, ErrConstantX
 	}
-	// Orthonormal basis of span(X): q1 = 1/√n, q2 = (level − mean)/√Sxx.
-	q1 := make([]float64, n)
-	q2 := make([]float64, n)
-	for i := range n {
-		q1[i] = 1 / math.Sqrt(float64(n))
-		q2[i] = (level[i] - m.mx) / math.Sqrt(m.sxx)
-	}
-	aq := [2][]float64{applyA(q1), applyA(q2)}
-	q := [2][]float64{q1, q2}
+	// Orthonormal basis of span(X) in run order: q1 = 1/√n,
+	// q2 = (level − mean)/√Sxx; A q_k at t from q_k at t−1, t and t+1.
+	c1, rs := 1/math.Sqrt(float64(n)), math.Sqrt(m.sxx)
+	q2 := func(k int) float64 { return (level[at(k)] - m.mx) / rs }
 	var qaq [2][2]float64 // QᵀAQ
-	var qa2q float64      // tr(QᵀA²Q) = Σ_k ‖A q_k‖²
-	for k := range 2 {
-		for l := range 2 {
-			qaq[k][l] = dot(q[k], aq[l])
+	var aa [2]float64     // ‖A q_k‖²
+	prev, cur := 0.0, q2(0)
+	for k := range n {
+		q := [2]float64{c1, cur}
+		var aq [2]float64
+		if k > 0 {
+			aq[0] += q[0] - c1
+			aq[1] += q[1] - prev
 		}
-		qa2q += dot(aq[k], aq[k])
+		next := 0.0
+		if k < n-1 {
+			next = q2(k + 1)
+			aq[0] += q[0] - c1
+			aq[1] += q[1] - next
+		}
+		for i := range 2 {
+			for j := range 2 {
+				qaq[i][j] += q[i] * aq[j]
+			}
+			aa[i] += aq[i] * aq[i]
+		}
+		prev, cur = cur, next
 	}
+	qa2q := aa[0] + aa[1] // tr(QᵀA²Q) = Σ_k ‖A q_k‖²
 	// tr(A) = 2(n−1); tr(A²) = Σ (A²)_ii = 4(n−2) + 2 + 2(n−1)·1 ... computed directly:
 	trA := 2*float64(n) - 2
 	trA2 := 6*float64(n) - 8 // diag(A) = (1, 2, …, 2, 1), off-diagonals −1
@@ -253,31 +282,6 @@ func DurbinWatson(e, level []float64) (TestResult, error) {
 		"one-sided for positive serial correlation; normal approximation, E d = %.4g, SD %.3g", mean, math.Sqrt(variance))}, nil
 }
 
-// applyA multiplies by the Durbin–Watson matrix A (the Gram matrix of first differences).
-func applyA(v []float64) []float64 {
-	n := len(v)
-	out := make([]float64, n)
-	for i := range n {
-		var s float64
-		if i > 0 {
-			s += v[i] - v[i-1]
-		}
-		if i < n-1 {
-			s += v[i] - v[i+1]
-		}
-		out[i] = s
-	}
-	return out
-}
-
-func dot(a, b []float64) float64 {
-	var s float64
-	for i := range a {
-		s += a[i] * b[i]
-	}
-	return s
-}
-
 // RunsTest is the Wald–Wolfowitz runs test on the signs of e in run order
 // (e ≥ 0 counts as positive), two-sided, by the normal approximation
 // without continuity correction:
@@ -285,19 +289,31 @@ func dot(a, b []float64) float64 {
 //	μ = 2n₊n₋/n + 1,  σ² = 2n₊n₋(2n₊n₋ − n)/(n²(n − 1)),  z = (R − μ)/σ
 //
 // Too few runs (z < 0) suggest drift or serial correlation.
-func RunsTest(e []float64) (TestResult, error) {
+func RunsTest(e []float64) (TestResult, error) { return RunsTestInOrder(e, nil) }
+
+// RunsTestInOrder is RunsTest of e taken in the order ord (nil: as given).
+func RunsTestInOrder(e []float64, ord []int) (TestResult, error) {
 	n := len(e)
+	if ord != nil && len(ord) != n {
+		return TestResult{}, ErrLengthMismatch
+	}
 	if n < 3 {
 		return TestResult{}, ErrTooFewPoints
 	}
 	var pos, runs int
-	for i, v := range e {
+	last := false
+	for k := range n {
+		v := e[k]
+		if ord != nil {
+			v = e[ord[k]]
+		}
 		if v >= 0 {
 			pos++
 		}
-		if i == 0 || (v >= 0) != (e[i-1] >= 0) {
+		if k == 0 || (v >= 0) != last {
 			runs++
 		}
+		last = v >= 0
 	}
 	neg := n - pos
 	if pos == 0 || neg == 0 {
@@ -325,11 +341,7 @@ func BreuschPagan(e, level []float64) (TestResult, error) {
 	if n < 4 {
 		return TestResult{}, ErrTooFewPoints
 	}
-	e2 := make([]float64, n)
-	for i, v := range e {
-		e2[i] = v * v
-	}
-	m := centredMoments(level, e2)
+	m := squareMoments(level, e)
 	if m.sxx == 0 || m.syy == 0 {
 		return TestResult{}, ErrDegenerate
 	}
@@ -337,6 +349,28 @@ func BreuschPagan(e, level []float64) (TestResult, error) {
 	lm := float64(n) * r2
 	return TestResult{Statistic: lm, PValue: chiSquaredSF(lm, 1),
 		Detail: "Koenker's studentized LM = n·R² of e² on level, χ²(1)"}, nil
+}
+
+// squareMoments is centredMoments(x, e²) with each square formed as it is
+// read, without a copy of e².
+func squareMoments(x, e []float64) moments {
+	n := float64(len(x))
+	var sx, sy float64
+	for i, v := range e {
+		sx += x[i]
+		sy += v * v
+	}
+	m := moments{n: n, mx: sx / n, my: sy / n}
+	var cx, cy, xx, yy, xy float64
+	for i, v := range e {
+		dx, dy := x[i]-m.mx, v*v-m.my
+		cx, cy = cx+dx, cy+dy
+		xx, yy, xy = xx+dx*dx, yy+dy*dy, xy+dx*dy
+	}
+	m.mx, m.lx = twoSum(m.mx, cx/n)
+	m.my, m.ly = twoSum(m.my, cy/n)
+	m.sxx, m.syy, m.sxy = xx-cx*cx/n, yy-cy*cy/n, xy-cx*cy/n
+	return m
 }
 
 // ESDResult is the outcome of the generalized ESD many-outlier procedure.

@@ -1,7 +1,9 @@
 package report
 
 import (
+	"iter"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -32,9 +34,18 @@ const maxTicks = 12
 
 // newAxis returns the axis that shows every finite value of vals.
 func newAxis(vals ...[]float64) axis {
+	seqs := make([]iter.Seq[float64], len(vals))
+	for i, v := range vals {
+		seqs[i] = slices.Values(v)
+	}
+	return axisOf(seqs...)
+}
+
+// axisOf is newAxis for values read in place (a plot's points, see pts).
+func axisOf(vals ...iter.Seq[float64]) axis {
 	maxAbs := 0.0
 	for _, s := range vals {
-		for _, v := range s {
+		for v := range s {
 			if a := math.Abs(v); a > maxAbs && !math.IsInf(a, 0) {
 				maxAbs = a
 			}
@@ -46,7 +57,7 @@ func newAxis(vals ...[]float64) axis {
 	}
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for _, s := range vals {
-		for _, v := range s {
+		for v := range s {
 			if math.IsNaN(v) || math.IsInf(v, 0) {
 				continue
 			}

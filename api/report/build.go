@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"eivfit/api/wire"
+	"eivfit/eiv"
 	"eivfit/eiv/study"
 )
 
@@ -62,14 +63,14 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		b, err := ResidualPlot(ctx, d.Level, d.Residual, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "run-order":
-		b, err := RunOrderPlot(ctx, d.Order, d.Residual, ps.axes, d.Scale, ps.flagged(kind)...)
+		p := xys(d.Order, d.Residual)
+		if d.Order == nil { // the input order
+			p = pts{n: len(d.Residual), at: func(i int) (float64, float64) { return float64(i + 1), d.Residual[i] }}
+		}
+		b, err := runOrderPlot(ctx, p, ps.axes, d.Scale, ps.flagged(kind)...)
 		return b, true, err
 	case "qq":
-		th, sm := make([]float64, len(d.QQ)), make([]float64, len(d.QQ))
-		for i, q := range d.QQ {
-			th[i], sm[i] = q.Theoretical, q.Sample
-		}
-		b, err := QQPlot(ctx, th, sm)
+		b, err := qqPlot(ctx, pts{n: d.QQLen(), at: d.QQAt})
 		return b, true, err
 	case "difference":
 		if !ps.axes.SameScale() {
@@ -79,15 +80,13 @@ func (ps *plotSet) plot(ctx context.Context, kind string) ([]byte, bool, error) 
 		if err != nil {
 			return nil, false, err
 		}
-		mean, diff := make([]float64, len(ps.x)), make([]float64, len(ps.x))
-		for i := range ps.x {
-			mean[i], diff[i] = ps.x[i]/2+ps.y[i]/2, ps.y[i]-ps.x[i] // never overflows
+		x, y := ps.x, ps.y
+		md := pts{n: len(x), at: func(i int) (float64, float64) { return x[i]/2 + y[i]/2, y[i] - x[i] }} // never overflows
+		f, ok := differenceForm(a)
+		if !ok {
+			f = DifferenceForm{Form: "constant"} // the plain plot, as DifferencePlot
 		}
-		if f, ok := differenceForm(a); ok {
-			b, err := DifferencePlotForm(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes, ps.flagged(kind)...)
-			return b, true, err
-		}
-		b, err := DifferencePlot(ctx, mean, diff, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, ps.axes, ps.flagged(kind)...)
+		b, err := differencePlot(ctx, md, a.MeanDifference.Estimate, a.LimitsOfAgreement.Lower.Estimate, a.LimitsOfAgreement.Upper.Estimate, f, ps.axes, ps.flagged(kind)...)
 		return b, true, err
 	case "bootstrap":
 		bs := ps.fit.Bootstrap
@@ -131,11 +130,12 @@ func fitPlots(resp *wire.FitResponse, res *study.FitResult, d *study.Data, metho
 		}
 	}
 	agree := func() (*wire.AgreementOut, error) {
-		ag, err := study.AgreementOf(d.X, d.Y, res.Confidence, false)
+		// A fit's difference plot draws the bias and the limits only.
+		ag, err := eiv.BlandAltmanLimits(d.X, d.Y, 0, &eiv.Options{Confidence: res.Confidence})
 		if err != nil {
 			return nil, err
 		}
-		return wire.AgreementOutOf(ag), nil
+		return wire.AgreementOutOf(&study.Agreement{Agreement: ag}), nil
 	}
 	ax := Axes{X: "x", Y: "y", Unit: resp.XUnit, YUnit: resp.YUnit}
 	if resp.SameScale() {

@@ -126,18 +126,20 @@ func (d *density) legend() string {
 }
 
 // columnMeans returns, for each of DensityCols columns of u that holds
-// points, the column's centre and the mean v of its points.
-func columnMeans(ctx context.Context, u, v []float64) (cu, cv []float64, err error) {
+// points, the column's centre and the mean v of its points; at(i) gives
+// point i in unit coordinates, read without a copy.
+func columnMeans(ctx context.Context, n int, at func(i int) (u, v float64)) (cu, cv []float64, err error) {
 	sum := make([]float64, DensityCols)
 	cnt := make([]int, DensityCols)
-	for i := range u {
+	for i := range n {
 		if i%checkEvery == 0 {
 			if err := ctx.Err(); err != nil {
 				return nil, nil, err
 			}
 		}
-		c := cell(u[i], DensityCols)
-		sum[c] += v[i]
+		u, v := at(i)
+		c := cell(u, DensityCols)
+		sum[c] += v
 		cnt[c]++
 	}
 	for c := range sum {

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"image/color"
+	"iter"
 	"slices"
 
 	"gonum.org/v1/plot/vg"
@@ -39,14 +40,26 @@ func DifferencePlot(ctx context.Context, mean, diff []float64, meanDiff, lower, 
 // each drawn line at the ends of the means' range, and the lines are
 // clipped to the view.
 func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, lower, upper float64, f DifferenceForm, ax Axes, flagged ...Flagged) ([]byte, error) {
-	if len(mean) == 0 {
+	if len(diff) != len(mean) {
+		return nil, errLengths
+	}
+	return differencePlot(ctx, xys(mean, diff), meanDiff, lower, upper, f, ax, flagged...)
+}
+
+// differencePlot is DifferencePlotForm of the points (mean, difference)
+// read in place.
+func differencePlot(ctx context.Context, p pts, meanDiff, lower, upper float64, f DifferenceForm, ax Axes, flagged ...Flagged) ([]byte, error) {
+	if p.n == 0 {
 		return nil, ErrNoData
 	}
-	if err := finite(mean, diff, []float64{meanDiff, lower, upper, f.B0, f.B1, f.K, f.C0, f.C1, f.Ratio, f.RatioLower, f.RatioUpper}); err != nil {
+	if err := p.finite(); err != nil {
+		return nil, err
+	}
+	if err := finite([]float64{meanDiff, lower, upper, f.B0, f.B1, f.K, f.C0, f.C1, f.Ratio, f.RatioLower, f.RatioUpper}); err != nil {
 		return nil, err
 	}
 	return drawn(func() (*figure, error) {
-		lo, hi := slices.Min(mean), slices.Max(mean)
+		lo, hi := p.xRange()
 		type drawnLine struct {
 			l      Line
 			ink    color.Color
@@ -79,20 +92,20 @@ func DifferencePlotForm(ctx context.Context, mean, diff []float64, meanDiff, low
 			ls = append(ls, drawnLine{Line{Intercept: f.B0, Slope: f.B1}, inkOLS, []vg.Length{vg.Points(2), vg.Points(2)},
 				"regression of differences: " + affine(f.B0, f.B1)})
 		}
-		yv := [][]float64{diff, {0}}
+		yv := []iter.Seq[float64]{p.ys(), slices.Values([]float64{0})}
 		for _, d := range ls {
-			yv = append(yv, lineEnds(d.l, lo, hi))
+			yv = append(yv, slices.Values(lineEnds(d.l, lo, hi)))
 		}
 		fg := newFigure("Difference plot (Bland–Altman)", ax.label("mean of x and y"), ax.label("difference y − x"),
-			newAxis(mean), newAxis(yv...))
+			axisOf(p.xs()), axisOf(yv...))
 		fg.hline(0, lo, hi, inkIdentity, dashRef, "")
 		for _, d := range ls {
 			fg.line(d.l, lo, hi, d.ink, d.dash, d.legend)
 		}
-		if _, err := fg.points(ctx, mean, diff, ""); err != nil {
+		if _, err := fg.pointsOf(ctx, p, ""); err != nil {
 			return nil, err
 		}
-		return fg, fg.flag(mean, diff, flagged)
+		return fg, fg.flagOf(p, flagged)
 	})
 }
 

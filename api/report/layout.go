@@ -185,26 +185,32 @@ func (diamond) DrawGlyph(c *draw.Canvas, sty draw.GlyphStyle, pt vg.Point) {
 // flag draws the diamonds round the flagged points of xs, ys (in data
 // units) and names them in the legend.
 func (f *figure) flag(xs, ys []float64, fls []Flagged) error {
+	return f.flagOf(xys(xs, ys), fls)
+}
+
+// flagOf is flag for points read in place.
+func (f *figure) flagOf(p pts, fls []Flagged) error {
 	if len(fls) == 0 {
 		return nil
 	}
 	fl := fls[0]
-	var pts plotter.XYs
+	var marks plotter.XYs
 	var kept Flagged
 	for k, i := range fl.Index {
-		if i < 0 || i >= len(xs) || len(pts) >= MaxMarkers {
+		if i < 0 || i >= p.n || len(marks) >= MaxMarkers {
 			continue
 		}
-		pts = append(pts, plotter.XY{X: f.x.u(xs[i]), Y: f.y.u(ys[i])})
+		u, v := f.unit(p, i)
+		marks = append(marks, plotter.XY{X: u, Y: v})
 		kept.Index = append(kept.Index, i)
 		if k < len(fl.IDs) {
 			kept.IDs = append(kept.IDs, fl.IDs[k])
 		}
 	}
-	if len(pts) == 0 {
+	if len(marks) == 0 {
 		return nil
 	}
-	s, err := plotter.NewScatter(pts)
+	s, err := plotter.NewScatter(marks)
 	if err != nil {
 		return err
 	}

@@ -15,6 +15,7 @@ import (
 	"errors"
 	"fmt"
 	"image/color"
+	"iter"
 	"math"
 	"regexp"
 	"slices"
@@ -192,11 +193,72 @@ func (f *figure) hline(v float64, xlo, xhi float64, c color.Color, dash []vg.Len
 	f.line(Line{Intercept: v}, xlo, xhi, c, dash, legend)
 }
 
+// pts are a plot's n points read in place: at(i) is point i in data
+// units, so the points a plot derives from the data (means and
+// differences, Q-Q pairs) are drawn without a copy of them.
+type pts struct {
+	n  int
+	at func(i int) (x, y float64)
+}
+
+// xys are the points (x[i], y[i]).
+func xys(x, y []float64) pts {
+	return pts{n: len(x), at: func(i int) (float64, float64) { return x[i], y[i] }}
+}
+
+// xs and ys are the points' coordinates, for an axis.
+func (p pts) xs() iter.Seq[float64] { return p.coord(0) }
+func (p pts) ys() iter.Seq[float64] { return p.coord(1) }
+
+func (p pts) coord(k int) iter.Seq[float64] {
+	return func(yield func(float64) bool) {
+		for i := range p.n {
+			xy := [2]float64{}
+			xy[0], xy[1] = p.at(i)
+			if !yield(xy[k]) {
+				return
+			}
+		}
+	}
+}
+
+// finite is finite for the points' coordinates.
+func (p pts) finite() error {
+	for i := range p.n {
+		if x, y := p.at(i); !isFinite(x) || !isFinite(y) {
+			return errNotFinite
+		}
+	}
+	return nil
+}
+
+// xRange is the smallest and the largest x of at least one point.
+func (p pts) xRange() (lo, hi float64) {
+	lo, _ = p.at(0)
+	hi = lo
+	for i := 1; i < p.n; i++ {
+		x, _ := p.at(i)
+		lo, hi = min(lo, x), max(hi, x)
+	}
+	return lo, hi
+}
+
 // points draws the points one by one up to MaxMarkers, else as a binned
 // density; the legend entry names which.
 func (f *figure) points(ctx context.Context, xs, ys []float64, legend string) (*density, error) {
-	if Binned(len(xs)) {
-		d, err := binned(ctx, len(xs), func(i int) (float64, float64) { return f.x.u(xs[i]), f.y.u(ys[i]) })
+	return f.pointsOf(ctx, xys(xs, ys), legend)
+}
+
+// unit is p's point i in unit coordinates.
+func (f *figure) unit(p pts, i int) (u, v float64) {
+	x, y := p.at(i)
+	return f.x.u(x), f.y.u(y)
+}
+
+// pointsOf is points for points read in place.
+func (f *figure) pointsOf(ctx context.Context, p pts, legend string) (*density, error) {
+	if Binned(p.n) {
+		d, err := binned(ctx, p.n, func(i int) (float64, float64) { return f.unit(p, i) })
 		if err != nil {
 			return nil, err
 		}
@@ -204,9 +266,9 @@ func (f *figure) points(ctx context.Context, xs, ys []float64, legend string) (*
 		f.legendAdd(d.legend(), d)
 		return d, nil
 	}
-	u, v := make([]float64, len(xs)), make([]float64, len(xs))
-	for i := range xs {
-		u[i], v[i] = f.x.u(xs[i]), f.y.u(ys[i])
+	u, v := make([]float64, p.n), make([]float64, p.n)
+	for i := range p.n {
+		u[i], v[i] = f.unit(p, i)
 	}
 	s, err := plotter.NewScatter(unitXYs(u, v))
 	if err != nil {
@@ -274,16 +336,23 @@ func drawn(build func() (*figure, error)) (b []byte, err error) {
 	return f.render()
 }
 
+var (
+	errNotFinite = errors.New("report: a value to plot is not finite")
+	errLengths   = errors.New("report: the coordinates to plot differ in length")
+)
+
 func finite(v ...[]float64) error {
 	for _, s := range v {
 		for _, f := range s {
-			if math.IsNaN(f) || math.IsInf(f, 0) {
-				return fmt.Errorf("report: a value to plot is not finite")
+			if !isFinite(f) {
+				return errNotFinite
 			}
 		}
 	}
 	return nil
 }
+
+func isFinite(f float64) bool { return !math.IsNaN(f) && !math.IsInf(f, 0) }
 
 // lineEnds returns l at lo and hi when both are finite.
 func lineEnds(l Line, lo, hi float64) []float64 {
@@ -493,45 +562,52 @@ func residualLabel(ax Axes, scale string) string {
 // Above MaxMarkers points it draws their density and joins the mean
 // residual of each column instead.
 func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale string, flagged ...Flagged) ([]byte, error) {
-	if len(order) == 0 {
+	if len(resid) != len(order) {
+		return nil, errLengths
+	}
+	return runOrderPlot(ctx, xys(order, resid), ax, scale, flagged...)
+}
+
+// runOrderPlot is RunOrderPlot of the points (order, residual) read in
+// place.
+func runOrderPlot(ctx context.Context, p pts, ax Axes, scale string, flagged ...Flagged) ([]byte, error) {
+	if p.n == 0 {
 		return nil, ErrNoData
 	}
-	if err := finite(order, resid); err != nil {
+	if err := p.finite(); err != nil {
 		return nil, err
 	}
 	return drawn(func() (*figure, error) {
 		f := newFigure("Residuals in run order", "run order", residualLabel(ax, scale),
-			newAxis(order), newAxis(resid, []float64{0}))
-		f.hline(0, slices.Min(order), slices.Max(order), inkIdentity, dashRef, "")
-		u, v := make([]float64, len(order)), make([]float64, len(order))
-		for i := range order {
-			u[i], v[i] = f.x.u(order[i]), f.y.u(resid[i])
-		}
+			axisOf(p.xs()), axisOf(p.ys(), slices.Values([]float64{0})))
+		lo, hi := p.xRange()
+		f.hline(0, lo, hi, inkIdentity, dashRef, "")
 		var ju, jv []float64
 		legend := ""
-		if Binned(len(order)) {
+		if Binned(p.n) {
 			var err error
-			if ju, jv, err = columnMeans(ctx, u, v); err != nil {
+			if ju, jv, err = columnMeans(ctx, p.n, func(i int) (float64, float64) { return f.unit(p, i) }); err != nil {
 				return nil, err
 			}
 			legend = fmt.Sprintf("mean residual in each of %d columns", DensityCols)
 		} else {
-			idx := make([]int, len(order))
+			idx := make([]int, p.n)
 			for i := range idx {
 				idx[i] = i
 			}
+			at := func(i int) float64 { o, _ := p.at(i); return o }
 			slices.SortStableFunc(idx, func(a, b int) int {
-				switch {
-				case order[a] < order[b]:
+				switch oa, ob := at(a), at(b); {
+				case oa < ob:
 					return -1
-				case order[a] > order[b]:
+				case oa > ob:
 					return 1
 				}
 				return 0
 			})
 			ju, jv = make([]float64, len(idx)), make([]float64, len(idx))
 			for k, i := range idx {
-				ju[k], jv[k] = u[i], v[i]
+				ju[k], jv[k] = f.unit(p, i)
 			}
 		}
 		if ln, err := plotter.NewLine(unitXYs(ju, jv)); err == nil {
@@ -542,30 +618,38 @@ func RunOrderPlot(ctx context.Context, order, resid []float64, ax Axes, scale st
 			}
 			f.add(lines, ln)
 		}
-		if _, err := f.points(ctx, order, resid, ""); err != nil {
+		if _, err := f.pointsOf(ctx, p, ""); err != nil {
 			return nil, err
 		}
-		return f, f.flag(order, resid, flagged)
+		return f, f.flagOf(p, flagged)
 	})
 }
 
 // QQPlot draws ordered standardized residuals against normal quantiles
 // with the reference line of slope 1 through the origin.
 func QQPlot(ctx context.Context, theoretical, sample []float64) ([]byte, error) {
-	if len(theoretical) == 0 {
+	if len(sample) != len(theoretical) {
+		return nil, errLengths
+	}
+	return qqPlot(ctx, xys(theoretical, sample))
+}
+
+// qqPlot is QQPlot of the points (theoretical, sample) read in place.
+func qqPlot(ctx context.Context, p pts) ([]byte, error) {
+	if p.n == 0 {
 		return nil, ErrNoData
 	}
-	if err := finite(theoretical, sample); err != nil {
+	if err := p.finite(); err != nil {
 		return nil, err
 	}
 	return drawn(func() (*figure, error) {
-		both := newAxis(theoretical, sample)
+		both := axisOf(p.xs(), p.ys())
 		f := newFigure("Normal Q-Q plot of standardized residuals", "standard normal quantile", "standardized residual", both, both)
 		if ref := f.identity(); ref != nil {
 			f.add(lines, ref)
 			f.legendAdd("normal reference", ref)
 		}
-		_, err := f.points(ctx, theoretical, sample, "")
+		_, err := f.pointsOf(ctx, p, "")
 		return f, err
 	})
 }

@@ -9,6 +9,9 @@ import (
 	"math/rand/v2"
 	"strings"
 	"testing"
+
+	"eivfit/eiv"
+	"eivfit/eiv/study"
 )
 
 // TestDecimal: labels are written exactly from an integer and a power of
@@ -152,6 +155,58 @@ func TestPlotsBounded(t *testing.T) {
 			}
 			if err != nil {
 				t.Fatalf("%s: not XML: %v", kind, err)
+			}
+		}
+	}
+}
+
+// TestPlotsReadInPlace: the report draws the Q-Q, difference and run-order
+// plots from points read in place (the sorted standardized residuals with
+// their quantiles computed as drawn, the means and differences formed as
+// read, the input order without an order array); each SVG equals, byte for
+// byte, the plot drawn from the copies the report made before, with markers
+// (300 points) and binned (5,000), with a flagged point.
+func TestPlotsReadInPlace(t *testing.T) {
+	ctx := context.Background()
+	for _, n := range []int{300, 5000} {
+		r := rand.New(rand.NewPCG(uint64(n), 5))
+		x, y, e := make([]float64, n), make([]float64, n), make([]float64, n)
+		for i := range x {
+			x[i] = 10 + 90*r.Float64()
+			y[i] = 0.5 + 1.02*x[i] + r.NormFloat64()
+			e[i] = r.NormFloat64()
+		}
+		fl := Flagged{Index: []int{n / 2}, IDs: []string{"S"}}
+		d := study.Diagnostics{Residual: e, QQSample: eiv.NormalQQSample(e)}
+		qq := eiv.NormalQQ(e)
+		th, sm := make([]float64, n), make([]float64, n)
+		mean, diff, order := make([]float64, n), make([]float64, n), make([]float64, n)
+		for i := range n {
+			th[i], sm[i] = qq[i].Theoretical, qq[i].Sample
+			mean[i], diff[i], order[i] = x[i]/2+y[i]/2, y[i]-x[i], float64(i+1)
+		}
+		lines := DifferenceForm{Form: "regression", B0: 0.1, B1: 0.01, K: 1.96, C0: 0.8, C1: 0.002, Proportional: true}
+		for _, c := range []struct {
+			name          string
+			inPlace, copy func() ([]byte, error)
+		}{
+			{"qq", func() ([]byte, error) { return qqPlot(ctx, pts{n: d.QQLen(), at: d.QQAt}) },
+				func() ([]byte, error) { return QQPlot(ctx, th, sm) }},
+			{"difference", func() ([]byte, error) {
+				md := pts{n: n, at: func(i int) (float64, float64) { return x[i]/2 + y[i]/2, y[i] - x[i] }}
+				return differencePlot(ctx, md, 0.3, -1.7, 2.3, lines, Axes{}, fl)
+			}, func() ([]byte, error) { return DifferencePlotForm(ctx, mean, diff, 0.3, -1.7, 2.3, lines, Axes{}, fl) }},
+			{"run-order", func() ([]byte, error) {
+				return runOrderPlot(ctx, pts{n: n, at: func(i int) (float64, float64) { return float64(i + 1), e[i] }}, Axes{}, "", fl)
+			}, func() ([]byte, error) { return RunOrderPlot(ctx, order, e, Axes{}, "", fl) }},
+		} {
+			got, err1 := c.inPlace()
+			want, err2 := c.copy()
+			if err1 != nil || err2 != nil {
+				t.Fatalf("%s, %d points: %v, %v", c.name, n, err1, err2)
+			}
+			if !bytes.Equal(got, want) {
+				t.Errorf("%s, %d points: the SVG drawn in place (%d bytes) differs from the one drawn from copies (%d bytes)", c.name, n, len(got), len(want))
 			}
 		}
 	}

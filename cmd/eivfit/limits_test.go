@@ -63,12 +63,7 @@ func (p *serveProcess) postAccept(path, ctype, accept string, body []byte) (int,
 // lists it refuses.
 const (
 	memMultiple = 8
-	// reportMultiple bounds the HTML report of the largest CSV: it runs
-	// every check on the residuals and draws all six plots, 14 × the body
-	// measured (a single plot is within memMultiple); bringing it to
-	// memMultiple is open work (README, limits).
-	reportMultiple = 17
-	memSlack       = 48 << 20 // the runtime, the compute's own buffers, page granularity
+	memSlack    = 48 << 20 // the runtime, the compute's own buffers, page granularity
 )
 
 // giantBodies builds the test bodies, each near maxBody bytes (except the
@@ -206,15 +201,11 @@ func TestPeakMemoryPerBody(t *testing.T) {
 				t.Fatalf("status %d, want %d: %.300s", code, c.status, body)
 			}
 			peak := p.peakRSS(t)
-			multiple := int64(memMultiple)
-			if c.accept == "text/html" {
-				multiple = reportMultiple
-			}
-			limit := before + memSlack + multiple*int64(len(c.body))
+			limit := before + memSlack + memMultiple*int64(len(c.body))
 			t.Logf("body %.1f MB: peak RSS %.0f MB (before %.0f MB; +%.1f × body) in %v", float64(len(c.body))/1e6,
 				float64(peak)/1e6, float64(before)/1e6, float64(peak-before)/float64(len(c.body)), time.Since(t0).Round(time.Millisecond))
 			if peak > limit {
-				t.Errorf("peak RSS %d > %d (before %d + %d + %d × body %d)", peak, limit, before, memSlack, multiple, len(c.body))
+				t.Errorf("peak RSS %d > %d (before %d + %d + %d × body %d)", peak, limit, before, memSlack, memMultiple, len(c.body))
 			}
 		})
 	}

@@ -19,15 +19,21 @@ type Diagnostics struct {
 	Scale       string
 	// The residuals in input order, one entry per sample in parallel
 	// slices (a plot of 10⁶ points reads them without a copy): Level is
-	// (x + y)/2, Order the run order used, Residual the residual on the
-	// Scale and Standardized the residual over the residuals' SD; IDs are
-	// the samples' ids, nil when the data carry none (ID reads it).
+	// (x + y)/2, Order the run order used (nil when it is the input
+	// order 1, 2, …, which a line fit without an order column uses),
+	// Residual the residual on the Scale and Standardized the residual
+	// over the residuals' SD; IDs are the samples' ids, nil when the data
+	// carry none (ID reads it).
 	Level, Order, Residual, Standardized []float64
 	IDs                                  []string
 
 	ShapiroWilk *eiv.TestResult
 	// QQ is the normal Q-Q plot; each point's Index is its residual's.
+	// A line fit's diagnostics, whose Q-Q plot names no point, keep only
+	// QQSample instead: the standardized residuals in ascending order
+	// (eiv.NormalQQSample). QQLen and QQAt read either.
 	QQ               []eiv.QQPoint
+	QQSample         []float64
 	NormalityReading string
 
 	// OrderSource is "order" (given) or "input".
@@ -60,6 +66,23 @@ func (d *Diagnostics) ID(i int) string {
 	return d.IDs[i]
 }
 
+// QQLen is the number of points of the Q-Q plot.
+func (d *Diagnostics) QQLen() int {
+	if d.QQ != nil {
+		return len(d.QQ)
+	}
+	return len(d.QQSample)
+}
+
+// QQAt is point r of the Q-Q plot: the standard normal quantile and the
+// r-th smallest standardized residual.
+func (d *Diagnostics) QQAt(r int) (theoretical, sample float64) {
+	if d.QQ != nil {
+		return d.QQ[r].Theoretical, d.QQ[r].Sample
+	}
+	return eiv.BlomQuantile(r, len(d.QQSample)), d.QQSample[r]
+}
+
 // Outlier is one flagged sample; Index is its index in the caller's data.
 type Outlier struct {
 	ID        string
@@ -73,7 +96,7 @@ type Outlier struct {
 func DiagnoseFit(d *Data, m *MethodResult) *Diagnostics {
 	a, b := m.Fit.Intercept.Value, m.Fit.Slope.Value
 	c := eiv.CusumLinearity(d.X, d.Y, a, b)
-	return diagnose(fitReduced(d), m.Fit, m.Method.Name, string(eiv.ErrorConstant), &c, nil, nil)
+	return diagnoseWith(fitReduced(d), m.Fit, m.Method.Name, string(eiv.ErrorConstant), &c, nil, nil, false)
 }
 
 // residuals computes the residuals of fit f on st's scale (model, and
@@ -120,16 +143,10 @@ func residuals(st *reduced, f *eiv.Fit, name, model string) *Diagnostics {
 // fitReduced is a line fit's data as diagnose reads them: one reading
 // per sample, indexed as the caller's data, with no sample index,
 // replicate counts or copies of the data (a plot of 10⁶ points would pay
-// for each); the run order is the input's unless the data give one.
+// for each); the run order is the input's (Order nil) unless the data
+// give one.
 func fitReduced(d *Data) *reduced {
-	st := &reduced{Data: *d, hasOrder: d.Order != nil}
-	if d.Order == nil {
-		st.Order = make([]float64, d.Len())
-		for i := range st.Order {
-			st.Order[i] = float64(i + 1)
-		}
-	}
-	return st
+	return &reduced{Data: *d, hasOrder: d.Order != nil}
 }
 
 // FitResiduals is DiagnoseFit without the tests and the Q-Q points: the
@@ -140,8 +157,14 @@ func FitResiduals(d *Data, m *MethodResult) *Diagnostics {
 }
 
 func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResult, rx, ry *eiv.Repeatability) *Diagnostics {
+	return diagnoseWith(st, f, name, model, cusum, rx, ry, true)
+}
+
+// diagnoseWith is diagnose; qqIndexed keeps the Q-Q points with their
+// residuals' indices (QQ), else only their values (QQSample).
+func diagnoseWith(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResult, rx, ry *eiv.Repeatability, qqIndexed bool) *Diagnostics {
 	d := residuals(st, f, name, model)
-	n, e, level := st.Len(), d.Residual, d.Level
+	e, level := d.Residual, d.Level
 	a, b := f.Intercept.Value, f.Slope.Value
 	to := func(r eiv.TestResult) *eiv.TestResult { return &r }
 	// Normality.
@@ -155,37 +178,26 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 	} else {
 		d.NormalityReading = "Normality could not be tested (the residuals are all equal)."
 	}
-	d.QQ = eiv.NormalQQ(e)
-	// Independence in run order.
-	ord := make([]int, n)
-	for i := range ord {
-		ord[i] = i
+	if qqIndexed {
+		d.QQ = eiv.NormalQQ(e)
+	} else {
+		d.QQSample = eiv.NormalQQSample(e)
 	}
-	slices.SortStableFunc(ord, func(p, q int) int {
-		switch {
-		case st.Order[p] < st.Order[q]:
-			return -1
-		case st.Order[p] > st.Order[q]:
-			return 1
-		}
-		return 0
-	})
-	eo, lo := make([]float64, n), make([]float64, n)
-	for k, i := range ord {
-		eo[k], lo[k] = e[i], level[i]
-	}
+	// Independence in run order: the residuals are read in run order
+	// through ord, nil when the input is in run order already.
+	ord := runOrder(st.Order)
 	d.OrderSource = "input"
 	if st.hasOrder {
 		d.OrderSource = "order"
 	}
 	var reads []string
-	if dw, err := eiv.DurbinWatson(eo, lo); err == nil {
+	if dw, err := eiv.DurbinWatsonInOrder(e, level, ord); err == nil {
 		d.DurbinWatson = to(dw)
 		if dw.PValue < 0.05 {
 			reads = append(reads, fmt.Sprintf("successive residuals in run order are correlated (Durbin–Watson d = %.2f, p = %.2g): look for drift or carry-over", dw.Statistic, dw.PValue))
 		}
 	}
-	if rt, err := eiv.RunsTest(eo); err == nil {
+	if rt, err := eiv.RunsTestInOrder(e, ord); err == nil {
 		d.Runs = to(rt)
 		if rt.PValue < 0.05 {
 			reads = append(reads, fmt.Sprintf("the signs of the residuals in run order form %s runs than chance gives (p = %.2g)", map[bool]string{true: "fewer", false: "more"}[rt.Statistic < 0], rt.PValue))
@@ -193,10 +205,6 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 	}
 	d.IndependenceReading = sentence(reads, "No evidence of dependence in run order.", ".")
 	// Constant variance.
-	absE := make([]float64, n)
-	for i, v := range e {
-		absE[i] = math.Abs(v)
-	}
 	reads = nil
 	if bp, err := eiv.BreuschPagan(e, level); err == nil {
 		d.BreuschPagan = to(bp)
@@ -204,7 +212,7 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 			reads = append(reads, fmt.Sprintf("the residual variance changes with the level (Breusch–Pagan p = %.2g)", bp.PValue))
 		}
 	}
-	if sp, err := eiv.Spearman(level, absE); err == nil {
+	if sp, err := eiv.SpearmanAbs(level, e); err == nil {
 		d.Spearman = to(sp)
 		if sp.PValue < 0.05 && sp.Statistic > 0 {
 			reads = append(reads, fmt.Sprintf("|residual| grows with the level (Spearman ρ = %.2f, p = %.2g)", sp.Statistic, sp.PValue))
@@ -232,6 +240,32 @@ func diagnose(st *reduced, f *eiv.Fit, name, model string, cusum *eiv.CusumResul
 		d.LinearityReading = sentence(reads, "No evidence against a straight line.", "; look at the samples with the largest residuals.")
 	}
 	return d
+}
+
+// runOrder returns the indices of the samples in run order (a stable
+// sort of order), nil when the samples are in run order already.
+func runOrder(order []float64) []int {
+	sorted := true
+	for i := 1; i < len(order) && sorted; i++ {
+		sorted = !(order[i] < order[i-1])
+	}
+	if sorted {
+		return nil
+	}
+	ord := make([]int, len(order))
+	for i := range ord {
+		ord[i] = i
+	}
+	slices.SortStableFunc(ord, func(p, q int) int {
+		switch {
+		case order[p] < order[q]:
+			return -1
+		case order[p] > order[q]:
+			return 1
+		}
+		return 0
+	})
+	return ord
 }
 
 // flagOutliers runs the generalized ESD test on the residuals; outliers
