@@ -175,3 +175,25 @@ func FuzzParseFloat(f *testing.F) {
 		}
 	})
 }
+
+// TestEightDigits: the word-at-a-time reading of eight bytes against
+// strconv.ParseUint, on every byte pattern near the digits.
+func TestEightDigits(t *testing.T) {
+	r := rand.New(rand.NewPCG(8, 8))
+	const near = "0123456789/:+-.eE \x00\xb0\xff"
+	for range 1_000_000 {
+		b := make([]byte, 8)
+		for i := range b {
+			if r.IntN(4) == 0 {
+				b[i] = near[r.IntN(len(near))]
+			} else {
+				b[i] = byte('0' + r.IntN(10))
+			}
+		}
+		want, err := strconv.ParseUint(string(b), 10, 64)
+		got, ok := eightDigits(b)
+		if ok != (err == nil) || (ok && got != want) {
+			t.Fatalf("%q: %d, %v; strconv %d, %v", b, got, ok, want, err)
+		}
+	}
+}
