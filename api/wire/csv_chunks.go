@@ -69,7 +69,7 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 	if maxRows > 0 && total > maxRows {
 		return nil // the sequential reader names the row past the limit
 	}
-	d := &Dataset{csv: true, rows: make([]int, total)}
+	d := &Dataset{csv: true}
 	var cols [7][]float64
 	for k, s := range seen {
 		if s {
@@ -86,7 +86,7 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 		if failed.Load() {
 			return
 		}
-		n, ok := parseChunkRows(body[cuts[k]:cuts[k+1]], rs.line+lines[k], rs.comma, fields, d.rows, lines[k])
+		n, ok := parseChunkRows(body[cuts[k]:cuts[k+1]], rs.comma, fields, lines[k])
 		got[k] = n
 		if !ok {
 			failed.Store(true)
@@ -104,14 +104,13 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 					copy(c[n:], c[from:from+got[k]])
 				}
 			}
-			copy(d.rows[n:], d.rows[from:from+got[k]])
 		}
 		n += got[k]
 	}
 	if n == 0 {
 		return nil // the sequential reader says there are no data rows
 	}
-	d.rows = d.rows[:n:n]
+	d.rows, d.firstRow = dataLines(body, rs.line, n, total)
 	d.X, d.Y, d.SX, d.SY, d.R, d.Order = cut(cols[0], n), cut(cols[1], n), cut(cols[2], n), cut(cols[3], n), cut(cols[4], n), cut(cols[6], n)
 	return d
 }
@@ -171,35 +170,81 @@ func forChunks(n int, f func(k int)) {
 	wg.Wait()
 }
 
+// dataLines gives the lines of the n data rows of body, whose first line
+// is line+1: nil and the first row's line when they are consecutive (no
+// comment or blank line between them: the common case, in which no list
+// is made), else the list, found by skipping lines as parseChunkRows does.
+func dataLines(body []byte, line, n, lines int) ([]int, int) {
+	if n == lines {
+		return nil, line + 1 // every line a data row
+	}
+	var rows []int // made at the first gap after the first data row
+	first, k := 0, 0
+	for i := 0; i < len(body) && k < n; {
+		line++
+		if next, skip := skipLine(body, i); skip {
+			i = next
+			continue
+		}
+		if first == 0 {
+			first = line
+		}
+		if rows == nil && line != first+k {
+			rows = make([]int, k, n)
+			for r := range rows {
+				rows[r] = first + r
+			}
+		}
+		if rows != nil {
+			rows = append(rows, line)
+		}
+		k++
+		if j := bytes.IndexByte(body[i:], '\n'); j >= 0 {
+			i += j + 1
+		} else {
+			i = len(body)
+		}
+	}
+	if rows == nil {
+		return nil, first
+	}
+	return rows, 0
+}
+
+// skipLine says whether the line at b[i] is one records.next skips: empty
+// (after one trailing '\r') or a comment; next is the start of the line
+// after it.
+func skipLine(b []byte, i int) (next int, skip bool) {
+	switch c := b[i]; {
+	case c == '\n':
+		return i + 1, true
+	case c == '#':
+		if j := bytes.IndexByte(b[i:], '\n'); j >= 0 {
+			return i + j + 1, true
+		}
+		return len(b), true
+	case c == '\r' && (i+1 == len(b) || b[i+1] == '\n'):
+		return min(i+2, len(b)), true
+	}
+	return i, false
+}
+
 // csvSpace is the ASCII white space bytes.TrimSpace removes from a cell
 // (a line break ends the row instead).
 var csvSpace = [256]bool{' ': true, '\t': true, '\v': true, '\f': true, '\r': true}
 
-// parseChunkRows reads the rows of chunk b, whose first line is line+1,
-// into slots from..: fields[j][slot] for the j-th field, rows[slot] for
-// the line. It returns the number of rows read, and false at the first
+// parseChunkRows reads the rows of chunk b into slots from..:
+// fields[j][slot] for the j-th field (dataLines finds their lines). It
+// returns the number of rows read, and false at the first
 // line it cannot read without doubt (the sequential reader decides).
 // Lines are skipped as records.next skips them: empty (after one trailing
 // '\r') or starting with '#'.
-func parseChunkRows(b []byte, line int, comma byte, fields [][]float64, rows []int, from int) (int, bool) {
+func parseChunkRows(b []byte, comma byte, fields [][]float64, from int) (int, bool) {
 	i, n, slot := 0, len(b), from
 	last := len(fields) - 1
 	for i < n {
-		line++
-		switch c := b[i]; {
-		case c == '\n':
-			i++
-			continue
-		case c == '#':
-			j := bytes.IndexByte(b[i:], '\n')
-			if j < 0 {
-				i = n
-			} else {
-				i += j + 1
-			}
-			continue
-		case c == '\r' && (i+1 == n || b[i+1] == '\n'):
-			i += 2
+		if next, skip := skipLine(b, i); skip {
+			i = next
 			continue
 		}
 		for j, col := range fields {
@@ -225,7 +270,6 @@ func parseChunkRows(b []byte, line int, comma byte, fields [][]float64, rows []i
 			i++
 			col[slot] = v
 		}
-		rows[slot] = line
 		slot++
 	}
 	return slot - from, true
