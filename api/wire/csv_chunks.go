@@ -70,12 +70,16 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 		return nil // the sequential reader names the row past the limit
 	}
 	d := &Dataset{csv: true}
+	// The columns are made (and so zeroed) on as many goroutines as there
+	// are columns to share the cost.
 	var cols [7][]float64
+	var roles []int
 	for k, s := range seen {
 		if s {
-			cols[k] = make([]float64, total)
+			roles = append(roles, k)
 		}
 	}
+	forChunks(len(roles), func(j int) { cols[roles[j]] = make([]float64, total) })
 	fields := make([][]float64, len(lay.roles))
 	for j, k := range lay.roles {
 		fields[j] = cols[k]
@@ -227,6 +231,32 @@ func skipLine(b []byte, i int) (next int, skip bool) {
 		return min(i+2, len(b)), true
 	}
 	return i, false
+}
+
+// hasQuote says whether b holds a '"', looking at parts of a large body
+// in parallel.
+func hasQuote(b []byte) bool {
+	if len(b) < csvParallelBytes {
+		return bytes.IndexByte(b, '"') >= 0
+	}
+	cuts := chunkCutsAnywhere(len(b), csvChunkBytes)
+	var found atomic.Bool
+	forChunks(len(cuts)-1, func(k int) {
+		if !found.Load() && bytes.IndexByte(b[cuts[k]:cuts[k+1]], '"') >= 0 {
+			found.Store(true)
+		}
+	})
+	return found.Load()
+}
+
+// chunkCutsAnywhere splits n bytes into pieces of size bytes (the last
+// shorter): the offsets where they start, then n.
+func chunkCutsAnywhere(n, size int) []int {
+	cuts := make([]int, 0, n/size+2)
+	for start := 0; start < n; start += size {
+		cuts = append(cuts, start)
+	}
+	return append(cuts, n)
 }
 
 // csvSpace is the ASCII white space bytes.TrimSpace removes from a cell

@@ -227,3 +227,21 @@ func TestCSVChunksConsecutiveRows(t *testing.T) {
 		})
 	}
 }
+
+// TestHasQuote: a quote anywhere in a large body (at either side of a
+// part's edge, first, last) is found, and none is found where there is none.
+func TestHasQuote(t *testing.T) {
+	n := 3*csvChunkBytes + 12345
+	for _, at := range []int{-1, 0, 1, csvChunkBytes - 1, csvChunkBytes, 2*csvChunkBytes + 7, n - 1} {
+		b := bytes.Repeat([]byte("1,2\n"), n/4+1)[:n]
+		if at >= 0 {
+			b[at] = '"'
+		}
+		if got := hasQuote(b); got != (at >= 0) {
+			t.Errorf("quote at %d: hasQuote %v", at, got)
+		}
+		if got := hasQuote(b[:1000]); got != (at >= 0 && at < 1000) {
+			t.Errorf("quote at %d, first 1000 bytes: hasQuote %v", at, got)
+		}
+	}
+}

@@ -83,7 +83,7 @@ type records struct {
 
 func newRecords(body []byte, o *CSVOptions) *records {
 	r := &records{body: body, comma: o.comma()}
-	if bytes.IndexByte(body, '"') >= 0 {
+	if hasQuote(body) {
 		r.useStd()
 	}
 	return r
