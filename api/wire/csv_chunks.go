@@ -66,8 +66,11 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 		lines[k+1] += lines[k] // lines[k] is now chunk k's first slot
 	}
 	total := lines[chunks]
-	if maxRows > 0 && total > maxRows {
-		return nil // the sequential reader names the row past the limit
+	// Slots for a few comment or blank lines beyond the row limit; more
+	// lines than that go to the row-by-row reader, which counts the rows
+	// and names the one past the limit.
+	if maxRows > 0 && total > maxRows+maxRows/64+64 {
+		return nil
 	}
 	d := &Dataset{csv: true}
 	// The columns are made (and so zeroed) on as many goroutines as there
@@ -111,8 +114,8 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 		}
 		n += got[k]
 	}
-	if n == 0 {
-		return nil // the sequential reader says there are no data rows
+	if n == 0 || (maxRows > 0 && n > maxRows) {
+		return nil // the row-by-row reader names the fault
 	}
 	d.rows, d.firstRow = dataLines(body, rs.line, n, total)
 	d.X, d.Y, d.SX, d.SY, d.R, d.Order = cut(cols[0], n), cut(cols[1], n), cut(cols[2], n), cut(cols[3], n), cut(cols[4], n), cut(cols[6], n)

@@ -50,7 +50,7 @@ func pointRows(d *Dataset) string {
 
 // tookChunks says whether the chunk reader, not the row-by-row reader,
 // read body's rows (so that a differential case is not vacuous).
-func tookChunks(body []byte, o *CSVOptions, chunk int) bool {
+func tookChunks(body []byte, o *CSVOptions, chunk, maxRows int) bool {
 	rs := newRecords(bytes.TrimPrefix(body, []byte("\xef\xbb\xbf")), o)
 	rs.std, rs.chunk = nil, chunk
 	fields, line, err := rs.next()
@@ -67,7 +67,7 @@ func tookChunks(body []byte, o *CSVOptions, chunk int) bool {
 			seen[r] = true
 		}
 	}
-	return chunkFitRows(rs, lay, seen, 0, o) != nil
+	return chunkFitRows(rs, lay, seen, maxRows, o) != nil
 }
 
 // TestCSVChunksMatchRowByRow: valid and broken bodies, read in chunks cut
@@ -108,7 +108,8 @@ func TestCSVChunksMatchRowByRow(t *testing.T) {
 		{name: "header and comments", body: "x,y\n#a\n\n"},
 		{name: "too many rows", body: "x,y\n1,2\n2,3\n3,4\n4,5\n", max: 3},
 		{name: "rows at the limit", body: "x,y\n1,2\n2,3\n#\n3,4\n", max: 3, chunks: true},
-		{name: "comments past the limit", body: "x,y\n1,2\n#\n#\n2,3\n", max: 2},
+		{name: "comments past the limit", body: "x,y\n1,2\n#\n#\n2,3\n", max: 2, chunks: true},
+		{name: "rows past the limit among comments", body: "x,y\n1,2\n#\n#\n2,3\n3,4\n", max: 2},
 		{name: "id column", body: "x,y,id\n1,2,a\n2,3,b\n"},
 		{name: "r without sx", body: "x,y,r\n1,2,0.5\n2,3,0.5\n"},
 		{name: "quote in a comment", body: "x,y\n# \"q\n1,2\n"},
@@ -124,7 +125,7 @@ func TestCSVChunksMatchRowByRow(t *testing.T) {
 					t.Fatal(d)
 				}
 			}
-			if c.chunks && c.max == 0 && !tookChunks([]byte(c.body), c.o, 3) {
+			if c.chunks && !tookChunks([]byte(c.body), c.o, 3, c.max) {
 				t.Fatal("the chunk reader did not read this valid body")
 			}
 		})
@@ -167,7 +168,7 @@ func TestCSVChunksRandomBodies(t *testing.T) {
 		if _, err := decodeCSVChunked(body, 0, nil, -1); err == nil {
 			valid++
 			// A no-break space is trimmed by the row-by-row reader only.
-			if !tookChunks(body, nil, 7) && !bytes.Contains(body, []byte("\u00a0")) {
+			if !tookChunks(body, nil, 7, 0) && !bytes.Contains(body, []byte("\u00a0")) {
 				t.Fatalf("case %d: the chunk reader did not read a valid body: %q", iter, Truncate(string(body)))
 			}
 		}
