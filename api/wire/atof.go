@@ -46,56 +46,34 @@ func scanFloat(b []byte, i int) (v float64, end int, ok bool) {
 		neg = true
 		i++
 	}
+	// The digits, up to 19 of them exactly in mant (more wrap around,
+	// and such a number takes the slow path).
 	var mant uint64
-	slow := false
-	exp := 0
 	is := i
-	for i+8 <= n && mant <= (1<<53-1-99999999)/100000000 {
-		d, ok := eightDigits(b[i:])
-		if !ok {
-			break
-		}
-		mant = mant*100000000 + d
-		i += 8
+	for i < n && b[i]-'0' <= 9 {
+		mant = mant*10 + uint64(b[i]-'0')
+		i++
 	}
-	for ; i < n; i++ {
-		c := b[i] - '0'
-		if c > 9 {
-			break
-		}
-		if mant < 1<<53/10 { // then mant*10+9 < 2^53
-			mant = mant*10 + uint64(c)
-		} else {
-			slow = true
-		}
-	}
-	digits := i - is
+	digits, exp := i-is, 0
 	if i < n && b[i] == '.' {
 		i++
 		fs := i
-		for i+8 <= n && mant <= (1<<53-1-99999999)/100000000 {
+		for i+8 <= n {
 			d, ok := eightDigits(b[i:])
 			if !ok {
 				break
 			}
 			mant = mant*100000000 + d
-			exp -= 8
 			i += 8
 		}
-		for ; i < n; i++ {
-			c := b[i] - '0'
-			if c > 9 {
-				break
-			}
-			if mant < 1<<53/10 {
-				mant = mant*10 + uint64(c)
-				exp--
-			} else {
-				slow = true
-			}
+		for i < n && b[i]-'0' <= 9 {
+			mant = mant*10 + uint64(b[i]-'0')
+			i++
 		}
 		digits += i - fs
+		exp = fs - i
 	}
+	slow := digits > 19 || mant >= 1<<53
 	if digits == 0 { // "", "-", ".", "Inf", "NaN"
 		return 0, i, false
 	}
