@@ -73,8 +73,8 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 		return nil
 	}
 	d := &Dataset{csv: true}
-	// The columns are made (and so zeroed) on as many goroutines as there
-	// are columns to share the cost.
+	// The columns are made (and so zeroed) on up to GOMAXPROCS goroutines,
+	// which share the cost of zeroing them.
 	var cols [7][]float64
 	var roles []int
 	for k, s := range seen {
