@@ -11,6 +11,7 @@ import (
 	"net/http"
 	"net/url"
 	"os"
+	"runtime"
 	"slices"
 	"strings"
 	"time"
@@ -97,6 +98,9 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 	}
 	defer release()
 	raw := body.Bytes()
+	if len(raw) >= collectAfterBytes {
+		defer func() { go runtime.GC() }()
+	}
 	var in io.Reader = body
 	q, err := wire.ParseQuery(c.Request.URL.RawQuery)
 	if err != nil {
@@ -148,6 +152,14 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 	c.Data(http.StatusOK, "application/json", a.json)
 	a.enc.Free() // written: the connection's buffer holds a copy
 }
+
+// collectAfterBytes is the body size after whose request the garbage is
+// collected at once: with the GC target at 400 % a large request's body,
+// columns and work arrays would otherwise stay resident until the heap had
+// grown several times over, and each further large request would add its
+// own (measured: 110, 190, 270 MB after three 48 MB CSV fits; with the
+// collection 110 MB each). A client must send the whole body to cause one.
+const collectAfterBytes = 8 << 20
 
 // open is every body-taking handler's opening: the media type ("json",
 // "csv"), then the body within its limits and the memory budget. kind is

@@ -61,8 +61,14 @@ func DecodeCSVGroups(r io.Reader, o *CSVOptions) ([]CSVGroup, error) {
 // decodeCSVPlain and decodeCSVReader read one dataset by the plain scan
 // and by encoding/csv: the two paths FuzzCSVDifferential holds together.
 func decodeCSVPlain(body []byte, maxRows int, o *CSVOptions) (*Dataset, error) {
+	return decodeCSVChunked(body, maxRows, o, 0)
+}
+
+// decodeCSVChunked reads one dataset by the plain scan with the parallel
+// row reader's chunks of the given size (negative: row by row).
+func decodeCSVChunked(body []byte, maxRows int, o *CSVOptions, chunk int) (*Dataset, error) {
 	rs := newRecords(body, o)
-	rs.std = nil
+	rs.std, rs.chunk = nil, chunk
 	return firstGroup(decodeFitCSV(rs, maxRows, o))
 }
 
@@ -198,6 +204,9 @@ func decodeFitCSV(rs *records, maxRows int, o *CSVOptions) ([]CSVGroup, error) {
 	var skipped map[*Dataset][]SkippedRow
 	groups := []CSVGroup{}
 	index := map[string]int{}
+	if d := chunkFitRows(rs, lay, seen, maxRows, o); d != nil {
+		return finishFitCSV(append(groups, CSVGroup{Data: d}), lay, nil)
+	}
 	var d *Dataset
 	if lay.group < 0 {
 		d = newCSVDataset(seen, min(rs.linesLeft(), capLimit(maxRows)))
@@ -310,6 +319,11 @@ func decodeFitCSV(rs *records, maxRows int, o *CSVOptions) ([]CSVGroup, error) {
 	if len(groups) == 0 {
 		return nil, Invalid(fmt.Sprintf("row %d", lay.line), "the file has a header but no data rows")
 	}
+	return finishFitCSV(groups, lay, skipped)
+}
+
+// finishFitCSV checks each group's columns and notes how the file was read.
+func finishFitCSV(groups []CSVGroup, lay *layout, skipped map[*Dataset][]SkippedRow) ([]CSVGroup, error) {
 	cols := lay.columns(csvColumns)
 	for i := range groups {
 		d := groups[i].Data

@@ -20,8 +20,11 @@ type Dataset struct {
 	// column given at some points but not others can be reported.
 	hasSX, hasSY, hasR, hasOrder []bool
 	// rows maps a point to its CSV line number (1-based; nil for JSON).
-	rows []int
-	csv  bool
+	// When the points sit on consecutive lines rows is nil and point i is
+	// on line firstRow+i (firstRow > 0).
+	rows     []int
+	firstRow int
+	csv      bool
 	// input says how a CSV export was read; xUnit and yUnit are the units
 	// its header or units row gave x and y.
 	input        *InputOut
@@ -39,7 +42,7 @@ func (d *Dataset) locate(i int, field string) string {
 
 func (d *Dataset) source(methods []string) *Source {
 	if d.csv {
-		return &Source{Form: FormCSV, Root: "/points", Rows: d.rows, Methods: methods}
+		return &Source{Form: FormCSV, Root: "/points", Rows: d.rows, Methods: methods, firstRow: d.firstRow, points: d.Len()}
 	}
 	return &Source{Form: FormJSON, Root: "/points", Methods: methods}
 }

@@ -43,6 +43,18 @@ func BenchmarkDecode(b *testing.B) {
 				}
 			}
 		})
+		// csv-body is the CSV as the server and the command line hand it
+		// over: a *Body read once, taken without a copy.
+		b.Run(fmt.Sprintf("csv-body/n=%d", n), func(b *testing.B) {
+			b.ReportAllocs()
+			b.SetBytes(int64(len(c)))
+			for b.Loop() {
+				d, err := DecodeCSV(NewBody(c, nil))
+				if err != nil || d.Len() != n {
+					b.Fatal(err)
+				}
+			}
+		})
 		b.Run(fmt.Sprintf("json/n=%d", n), func(b *testing.B) {
 			b.ReportAllocs()
 			b.SetBytes(int64(len(j)))

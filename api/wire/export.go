@@ -76,11 +76,14 @@ type records struct {
 	std    *csv.Reader
 	fields [][]byte
 	line   int
+	// chunk is the chunk size in bytes of the parallel row reader
+	// (csv_chunks.go): 0 for the default, negative to read row by row.
+	chunk int
 }
 
 func newRecords(body []byte, o *CSVOptions) *records {
 	r := &records{body: body, comma: o.comma()}
-	if bytes.IndexByte(body, '"') >= 0 {
+	if hasQuote(body) {
 		r.useStd()
 	}
 	return r

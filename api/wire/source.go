@@ -30,6 +30,9 @@ type Source struct {
 	Root string
 	// Rows holds the CSV line of each data point.
 	Rows []int
+	// firstRow, when Rows is nil, is the line of the first of points data
+	// points on consecutive lines.
+	firstRow, points int
 	// Methods are the methods the request listed (nil: the defaults).
 	Methods []string
 	// paths, when set, locates errors whose fields are slash paths into
@@ -100,13 +103,19 @@ func (s *Source) point(i int, field string) string {
 		}
 		return fmt.Sprintf("%s/%d/%s", s.Root, i, field)
 	}
-	if i < 0 || i >= len(s.Rows) {
+	var row int
+	switch {
+	case i >= 0 && i < len(s.Rows):
+		row = s.Rows[i]
+	case s.Rows == nil && s.firstRow > 0 && i >= 0 && i < s.points:
+		row = s.firstRow + i
+	default:
 		return "body"
 	}
 	if field == "" {
-		return fmt.Sprintf("row %d", s.Rows[i])
+		return fmt.Sprintf("row %d", row)
 	}
-	return fmt.Sprintf("row %d, column %s", s.Rows[i], field)
+	return fmt.Sprintf("row %d, column %s", row, field)
 }
 
 // option names an option (a slash path such as bootstrap/resamples) and,

@@ -196,17 +196,57 @@ func parseFileArgs(fs *flag.FlagSet, args []string, cmd string, format *string, 
 	return files[0], false, nil
 }
 
-// openInput opens FILE, "-" meaning stdin; the caller closes it.
+// openInput reads FILE, "-" meaning stdin, whole into memory: a file into
+// one buffer of its size, read once, which the decoders take without
+// copying (a *wire.Body). Closing it does nothing.
 func openInput(name string, stdin io.Reader, cmd string, stderr io.Writer) (io.ReadCloser, string, error) {
 	if name == "-" {
-		return io.NopCloser(stdin), "standard input", nil
+		b, err := io.ReadAll(stdin)
+		if err != nil {
+			fmt.Fprintf(stderr, "eivfit %s: standard input: %v\n", cmd, err)
+			return nil, "", exitError{2}
+		}
+		return wire.NewBody(b, nil), "standard input", nil
 	}
-	f, err := os.Open(name)
+	b, err := readInputFile(name)
 	if err != nil {
 		fmt.Fprintf(stderr, "eivfit %s: %v\n", cmd, err)
 		return nil, "", exitError{2}
 	}
-	return f, name, nil
+	return wire.NewBody(b, nil), name, nil
+}
+
+// readInputFile reads a file into a buffer of the size it states, growing it
+// only if the file grew meanwhile (or states no size, as a pipe).
+func readInputFile(name string) ([]byte, error) {
+	f, err := os.Open(name)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return nil, err
+	}
+	if st.IsDir() {
+		return nil, fmt.Errorf("%s is a directory, not a file", name)
+	}
+	size := st.Size()
+	if !st.Mode().IsRegular() || size <= 0 || size >= 1<<40 {
+		return io.ReadAll(f)
+	}
+	b := make([]byte, size, size+1) // one spare byte finds growth at once
+	if _, err := io.ReadFull(f, b); err != nil {
+		if errors.Is(err, io.ErrUnexpectedEOF) {
+			return nil, fmt.Errorf("%s shrank while it was read", name)
+		}
+		return nil, err
+	}
+	rest, err := io.ReadAll(f)
+	if err != nil {
+		return nil, err
+	}
+	return append(b, rest...), nil
 }
 
 // writeOutput prints the answer as text, indented JSON or JSON; a number
