@@ -53,6 +53,9 @@ type pointParser struct {
 	pos int
 	d   *Dataset
 	lim Limits // zero fields: no limit
+	// chunk overrides the size and count of the chunks a large points
+	// array is read in (json_chunks.go); zero: the defaults.
+	chunk chunkPlan
 }
 
 func (p *pointParser) fail(ptr, format string, a ...any) error {

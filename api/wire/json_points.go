@@ -2,6 +2,7 @@ package wire
 
 import (
 	"bytes"
+	"encoding/binary"
 	"fmt"
 	"math/bits"
 	"strconv"
@@ -48,6 +49,18 @@ type pointCols struct {
 	miss [4]int
 	id   []string
 	some bool // an optional column or an id has been given
+	// shared holds the optional columns when the array is read in chunks
+	// (json_chunks.go); this one's slots start at off.
+	shared *sharedCols
+	off    int
+}
+
+// newColumn is optional column k, created at point i with zeros before it.
+func (c *pointCols) newColumn(k, i int) []float64 {
+	if c.shared == nil {
+		return make([]float64, i, cap(c.x))
+	}
+	return c.shared.column(k)[c.off : c.off+i : c.off+cap(c.x)]
 }
 
 func newPointCols(hint int) *pointCols {
@@ -77,7 +90,7 @@ func (c *pointCols) addOptional(i int, v *[6]float64, id string, seen int) {
 		case !given:
 			continue
 		default:
-			c.opt[k] = make([]float64, i, cap(c.x))
+			c.opt[k] = c.newColumn(k, i)
 			if i > 0 {
 				c.miss[k] = 0
 			}
@@ -85,7 +98,11 @@ func (c *pointCols) addOptional(i int, v *[6]float64, id string, seen int) {
 		c.opt[k] = append(c.opt[k], v[2+k])
 	}
 	if id != "" && c.id == nil {
-		c.id = make([]string, i, cap(c.x))
+		if c.shared == nil {
+			c.id = make([]string, i, cap(c.x))
+		} else {
+			c.id = c.shared.ids()[c.off : c.off+i : c.off+cap(c.x)]
+		}
 	}
 	if c.id != nil {
 		c.id = append(c.id, id)
@@ -126,6 +143,15 @@ func (p *pointParser) parse() error {
 		return p.fail("/points", "points must be an array of objects")
 	}
 	p.pos++
+	p.ws()
+	if p.pos < len(p.b) && p.b[p.pos] == ']' {
+		p.pos++
+		p.d.X, p.d.Y = []float64{}, []float64{}
+		return nil
+	}
+	if done, err := p.parseChunks(); done {
+		return err
+	}
 	// One '{' per point: counting them (a fast byte scan) sizes the columns
 	// exactly, so they are allocated once.
 	hint := bytes.Count(p.b[p.pos:], []byte{'{'})
@@ -133,12 +159,6 @@ func (p *pointParser) parse() error {
 		hint = min(hint, p.lim.MaxPoints)
 	}
 	c := newPointCols(hint)
-	p.ws()
-	if p.pos < len(p.b) && p.b[p.pos] == ']' {
-		p.pos++
-		p.d.X, p.d.Y = c.x, c.y
-		return nil
-	}
 	for i := 0; ; i++ {
 		if p.lim.MaxPoints > 0 && i >= p.lim.MaxPoints {
 			return tooMany("/points", p.lim.MaxPoints, "points per dataset", KindTooLarge)
@@ -400,15 +420,82 @@ func numberEnd(b []byte, j int) int {
 // num reads a JSON number at pos. ok is false, consuming nothing, when there
 // is no number; err is set for a number outside the double range.
 func (p *pointParser) num() (v float64, ok bool, err error) {
-	end := numberEnd(p.b, p.pos)
+	start := p.pos
+	v, end, inRange := jsonNumber(p.b, start)
 	if end < 0 {
 		return 0, false, nil
 	}
-	s := p.b[p.pos:end]
 	p.pos = end
-	v, ok = parseFloat(s)
-	if !ok {
-		return 0, true, numberError(s)
+	if !inRange {
+		return 0, true, numberError(p.b[start:end])
 	}
 	return v, true, nil
+}
+
+// jsonNumber reads the JSON number at b[j:] in one pass when it is plain:
+// at most 19 digits, a value below 2^53 before the point is placed, at
+// most 22 after the point, no exponent. Then it is Clinger's (1990) exact
+// case: an exact integer divided by an exact power of ten, one correctly
+// rounded IEEE division, so the value is parseFloat's bit for bit. Any
+// other number is delimited by numberEnd and read by parseFloat. end is
+// -1 when no number starts at j; ok is false for a number outside the
+// double range.
+func jsonNumber(b []byte, j int) (v float64, end int, ok bool) {
+	i, n := j, len(b)
+	neg := i < n && b[i] == '-'
+	if neg {
+		i++
+	}
+	k := i
+	i, mant := digitRun(b, i, 0)
+	intDigits := i - k
+	frac, dot := 0, i < n && b[i] == '.'
+	if dot {
+		f := i + 1
+		i, mant = digitRun(b, f, mant)
+		frac = i - f
+	}
+	plain := intDigits > 0 && (intDigits == 1 || b[k] != '0') && // no leading zero
+		(!dot || frac > 0) && intDigits+frac <= 19 && mant < 1<<53 && frac <= 22 &&
+		(i >= n || b[i]|0x20 != 'e')
+	if !plain {
+		end = numberEnd(b, j)
+		if end < 0 {
+			return 0, -1, false
+		}
+		v, ok = parseFloat(b[j:end])
+		return v, end, ok
+	}
+	v = float64(mant)
+	if frac > 0 {
+		v /= pow10[frac]
+	}
+	if neg {
+		v = -v
+	}
+	return v, i, true
+}
+
+// digitRun reads the decimal digits at b[i:] onto mant (mant·10 + digit
+// each; beyond 19 digits mant wraps, and the caller must not use it) and
+// returns where they end. Eight digits at a time are checked and combined
+// in a 64-bit word (Lemire, "Number parsing at a gigabyte per second",
+// Software: Practice and Experience 51(8), 2021, section 6).
+func digitRun(b []byte, i int, mant uint64) (int, uint64) {
+	for i+8 <= len(b) {
+		w := binary.LittleEndian.Uint64(b[i:])
+		if w&0xF0F0F0F0F0F0F0F0|(w+0x0606060606060606)&0xF0F0F0F0F0F0F0F0>>4 != 0x3333333333333333 {
+			break // not eight digits
+		}
+		w -= 0x3030303030303030
+		w = w*10 + w>>8 // bytes 0, 2, 4, 6 hold pairs of digits
+		// the four pairs as one number
+		w = ((w&0x000000FF000000FF)*(100+1000000<<32) + (w>>16&0x000000FF000000FF)*(1+10000<<32)) >> 32
+		mant = mant*100000000 + w
+		i += 8
+	}
+	for ; i < len(b) && b[i]-'0' < 10; i++ {
+		mant = mant*10 + uint64(b[i]-'0')
+	}
+	return i, mant
 }
