@@ -447,7 +447,10 @@ func jsonNumber(b []byte, j int) (v float64, end int, ok bool) {
 		i++
 	}
 	k := i
-	i, mant := digitRun(b, i, 0)
+	var mant uint64
+	for ; i < n && b[i]-'0' < 10; i++ { // most integer parts are short
+		mant = mant*10 + uint64(b[i]-'0')
+	}
 	intDigits := i - k
 	frac, dot := 0, i < n && b[i] == '.'
 	if dot {
@@ -476,7 +479,7 @@ func jsonNumber(b []byte, j int) (v float64, end int, ok bool) {
 	return v, i, true
 }
 
-// digitRun reads the decimal digits at b[i:] onto mant (mant·10 + digit
+// digitRun reads the decimal digits at b[i:] (a fraction) onto mant (mant·10 + digit
 // each; beyond 19 digits mant wraps, and the caller must not use it) and
 // returns where they end. Eight digits at a time are checked and combined
 // in a 64-bit word (Lemire, "Number parsing at a gigabyte per second",
