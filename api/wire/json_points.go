@@ -382,22 +382,11 @@ func numberEnd(b []byte, j int) int {
 	}
 	if b[j] == '0' {
 		j++
-	} else {
-		k := j
-		for j < n && b[j]-'0' < 10 {
-			j++
-		}
-		if j == k {
-			return -1
-		}
+	} else if j = digitsEnd(b, j); j < 0 {
+		return -1
 	}
 	if j < n && b[j] == '.' {
-		j++
-		k := j
-		for j < n && b[j]-'0' < 10 {
-			j++
-		}
-		if j == k {
+		if j = digitsEnd(b, j+1); j < 0 {
 			return -1
 		}
 	}
@@ -406,13 +395,20 @@ func numberEnd(b []byte, j int) int {
 		if j < n && (b[j] == '+' || b[j] == '-') {
 			j++
 		}
-		k := j
-		for j < n && b[j]-'0' < 10 {
-			j++
-		}
-		if j == k {
-			return -1
-		}
+		j = digitsEnd(b, j)
+	}
+	return j
+}
+
+// digitsEnd returns the end of the digits at b[j:], or -1 when there are
+// none.
+func digitsEnd(b []byte, j int) int {
+	k := j
+	for j < len(b) && b[j]-'0' < 10 {
+		j++
+	}
+	if j == k {
+		return -1
 	}
 	return j
 }
