@@ -10,8 +10,9 @@ import (
 
 // The points array is most of a large JSON body, so its reader is written
 // for speed: known keys are matched by their bytes, whitespace by a table,
-// numbers scanned in place and converted by parseFloat without a string,
-// and the columns are sized once from a count of '{' (one per point).
+// plain numbers converted in the pass that scans them (jsonNumber), the
+// columns sized once from a count of '{' (one per point), and a large
+// array read in chunks on every core (json_chunks.go).
 
 // isSpace marks the four JSON whitespace bytes.
 var isSpace = [256]bool{' ': true, '\t': true, '\n': true, '\r': true}
@@ -286,11 +287,13 @@ func (p *pointParser) point(i int, c *pointCols) error {
 			if bit == 0 {
 				return p.unknownKey(ptr.s(), kb, pointKeys)
 			}
-			given, err := p.pointValue(ptr, bit, seen, &v, &id)
-			if err != nil {
+			if x, end, ok := jsonNumber(p.b, p.pos); bit != fID && seen&bit == 0 && end >= 0 && ok {
+				v[bits.TrailingZeros(uint(bit))] = x // the common case, as pointValue reads it
+				p.pos = end
+				seen |= bit
+			} else if given, err := p.pointValue(ptr, bit, seen, &v, &id); err != nil {
 				return err
-			}
-			if given {
+			} else if given {
 				seen |= bit
 			}
 			p.ws()
