@@ -453,8 +453,17 @@ func jsonNumber(b []byte, j int) (v float64, end int, ok bool) {
 	intDigits := i - k
 	frac, dot := 0, i < n && b[i] == '.'
 	if dot {
-		f := i + 1
-		i, mant = digitRun(b, f, mant)
+		i++
+		f := i
+		if i+8 <= n { // eight digits at once, then one at a time
+			if d, ok := eightDigits(binary.LittleEndian.Uint64(b[i:])); ok {
+				mant = mant*100000000 + d
+				i += 8
+			}
+		}
+		for ; i < n && b[i]-'0' < 10; i++ {
+			mant = mant*10 + uint64(b[i]-'0')
+		}
 		frac = i - f
 	}
 	plain := intDigits > 0 && (intDigits == 1 || b[k] != '0') && // no leading zero
@@ -478,26 +487,15 @@ func jsonNumber(b []byte, j int) (v float64, end int, ok bool) {
 	return v, i, true
 }
 
-// digitRun reads the decimal digits at b[i:] (a fraction) onto mant (mant·10 + digit
-// each; beyond 19 digits mant wraps, and the caller must not use it) and
-// returns where they end. Eight digits at a time are checked and combined
-// in a 64-bit word (Lemire, "Number parsing at a gigabyte per second",
-// Software: Practice and Experience 51(8), 2021, section 6).
-func digitRun(b []byte, i int, mant uint64) (int, uint64) {
-	for i+8 <= len(b) {
-		w := binary.LittleEndian.Uint64(b[i:])
-		if w&0xF0F0F0F0F0F0F0F0|(w+0x0606060606060606)&0xF0F0F0F0F0F0F0F0>>4 != 0x3333333333333333 {
-			break // not eight digits
-		}
-		w -= 0x3030303030303030
-		w = w*10 + w>>8 // bytes 0, 2, 4, 6 hold pairs of digits
-		// the four pairs as one number
-		w = ((w&0x000000FF000000FF)*(100+1000000<<32) + (w>>16&0x000000FF000000FF)*(1+10000<<32)) >> 32
-		mant = mant*100000000 + w
-		i += 8
+// eightDigits reads eight little-endian bytes as eight decimal digits,
+// checked and combined in one 64-bit word (Lemire, "Number parsing at a
+// gigabyte per second", Software: Practice and Experience 51(8), 2021,
+// section 6); ok is false unless all eight are digits.
+func eightDigits(w uint64) (uint64, bool) {
+	if w&0xF0F0F0F0F0F0F0F0|(w+0x0606060606060606)&0xF0F0F0F0F0F0F0F0>>4 != 0x3333333333333333 {
+		return 0, false
 	}
-	for ; i < len(b) && b[i]-'0' < 10; i++ {
-		mant = mant*10 + uint64(b[i]-'0')
-	}
-	return i, mant
+	w -= 0x3030303030303030
+	w = w*10 + w>>8 // bytes 0, 2, 4, 6 hold pairs of digits
+	return ((w&0x000000FF000000FF)*(100+1000000<<32) + (w>>16&0x000000FF000000FF)*(1+10000<<32)) >> 32, true
 }
