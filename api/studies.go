@@ -44,7 +44,6 @@ type recordSpec[Req, Res any] struct {
 type saving struct {
 	wire.Record
 	raw         []byte
-	sha         string
 	contentType string
 	query       string
 }
@@ -56,8 +55,9 @@ func (sv *saving) input() report.Input {
 }
 
 // takeRecord takes save, label and tags out of the request. A request that
-// may save is read whole (every JSON body, a CSV body with save=true), so
-// that the bytes as received can be stored; rec is nil otherwise. A save
+// may save is read whole (every JSON body, without a copy when it is a
+// *wire.Body; a CSV body with save=true), so that the bytes as received
+// can be stored; rec is nil unless the request saves. A save
 // is refused before anything is computed when the body is larger than
 // MaxStoredBytes or the store is down.
 func (s *Server) takeRecord(c *gin.Context, kind string, body io.Reader, q url.Values) (*saving, io.Reader, url.Values, *wire.Problem) {
@@ -71,8 +71,10 @@ func (s *Server) takeRecord(c *gin.Context, kind string, body io.Reader, q url.V
 		}
 		return nil, body, rest, nil
 	}
-	raw, err := io.ReadAll(body)
-	if err != nil {
+	var raw []byte
+	if b, ok := body.(*wire.Body); ok && kind == "json" && b.Len() == len(b.Bytes()) {
+		raw = b.Bytes() // unread, and JSON decoding never writes to it: no copy
+	} else if raw, err = io.ReadAll(body); err != nil {
 		return nil, nil, nil, s.problemFor(c, err)
 	}
 	dec := raw
@@ -95,18 +97,17 @@ func (s *Server) takeRecord(c *gin.Context, kind string, body io.Reader, q url.V
 	if err := rec.Check(kind == "json"); err != nil {
 		return nil, nil, nil, s.problemFor(c, err)
 	}
-	sum := sha256.Sum256(raw)
-	sv := &saving{Record: rec, raw: raw, sha: hex.EncodeToString(sum[:]),
-		contentType: c.GetHeader("Content-Type"), query: c.Request.URL.RawQuery}
-	if rec.Save {
-		if int64(len(raw)) > s.cfg.MaxStoredBytes {
-			return nil, nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf(
-				"the body (%d bytes) exceeds this server's limit of %d bytes for a saved study; nothing was saved", len(raw), s.cfg.MaxStoredBytes))
-		}
-		if _, err := s.store.get(); err != nil {
-			return nil, nil, nil, s.problemFor(c, err)
-		}
+	if !rec.Save { // nothing to keep: the body need not outlive its decoding
+		return nil, wire.NewBody(dec, &s.limits), rest, nil
 	}
+	if int64(len(raw)) > s.cfg.MaxStoredBytes {
+		return nil, nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf(
+			"the body (%d bytes) exceeds this server's limit of %d bytes for a saved study; nothing was saved", len(raw), s.cfg.MaxStoredBytes))
+	}
+	if _, err := s.store.get(); err != nil {
+		return nil, nil, nil, s.problemFor(c, err)
+	}
+	sv := &saving{Record: rec, raw: raw, contentType: c.GetHeader("Content-Type"), query: c.Request.URL.RawQuery}
 	return sv, wire.NewBody(dec, &s.limits), rest, nil
 }
 
