@@ -11,7 +11,7 @@ import (
 var sinkFit *eiv.Fit
 
 func BenchmarkYork(b *testing.B) {
-	for _, n := range []int{100, 10_000, 1_000_000} {
+	for _, n := range []int{100, 10_000, 30_000, 100_000, 1_000_000} {
 		d := randomData(1, n, false)
 		b.Run(fmt.Sprintf("n=%d", n), func(b *testing.B) {
 			b.ReportAllocs()
@@ -23,6 +23,31 @@ func BenchmarkYork(b *testing.B) {
 				sinkFit = f
 			}
 		})
+	}
+}
+
+// BenchmarkYorkJackknife times a small York fit with its leave-one-out
+// standard errors (n = 40 is the service's small-fit case), with and
+// without correlated errors.
+func BenchmarkYorkJackknife(b *testing.B) {
+	for _, n := range []int{40, 400} {
+		for _, corr := range []bool{false, true} {
+			d := randomData(3, n, corr)
+			var r []float64
+			if corr {
+				r = d.r
+			}
+			b.Run(fmt.Sprintf("n=%d/corr=%v", n, corr), func(b *testing.B) {
+				b.ReportAllocs()
+				for b.Loop() {
+					f, err := eiv.York(d.x, d.y, d.sx, d.sy, r, &eiv.YorkOptions{Jackknife: true})
+					if err != nil || f.Jackknife == nil {
+						b.Fatal(err)
+					}
+					sinkFit = f
+				}
+			})
+		}
 	}
 }
 

@@ -360,19 +360,9 @@ const yorkHardRatio = 1.0 / 16
 // the data are of ordinary scale and hard.
 func yorkStart(x, y, sx, sy []float64) (st yorkStartInfo) {
 	n := len(x)
-	y, sx, sy = y[:n], sx[:n], sy[:n]
 	x0, y0 := x[0], y[0]
-	var s1, s2, sxx, syy, sxy, vx, vy float64
-	for i := range n {
-		dx, dy := x[i]-x0, y[i]-y0
-		s1 += dx
-		s2 += dy
-		sxx += dx * dx
-		syy += dy * dy
-		sxy += dx * dy
-		vx += sx[i] * sx[i]
-		vy += sy[i] * sy[i]
-	}
+	ss := startAll(x, y, sx, sy, x0, y0)
+	s1, s2, sxx, syy, sxy, vx, vy := ss.s1, ss.s2, ss.sxx, ss.syy, ss.sxy, ss.vx, ss.vy
 	fn := float64(n)
 	mx, my := s1/fn, s2/fn
 	sxx, syy, sxy = sxx-s1*mx, syy-s2*my, sxy-s1*my
@@ -395,6 +385,38 @@ func yorkStart(x, y, sx, sy []float64) (st yorkStartInfo) {
 		st.kappa = k
 	}
 	return st
+}
+
+// startSums are the sums of the start pass about (x0, y0).
+type startSums struct{ s1, s2, sxx, syy, sxy, vx, vy float64 }
+
+func (s startSums) plus(o startSums) startSums {
+	return startSums{s.s1 + o.s1, s.s2 + o.s2, s.sxx + o.sxx, s.syy + o.syy, s.sxy + o.sxy, s.vx + o.vx, s.vy + o.vy}
+}
+
+func startAll(x, y, sx, sy []float64, x0, y0 float64) startSums {
+	if len(x) < yorkParallelMinN {
+		return startPart(x, y, sx, sy, x0, y0)
+	}
+	s, _ := chunkedSum(len(x), func(lo, hi int) (startSums, error) {
+		return startPart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], x0, y0), nil
+	}, startSums.plus)
+	return s
+}
+
+func startPart(x, y, sx, sy []float64, x0, y0 float64) (s startSums) {
+	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
+	for i := range x {
+		dx, dy := x[i]-x0, y[i]-y0
+		s.s1 += dx
+		s.s2 += dy
+		s.sxx += dx * dx
+		s.syy += dy * dy
+		s.sxy += dx * dy
+		s.vx += sx[i] * sx[i]
+		s.vy += sy[i] * sy[i]
+	}
+	return s
 }
 
 // ordinaryScale says whether an axis with Σσ² = v and Σ(v − v̄)² = s has a
@@ -527,10 +549,8 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 		var err error
 		if yk.skipping {
 			s, err = yk.passSkipping(x, y, sx, sy, r, cx, cy, b)
-		} else if r == nil {
-			s, err = yorkPass(x, y, sx, sy, cx, cy, b)
 		} else {
-			s, err = yorkPassR(x, y, sx, sy, r, cx, cy, b)
+			s, err = yorkPassAll(x, y, sx, sy, r, cx, cy, b)
 		}
 		if err != nil {
 			return yorkLine{iter: iter}, err
@@ -587,6 +607,22 @@ type yorkSums struct {
 func (s yorkSums) plus(o yorkSums) yorkSums {
 	return yorkSums{s.w + o.w, s.wx + o.wx, s.wy + o.wy, s.num + o.num, s.den + o.den,
 		s.a + o.a, s.aX + o.aX, s.aY + o.aY, s.g + o.g, s.gX + o.gX, s.gY + o.gY}
+}
+
+// yorkPassAll is one pass over every point (chunked for large n).
+func yorkPassAll(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkSums, error) {
+	if len(x) < yorkParallelMinN {
+		if r == nil {
+			return yorkPass(x, y, sx, sy, cx, cy, b)
+		}
+		return yorkPassR(x, y, sx, sy, r, cx, cy, b)
+	}
+	return chunkedSum(len(x), func(lo, hi int) (yorkSums, error) {
+		if r == nil {
+			return yorkPass(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], cx, cy, b)
+		}
+		return yorkPassR(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], r[lo:hi], cx, cy, b)
+	}, yorkSums.plus)
 }
 
 // passSkipping is one pass over the data without point yk.skip: the sums
@@ -835,7 +871,7 @@ func (yk *york) profile(x, y, sx, sy, r []float64, cx, cy, kappa, phi float64) y
 		p = profilePart(x[:k], y[:k], sx[:k], sy[:k], rPart(r, 0, k), cx, cy, dir).
 			plus(profilePart(x[k+1:], y[k+1:], sx[k+1:], sy[k+1:], rPart(r, k+1, len(x)), cx, cy, dir))
 	} else {
-		p = profilePart(x, y, sx, sy, r, cx, cy, dir)
+		p = profileAll(x, y, sx, sy, r, cx, cy, dir)
 	}
 	if !(p.w > 0) || math.IsInf(p.w, 0) {
 		return yorkProfile{s: math.Inf(1), ds: math.NaN()}
@@ -856,6 +892,16 @@ func rPart(r []float64, lo, hi int) []float64 {
 		return nil
 	}
 	return r[lo:hi]
+}
+
+func profileAll(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) profileSums {
+	if len(x) < yorkParallelMinN {
+		return profilePart(x, y, sx, sy, r, cx, cy, dir)
+	}
+	p, _ := chunkedSum(len(x), func(lo, hi int) (profileSums, error) {
+		return profilePart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], rPart(r, lo, hi), cx, cy, dir), nil
+	}, profileSums.plus)
+	return p
 }
 
 func profilePart(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) (p profileSums) {
@@ -901,6 +947,37 @@ func profilePart(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) (p prof
 //	Σ W(x_adj − x̄_adj)² = ΣWβ² − (ΣWβ)²/ΣW,  x̄_adj = c_x + δu + ΣWβ/ΣW
 func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 	b, cx, cy := ln.b, ln.cx, ln.cy
+	cs := closingAll(x, y, sx, sy, r, b, cx, cy)
+	sw, su, sv, sb, sbb, sr := cs.sw, cs.su, cs.sv, cs.sb, cs.sbb, cs.sr
+	du, dv := su/sw, sv/sw
+	mx, my := cx+du, cy+dv
+	s := sr - sw*(dv-b*du)*(dv-b*du)
+	xbar := mx + sb/sw
+	swuu := sbb - sb*sb/sw
+	varB := 1 / swuu
+	varA := 1/sw + xbar*xbar*varB
+	return yorkResult{a: my - b*mx, b: b, seA: math.Sqrt(varA), seB: math.Sqrt(varB),
+		cov: -xbar * varB, s: math.Max(s, 0), xbar: xbar, ycentre: my + b*(xbar-mx), seCentre: math.Sqrt(1 / sw)}
+}
+
+// closingSums are the sums of the closing pass.
+type closingSums struct{ sw, su, sv, sb, sbb, sr float64 }
+
+func (s closingSums) plus(o closingSums) closingSums {
+	return closingSums{s.sw + o.sw, s.su + o.su, s.sv + o.sv, s.sb + o.sb, s.sbb + o.sbb, s.sr + o.sr}
+}
+
+func closingAll(x, y, sx, sy, r []float64, b, cx, cy float64) closingSums {
+	if len(x) < yorkParallelMinN {
+		return closingPart(x, y, sx, sy, r, b, cx, cy)
+	}
+	s, _ := chunkedSum(len(x), func(lo, hi int) (closingSums, error) {
+		return closingPart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], rPart(r, lo, hi), b, cx, cy), nil
+	}, closingSums.plus)
+	return s
+}
+
+func closingPart(x, y, sx, sy, r []float64, b, cx, cy float64) closingSums {
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
 	var sw, su, sv, sb, sbb, sr float64
 	for i := range x {
@@ -920,15 +997,7 @@ func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 		sbb += w * beta * beta
 		sr += w * e * e
 	}
-	du, dv := su/sw, sv/sw
-	mx, my := cx+du, cy+dv
-	s := sr - sw*(dv-b*du)*(dv-b*du)
-	xbar := mx + sb/sw
-	swuu := sbb - sb*sb/sw
-	varB := 1 / swuu
-	varA := 1/sw + xbar*xbar*varB
-	return yorkResult{a: my - b*mx, b: b, seA: math.Sqrt(varA), seB: math.Sqrt(varB),
-		cov: -xbar * varB, s: math.Max(s, 0), xbar: xbar, ycentre: my + b*(xbar-mx), seCentre: math.Sqrt(1 / sw)}
+	return closingSums{sw, su, sv, sb, sbb, sr}
 }
 
 // curvature is d²S/db² at York's slope, from one pass: the Schur
@@ -941,6 +1010,28 @@ func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 // (cx, cy), York's last pass's, whose remaining shift is negligible for a sign).
 func curvature(x, y, sx, sy, r []float64, ln yorkLine) float64 {
 	b, cx, cy := ln.b, ln.cx, ln.cy
+	c := curvatureAll(x, y, sx, sy, r, b, cx, cy)
+	return c.c2 + 8*c.cu + 2*(c.suu-c.su*c.su/c.sw) - 8*c.ce*c.ce/c.sw
+}
+
+// curvatureSums are the sums of the curvature pass.
+type curvatureSums struct{ sw, su, suu, c2, cu, ce float64 }
+
+func (s curvatureSums) plus(o curvatureSums) curvatureSums {
+	return curvatureSums{s.sw + o.sw, s.su + o.su, s.suu + o.suu, s.c2 + o.c2, s.cu + o.cu, s.ce + o.ce}
+}
+
+func curvatureAll(x, y, sx, sy, r []float64, b, cx, cy float64) curvatureSums {
+	if len(x) < yorkParallelMinN {
+		return curvaturePart(x, y, sx, sy, r, b, cx, cy)
+	}
+	s, _ := chunkedSum(len(x), func(lo, hi int) (curvatureSums, error) {
+		return curvaturePart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], rPart(r, lo, hi), b, cx, cy), nil
+	}, curvatureSums.plus)
+	return s
+}
+
+func curvaturePart(x, y, sx, sy, r []float64, b, cx, cy float64) curvatureSums {
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
 	var sw, su, suu, c2, cu, ce float64
 	for i := range x {
@@ -961,7 +1052,7 @@ func curvature(x, y, sx, sy, r []float64, ln yorkLine) float64 {
 		cu += g * e * u
 		ce += g * e
 	}
-	return c2 + 8*cu + 2*(suu-su*su/sw) - 8*ce*ce/sw
+	return curvatureSums{sw, su, suu, c2, cu, ce}
 }
 
 func yorkBeta(u, v, b, sx, sy, r float64) float64 {
