@@ -555,10 +555,7 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 		if err != nil {
 			return yorkLine{iter: iter}, err
 		}
-		dx, dy := s.wx/s.w, s.wy/s.w
-		num := s.num - dy*s.aX - dx*s.aY + dx*dy*s.a - 2*dy*s.gY + dy*dy*s.g
-		den := s.den - 2*dx*s.aX + dx*dx*s.a - dy*s.gX - dx*s.gY + dx*dy*s.g
-		nb := num / den
+		nb, dx, dy, den := s.step()
 		if !allFinite(nb) {
 			return yorkLine{iter: iter}, fmt.Errorf("%w: the York iteration left the finite range", ErrDegenerate)
 		}
@@ -601,6 +598,16 @@ type yorkSums struct {
 	num, den  float64 // ΣW²(αX′Y′ + γY′²), ΣW²(αX′² + γX′Y′)
 	a, aX, aY float64 // ΣW²α, ΣW²αX′, ΣW²αY′
 	g, gX, gY float64 // ΣW²γ, ΣW²γX′, ΣW²γY′
+}
+
+// step is York's map from the sums of a pass about (cx, cy): the new
+// slope ΣWβV/ΣWβU, the shift (dx, dy) of the weighted centroid and ΣWβU
+// (see iterate).
+func (s yorkSums) step() (nb, dx, dy, den float64) {
+	dx, dy = s.wx/s.w, s.wy/s.w
+	num := s.num - dy*s.aX - dx*s.aY + dx*dy*s.a - 2*dy*s.gY + dy*dy*s.g
+	den = s.den - 2*dx*s.aX + dx*dx*s.a - dy*s.gX - dx*s.gY + dx*dy*s.g
+	return num / den, dx, dy, den
 }
 
 // plus adds the sums of two parts of the data.
@@ -1067,8 +1074,10 @@ func rAt(r []float64, i int) float64 {
 }
 
 // jackknife refits York without each point in turn, warm-started at the
-// full fit's centroid and slope b (on the data York fitted, rescaled or
-// not); hard data get the global search in every refit.
+// full fit's centroid and, on ordinary data, at the slope jackStarts
+// predicts for each refit (else at the full fit's slope b), on the data
+// York fitted, rescaled or not; hard data get the global search in every
+// refit.
 //
 // The leave-one-out fits stop at a relative slope change of 1e-12: the
 // jackknife's spread is of the order of the SE, many orders above that.
@@ -1078,8 +1087,14 @@ func (yk *york) jackknife(x, y, sx, sy, r []float64, b float64, st0 yorkStartInf
 	as = make([]float64, n)
 	bs = make([]float64, n)
 	st := yorkStartInfo{cx: yk.cx, cy: yk.cy, b: b, hard: st0.hard, kappa: st0.kappa}
+	// Ordinary data: each refit starts at its slope predicted from the
+	// full data's sums (bs holds the starts until it is overwritten).
+	predicted := !st0.hard && jackStarts(x, y, sx, sy, r, yk.cx, yk.cy, b, bs)
 	for i := range n {
 		jk.skip = i
+		if predicted {
+			st.b = bs[i]
+		}
 		ai, bi, _, err := jk.slopeLine(x, y, sx, sy, r, st)
 		if err != nil {
 			return nil, nil, fmt.Errorf("eiv: york jackknife without point %d: %w", i+1, err)
