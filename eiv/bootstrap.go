@@ -154,24 +154,12 @@ func Bootstrap(ctx context.Context, s Sample, ests []Estimator, opt *BootstrapOp
 				if start >= B {
 					return
 				}
-				end := min(start+chunk, B)
-				for i := start; i < end; i++ {
+				for i := start; i < min(start+chunk, B); i++ {
 					w.pcg.Seed(opt.Seed, uint64(i))
 					out := res.lines[i*k : (i+1)*k]
 					done, ok := false, true
 					if scheme == SchemePairs && w.lambdas != nil {
-						if w.pending {
-							// The second of a pair drawn together.
-							w.pending = false
-							done, ok = w.fitSums(n, w.next, out)
-						} else if i+1 < end {
-							var d drawnSums
-							d, w.next = drawSumsPair(s.X, s.Y, opt.Seed, uint64(i), uint64(i+1))
-							w.pending = true
-							done, ok = w.fitSums(n, d, out)
-						} else {
-							done, ok = w.fitSums(n, drawSums(s.X, s.Y, opt.Seed, uint64(i)), out)
-						}
+						done, ok = w.fitMoments(s.X, s.Y, opt.Seed, uint64(i), out)
 					}
 					if !done {
 						ok = true
@@ -234,10 +222,6 @@ type bootWorker struct {
 	// lambdas holds λ of every fitter (+Inf for OLS) when all of them fit
 	// from the moments of (x, y) alone (Deming, OLS); nil otherwise.
 	lambdas []float64
-	// next holds the sums of the next resample when pending: resamples
-	// are drawn two at a time (drawSumsPair).
-	next    drawnSums
-	pending bool
 }
 
 func newBootWorker(s Sample, ests []Estimator, n int) *bootWorker {
@@ -325,17 +309,18 @@ func pcgStep(hi, lo uint64) (nhi, nlo, v uint64) {
 	return h, l, v
 }
 
-// drawnSums are the sums shiftedMoments forms of a pairs resample: about
-// the first point drawn, (x0, y0).
-type drawnSums struct{ x0, y0, sx, sy, sxx, syy, sxy float64 }
-
-// drawSums draws the pairs resample of the PCG state (s1, s2) without
-// materialising it: one pass draws each index (the numbers
+// fitMoments draws the pairs resample of the PCG state (s1, s2) and fits
+// every estimator of w.lambdas to it, writing the lines to out, without
+// materialising the resample: one pass draws each index (the numbers
 // rand.New(rand.NewPCG(s1, s2)).IntN(n) gives) and adds the point to the
 // sums of shiftedMoments about the first point drawn, in the order that
 // shiftedMoments would sum the materialised resample, so that the lines
-// are the same bit for bit.
-func drawSums(x, y []float64, s1, s2 uint64) (d drawnSums) {
+// are the same bit for bit. It returns done false, with out untouched,
+// when the moments need the points themselves (the first point lies far
+// from the rest, or the sums leave the safe band of demingFitter): the
+// caller then draws the resample again from the same seed and fits it as
+// usual. ok is false when an estimator cannot fit the resample.
+func (w *bootWorker) fitMoments(x, y []float64, s1, s2 uint64, out []Line) (done, ok bool) {
 	n := len(x)
 	y = y[:n]
 	un := uint64(n)
@@ -351,7 +336,11 @@ func drawSums(x, y []float64, s1, s2 uint64) (d drawnSums) {
 			var l uint64
 			j, l = bits.Mul64(v, un)
 			if l < un {
-				j, hi, lo = redraw(hi, lo, l, j, un)
+				thresh := -un % un
+				for l < thresh {
+					hi, lo, v = pcgStep(hi, lo)
+					j, l = bits.Mul64(v, un)
+				}
 			}
 		}
 		if i == 0 {
@@ -364,82 +353,7 @@ func drawSums(x, y []float64, s1, s2 uint64) (d drawnSums) {
 		syy += dy * dy
 		sxy += dx * dy
 	}
-	return drawnSums{x0, y0, sx, sy, sxx, syy, sxy}
-}
-
-// drawSumsPair is drawSums of the states (s1, a) and (s1, b) in one loop:
-// the two generators' steps are independent, so the processor overlaps
-// them (one 128-bit LCG step is a chain of dependent multiplications,
-// which bounds a single stream). Each resample's sums are added in its
-// own order, the same bits as drawSums.
-func drawSumsPair(x, y []float64, s1, a, b uint64) (da, db drawnSums) {
-	n := len(x)
-	y = y[:n]
-	un := uint64(n)
-	pow2 := un&(un-1) == 0
-	hiA, loA, hiB, loB := s1, a, s1, b
-	var sxA, syA, sxxA, syyA, sxyA, x0A, y0A float64
-	var sxB, syB, sxxB, syyB, sxyB, x0B, y0B float64
-	for i := range n {
-		var vA, vB, jA, jB uint64
-		hiA, loA, vA = pcgStep(hiA, loA)
-		hiB, loB, vB = pcgStep(hiB, loB)
-		if pow2 {
-			jA, jB = vA&(un-1), vB&(un-1)
-		} else {
-			var lA, lB uint64
-			jA, lA = bits.Mul64(vA, un)
-			jB, lB = bits.Mul64(vB, un)
-			if lA < un {
-				jA, hiA, loA = redraw(hiA, loA, lA, jA, un)
-			}
-			if lB < un {
-				jB, hiB, loB = redraw(hiB, loB, lB, jB, un)
-			}
-		}
-		xa, ya, xb, yb := x[jA], y[jA], x[jB], y[jB]
-		if i == 0 {
-			x0A, y0A, x0B, y0B = xa, ya, xb, yb
-		}
-		dxA, dyA := xa-x0A, ya-y0A
-		dxB, dyB := xb-x0B, yb-y0B
-		sxA += dxA
-		sxB += dxB
-		syA += dyA
-		syB += dyB
-		sxxA += dxA * dxA
-		sxxB += dxB * dxB
-		syyA += dyA * dyA
-		syyB += dyB * dyB
-		sxyA += dxA * dyA
-		sxyB += dxB * dyB
-	}
-	return drawnSums{x0A, y0A, sxA, syA, sxxA, syyA, sxyA}, drawnSums{x0B, y0B, sxB, syB, sxxB, syyB, sxyB}
-}
-
-// redraw finishes math/rand/v2's multiply-and-reject draw of an index
-// below un when the first product's low word l fell below un: it rejects
-// while l < 2⁶⁴ mod un, stepping the generator (hi, lo), and returns the
-// index and the state.
-func redraw(hi, lo, l, j, un uint64) (uint64, uint64, uint64) {
-	thresh := -un % un
-	for l < thresh {
-		var v uint64
-		hi, lo, v = pcgStep(hi, lo)
-		j, l = bits.Mul64(v, un)
-	}
-	return j, hi, lo
-}
-
-// fitSums fits every estimator of w.lambdas to the resample of n points
-// with the sums d, writing the lines to out. It returns done false, with
-// out untouched, when the moments need the points themselves (the first
-// point lies far from the rest, or the sums leave the safe band of
-// demingFitter): the caller then draws the resample again from its seed
-// and fits it as usual. ok is false when an estimator cannot fit the
-// resample.
-func (w *bootWorker) fitSums(n int, d drawnSums, out []Line) (done, ok bool) {
-	m, far := shiftedSums(n, d.x0, d.y0, d.sx, d.sy, d.sxx, d.syy, d.sxy)
+	m, far := shiftedSums(n, x0, y0, sx, sy, sxx, syy, sxy)
 	if far || !safeMoments(m) {
 		return false, false
 	}
