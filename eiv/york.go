@@ -954,7 +954,7 @@ func profilePart(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) (p prof
 //	Σ W(x_adj − x̄_adj)² = ΣWβ² − (ΣWβ)²/ΣW,  x̄_adj = c_x + δu + ΣWβ/ΣW
 func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 	b, cx, cy := ln.b, ln.cx, ln.cy
-	cs := closingAll(x, y, sx, sy, r, b, cx, cy)
+	cs := lineSums(x, y, sx, sy, r, b, cx, cy, closingPart, closingSums.plus)
 	sw, su, sv, sb, sbb, sr := cs.sw, cs.su, cs.sv, cs.sb, cs.sbb, cs.sr
 	du, dv := su/sw, sv/sw
 	mx, my := cx+du, cy+dv
@@ -972,16 +972,6 @@ type closingSums struct{ sw, su, sv, sb, sbb, sr float64 }
 
 func (s closingSums) plus(o closingSums) closingSums {
 	return closingSums{s.sw + o.sw, s.su + o.su, s.sv + o.sv, s.sb + o.sb, s.sbb + o.sbb, s.sr + o.sr}
-}
-
-func closingAll(x, y, sx, sy, r []float64, b, cx, cy float64) closingSums {
-	if len(x) < yorkParallelMinN {
-		return closingPart(x, y, sx, sy, r, b, cx, cy)
-	}
-	s, _ := chunkedSum(len(x), func(lo, hi int) (closingSums, error) {
-		return closingPart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], rPart(r, lo, hi), b, cx, cy), nil
-	}, closingSums.plus)
-	return s
 }
 
 func closingPart(x, y, sx, sy, r []float64, b, cx, cy float64) closingSums {
@@ -1017,7 +1007,7 @@ func closingPart(x, y, sx, sy, r []float64, b, cx, cy float64) closingSums {
 // (cx, cy), York's last pass's, whose remaining shift is negligible for a sign).
 func curvature(x, y, sx, sy, r []float64, ln yorkLine) float64 {
 	b, cx, cy := ln.b, ln.cx, ln.cy
-	c := curvatureAll(x, y, sx, sy, r, b, cx, cy)
+	c := lineSums(x, y, sx, sy, r, b, cx, cy, curvaturePart, curvatureSums.plus)
 	return c.c2 + 8*c.cu + 2*(c.suu-c.su*c.su/c.sw) - 8*c.ce*c.ce/c.sw
 }
 
@@ -1026,16 +1016,6 @@ type curvatureSums struct{ sw, su, suu, c2, cu, ce float64 }
 
 func (s curvatureSums) plus(o curvatureSums) curvatureSums {
 	return curvatureSums{s.sw + o.sw, s.su + o.su, s.suu + o.suu, s.c2 + o.c2, s.cu + o.cu, s.ce + o.ce}
-}
-
-func curvatureAll(x, y, sx, sy, r []float64, b, cx, cy float64) curvatureSums {
-	if len(x) < yorkParallelMinN {
-		return curvaturePart(x, y, sx, sy, r, b, cx, cy)
-	}
-	s, _ := chunkedSum(len(x), func(lo, hi int) (curvatureSums, error) {
-		return curvaturePart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], rPart(r, lo, hi), b, cx, cy), nil
-	}, curvatureSums.plus)
-	return s
 }
 
 func curvaturePart(x, y, sx, sy, r []float64, b, cx, cy float64) curvatureSums {

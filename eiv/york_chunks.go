@@ -75,3 +75,17 @@ func chunkedSum[S any](n int, part func(lo, hi int) (S, error), plus func(S, S) 
 	}
 	return total, nil
 }
+
+// lineSums runs a pass over every point that evaluates sums at the line of
+// slope b through (cx, cy): part over all points below yorkParallelMinN,
+// else chunkedSum.
+func lineSums[S any](x, y, sx, sy, r []float64, b, cx, cy float64,
+	part func(x, y, sx, sy, r []float64, b, cx, cy float64) S, plus func(S, S) S) S {
+	if len(x) < yorkParallelMinN {
+		return part(x, y, sx, sy, r, b, cx, cy)
+	}
+	s, _ := chunkedSum(len(x), func(lo, hi int) (S, error) {
+		return part(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], rPart(r, lo, hi), b, cx, cy), nil
+	}, plus)
+	return s
+}
