@@ -16,9 +16,10 @@ const (
 	yorkChunk = 1 << 14
 	// yorkParallelMinN is the n from which passes are chunked and run on
 	// every core. Below it, starting the goroutines costs more than the
-	// second core saves (BenchmarkYorkPass: break-even near 2·10⁴ points on
-	// the 2-core development machine; the threshold leaves a margin).
-	yorkParallelMinN = 1 << 16
+	// second core saves: BenchmarkYork with the chunks from 2¹² points, old
+	// and new binaries interleaved 10 times on the shared 2-core machine,
+	// was slower at n = 10⁴ and 1.9× faster at 3·10⁴.
+	yorkParallelMinN = 1 << 15
 )
 
 // chunkedSum returns the sums part(lo, hi) over [0, n): for n below

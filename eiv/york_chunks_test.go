@@ -88,9 +88,9 @@ func TestYorkChunkedSameBitsAnyCores(t *testing.T) {
 // The chunked passes compute the same fit as the single loop: repeating
 // every point of a dataset leaves York's S with the same minimiser (S
 // doubles), halves the variances of the line and doubles χ². The dataset
-// of m < 2¹⁶ points is fitted by the single loop, its doubled copy (2m ≥
-// 2¹⁶) by the chunks. Tolerance 1e-12 relative: the two sum the same terms
-// in a different order (about 10⁵ terms, each sum's rounding ~1e-16·√n);
+// of m < 2¹⁵ points is fitted by the single loop, its doubled copy (2m ≥
+// 2¹⁵) by the chunks. Tolerance 1e-12 relative: the two sum the same terms
+// in a different order (about 6·10⁴ terms, each sum's rounding ~1e-16·√n);
 // the hard case's χ² is compared to 1e-9 since its minimum is polished to
 // the slope's rounding floor only.
 func TestYorkChunkedMatchesSingleLoop(t *testing.T) {
@@ -100,7 +100,7 @@ func TestYorkChunkedMatchesSingleLoop(t *testing.T) {
 		corr  bool
 	}{{"ordinary", 0.01, false}, {"correlated", 0.01, true}, {"hard", 0.4, false}} {
 		t.Run(c.name, func(t *testing.T) {
-			const m = 40_000
+			const m = 30_000
 			x, y, sx, sy, r := largeYork(9, m, c.ratio, c.corr)
 			twice := func(v []float64) []float64 {
 				if v == nil {
