@@ -190,27 +190,96 @@ func severalMinima(ms []yorkMin, chosen, bk float64) string {
 }
 
 func checkYork(x, y, sx, sy, r []float64) error {
-	if err := checkXY(x, y); err != nil {
-		return err
-	}
 	n := len(x)
-	if sx == nil || sy == nil {
-		return &OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties of x and y"}
-	}
-	if len(sx) != n || len(sy) != n {
+	if len(y) != n {
 		return ErrLengthMismatch
 	}
-	var mx, my float64
-	for i := range n {
+	if n < 3 {
+		return ErrTooFewPoints
+	}
+	if sx == nil || sy == nil || len(sx) != n || len(sy) != n {
+		if err := checkXY(x, y); err != nil {
+			return err
+		}
+		if sx == nil || sy == nil {
+			return &OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties of x and y"}
+		}
+		return ErrLengthMismatch
+	}
+	// One pass over the four columns (chunked for large n); the answer is
+	// that of checking x and y first and then the σ, row by row.
+	var c yorkCheck
+	if n < yorkParallelMinN {
+		c = checkYorkRows(x, y, sx, sy, 0, n)
+	} else {
+		c, _ = chunkedSum(n, func(lo, hi int) (yorkCheck, error) {
+			return checkYorkRows(x, y, sx, sy, lo, hi), nil
+		}, yorkCheck.plus)
+	}
+	if err := c.xy.verdict(); err != nil {
+		return err
+	}
+	if c.serr != nil {
+		return c.serr
+	}
+	if outOfRange(c.smx) || outOfRange(c.smy) {
+		return ErrMagnitude
+	}
+	return checkCorrelation(r, n)
+}
+
+// checkYorkRows is checkYork's pass over rows [lo, hi), error indices
+// absolute.
+func checkYorkRows(x, y, sx, sy []float64, lo, hi int) yorkCheck {
+	c := yorkCheck{xy: scanXY(x[lo:hi], y[lo:hi], x[0])}
+	c.smx, c.smy, c.serr = scanYorkSigma(sx[lo:hi], sy[lo:hi])
+	if pe, ok := c.xy.err.(*PointError); ok {
+		pe.Index += lo
+	}
+	if pe, ok := c.serr.(*PointError); ok {
+		pe.Index += lo
+	}
+	return c
+}
+
+// yorkCheck is what checkYork's pass learns of a run of rows.
+type yorkCheck struct {
+	xy       xyScan
+	smx, smy float64 // the largest σx and σy
+	serr     error   // the first invalid σ
+}
+
+// plus combines two consecutive runs of rows: the first error of each kind.
+func (c yorkCheck) plus(o yorkCheck) yorkCheck {
+	if c.xy.err == nil {
+		if o.xy.err != nil {
+			c.xy = o.xy
+		} else {
+			c.xy = xyScan{mx: max(c.xy.mx, o.xy.mx), my: max(c.xy.my, o.xy.my), constant: c.xy.constant && o.xy.constant}
+		}
+	}
+	if c.serr == nil {
+		c.serr = o.serr
+	}
+	c.smx, c.smy = max(c.smx, o.smx), max(c.smy, o.smy)
+	return c
+}
+
+// scanYorkSigma returns the largest σx and σy and the first point whose σ
+// is invalid (not finite, negative, or both zero), its index relative to
+// the slices.
+func scanYorkSigma(sx, sy []float64) (mx, my float64, err error) {
+	sy = sy[:len(sx)]
+	for i := range sx {
 		a, b := sx[i], sy[i]
 		if !(a-a == 0 && a >= 0 && b-b == 0 && b >= 0) || (a == 0 && b == 0) {
 			if err := checkSigma(sx[i:i+1], 1, "sx"); err != nil {
-				return pointAt(err, i)
+				return mx, my, pointAt(err, i)
 			}
 			if err := checkSigma(sy[i:i+1], 1, "sy"); err != nil {
-				return pointAt(err, i)
+				return mx, my, pointAt(err, i)
 			}
-			return &PointError{Index: i, Field: "sy", Err: fmt.Errorf(
+			return mx, my, &PointError{Index: i, Field: "sy", Err: fmt.Errorf(
 				"%w: sx and sy are both zero, which would give the point infinite weight", ErrInvalidUncertainty)}
 		}
 		if a > mx {
@@ -220,10 +289,7 @@ func checkYork(x, y, sx, sy, r []float64) error {
 			my = b
 		}
 	}
-	if outOfRange(mx) || outOfRange(my) {
-		return ErrMagnitude
-	}
-	return checkCorrelation(r, n)
+	return mx, my, nil
 }
 
 // pointAt moves a *PointError found on a one-element slice to index i.

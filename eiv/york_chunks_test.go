@@ -1,6 +1,8 @@
 package eiv_test
 
 import (
+	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -127,6 +129,57 @@ func TestYorkChunkedMatchesSingleLoop(t *testing.T) {
 			rel("SE of the slope ×√2", two.Slope.SE*math.Sqrt2, one.Slope.SE, 1e-10)
 			rel("SE of the intercept ×√2", two.Intercept.SE*math.Sqrt2, one.Intercept.SE, 1e-10)
 			rel("χ²/2", two.Chi2/2, one.Chi2, 1e-9)
+		})
+	}
+}
+
+// York's validation reads the four columns in one chunked pass for large
+// n, and answers as checking x and y row by row first and the σ after:
+// the first bad x or y anywhere before any bad σ, each the first of its
+// kind, with its absolute row.
+func TestYorkCheckChunkedOrder(t *testing.T) {
+	// An edit puts v in column col at row at·n: rows far apart lie in
+	// different chunks when n is large.
+	type edit struct {
+		col string
+		at  float64
+		v   float64
+	}
+	for _, n := range []int{1_000, 100_000} {
+		for _, c := range []struct {
+			name  string
+			edits []edit
+			field string
+			at    float64
+			want  error
+		}{
+			{"y after a bad σ", []edit{{"sx", 0.01, -1}, {"y", 0.99, math.NaN()}}, "y", 0.99, eiv.ErrNonFinite},
+			{"first of two bad σ", []edit{{"sy", 0.9, math.Inf(1)}, {"sx", 0.3, -2}}, "sx", 0.3, eiv.ErrInvalidUncertainty},
+			{"both σ zero", []edit{{"sx", 0.7, 0}, {"sy", 0.7, 0}}, "sy", 0.7, eiv.ErrInvalidUncertainty},
+			{"first of two bad x", []edit{{"x", 0.95, math.NaN()}, {"x", 0.5, math.Inf(-1)}}, "x", 0.5, eiv.ErrNonFinite},
+		} {
+			t.Run(fmt.Sprintf("n=%d/%s", n, c.name), func(t *testing.T) {
+				x, y, sx, sy, _ := largeYork(3, n, 0.01, false)
+				cols := map[string][]float64{"x": x, "y": y, "sx": sx, "sy": sy}
+				for _, e := range c.edits {
+					cols[e.col][int(e.at*float64(n))] = e.v
+				}
+				_, err := eiv.York(x, y, sx, sy, nil, nil)
+				var pe *eiv.PointError
+				row := int(c.at * float64(n))
+				if !errors.As(err, &pe) || pe.Field != c.field || pe.Index != row || !errors.Is(err, c.want) {
+					t.Fatalf("got %v, want %v at %s row %d", err, c.want, c.field, row)
+				}
+			})
+		}
+		t.Run(fmt.Sprintf("n=%d/constant x", n), func(t *testing.T) {
+			x, y, sx, sy, _ := largeYork(3, n, 0.01, false)
+			for i := range x {
+				x[i] = 2
+			}
+			if _, err := eiv.York(x, y, sx, sy, nil, nil); !errors.Is(err, eiv.ErrConstantX) {
+				t.Fatalf("got %v, want ErrConstantX", err)
+			}
 		})
 	}
 }
