@@ -159,7 +159,7 @@ func Bootstrap(ctx context.Context, s Sample, ests []Estimator, opt *BootstrapOp
 					out := res.lines[i*k : (i+1)*k]
 					done, ok := false, true
 					if scheme == SchemePairs && w.lambdas != nil {
-						done, ok = w.fitMoments(s.X, s.Y, opt.Seed, uint64(i), out)
+						done, ok = w.fitMoments(opt.Seed, uint64(i), out)
 					}
 					if !done {
 						ok = true
@@ -222,7 +222,12 @@ type bootWorker struct {
 	// lambdas holds λ of every fitter (+Inf for OLS) when all of them fit
 	// from the moments of (x, y) alone (Deming, OLS); nil otherwise.
 	lambdas []float64
+	// xy holds the points (x, y) side by side for fitMoments when lambdas
+	// is set.
+	xy []xyPoint
 }
+
+type xyPoint struct{ x, y float64 }
 
 func newBootWorker(s Sample, ests []Estimator, n int) *bootWorker {
 	w := &bootWorker{}
@@ -255,6 +260,10 @@ func newBootWorker(s Sample, ests []Estimator, n int) *bootWorker {
 			return w
 		}
 		w.lambdas = append(w.lambdas, lam)
+	}
+	w.xy = make([]xyPoint, n)
+	for i := range w.xy {
+		w.xy[i] = xyPoint{s.X[i], s.Y[i]}
 	}
 	return w
 }
@@ -309,7 +318,8 @@ func pcgStep(hi, lo uint64) (nhi, nlo, v uint64) {
 	return h, l, v
 }
 
-// fitMoments draws the pairs resample of the PCG state (s1, s2) and fits
+// fitMoments draws the pairs resample of the PCG state (s1, s2) of the
+// points w.xy and fits
 // every estimator of w.lambdas to it, writing the lines to out, without
 // materialising the resample: one pass draws each index (the numbers
 // rand.New(rand.NewPCG(s1, s2)).IntN(n) gives) and adds the point to the
@@ -320,33 +330,26 @@ func pcgStep(hi, lo uint64) (nhi, nlo, v uint64) {
 // from the rest, or the sums leave the safe band of demingFitter): the
 // caller then draws the resample again from the same seed and fits it as
 // usual. ok is false when an estimator cannot fit the resample.
-func (w *bootWorker) fitMoments(x, y []float64, s1, s2 uint64, out []Line) (done, ok bool) {
-	n := len(x)
-	y = y[:n]
+func (w *bootWorker) fitMoments(s1, s2 uint64, out []Line) (done, ok bool) {
+	xy := w.xy
+	n := len(xy)
 	un := uint64(n)
 	pow2 := un&(un-1) == 0
-	hi, lo := s1, s2
-	var sx, sy, sxx, syy, sxy, x0, y0 float64
-	for i := range n {
-		var v, j uint64
+	// The first point drawn adds +0 to every sum: it only sets (x0, y0).
+	hi, lo, j := drawIndex(s1, s2, un, pow2)
+	p := xy[j]
+	x0, y0 := p.x, p.y
+	var sx, sy, sxx, syy, sxy float64
+	for range n - 1 {
+		var v, l uint64
 		hi, lo, v = pcgStep(hi, lo)
 		if pow2 { // math/rand/v2's uint64n: a mask, else multiply and reject
 			j = v & (un - 1)
-		} else {
-			var l uint64
-			j, l = bits.Mul64(v, un)
-			if l < un {
-				thresh := -un % un
-				for l < thresh {
-					hi, lo, v = pcgStep(hi, lo)
-					j, l = bits.Mul64(v, un)
-				}
-			}
+		} else if j, l = bits.Mul64(v, un); l < un {
+			j, hi, lo = redraw(hi, lo, l, j, un)
 		}
-		if i == 0 {
-			x0, y0 = x[j], y[j]
-		}
-		dx, dy := x[j]-x0, y[j]-y0
+		p := xy[j]
+		dx, dy := p.x-x0, p.y-y0
 		sx += dx
 		sy += dy
 		sxx += dx * dx
@@ -365,6 +368,34 @@ func (w *bootWorker) fitMoments(x, y []float64, s1, s2 uint64, out []Line) (done
 		out[i] = Line{a, b}
 	}
 	return true, true
+}
+
+// drawIndex steps the PCG state (hi, lo) and draws an index below un as
+// math/rand/v2's uint64n does.
+func drawIndex(hi, lo, un uint64, pow2 bool) (nhi, nlo, j uint64) {
+	hi, lo, v := pcgStep(hi, lo)
+	if pow2 {
+		return hi, lo, v & (un - 1)
+	}
+	j, l := bits.Mul64(v, un)
+	if l < un {
+		j, hi, lo = redraw(hi, lo, l, j, un)
+	}
+	return hi, lo, j
+}
+
+// redraw finishes math/rand/v2's multiply-and-reject draw of an index
+// below un when the first product's low word l fell below un: it rejects
+// while l < 2⁶⁴ mod un, stepping the generator (hi, lo), and returns the
+// index and the state.
+func redraw(hi, lo, l, j, un uint64) (uint64, uint64, uint64) {
+	thresh := -un % un
+	for l < thresh {
+		var v uint64
+		hi, lo, v = pcgStep(hi, lo)
+		j, l = bits.Mul64(v, un)
+	}
+	return j, hi, lo
 }
 
 func (w *bootWorker) drawPairs(s Sample) {

@@ -10,32 +10,52 @@ func checkXY(x, y []float64) error {
 	if len(x) < 3 {
 		return ErrTooFewPoints
 	}
+	return scanXY(x, y, x[0]).verdict()
+}
+
+// xyScan is what checkXY's pass learns: the first non-finite value (err,
+// its index relative to the part scanned), the largest magnitudes, and
+// whether every x equals x0.
+type xyScan struct {
+	mx, my   float64
+	constant bool
+	err      error
+}
+
+// scanXY is checkXY's pass over (part of) the data.
+func scanXY(x, y []float64, x0 float64) xyScan {
 	// One pass: v − v is 0 exactly for finite v and NaN for ±Inf and NaN.
 	y = y[:len(x)]
-	var mx, my float64
-	x0, constant := x[0], true
+	sc := xyScan{constant: true}
 	for i := range x {
 		xi, yi := x[i], y[i]
 		if !(xi-xi == 0 && yi-yi == 0) {
 			if !allFinite(xi) {
-				return &PointError{Index: i, Field: "x", Err: ErrNonFinite}
+				return xyScan{err: &PointError{Index: i, Field: "x", Err: ErrNonFinite}}
 			}
-			return &PointError{Index: i, Field: "y", Err: ErrNonFinite}
+			return xyScan{err: &PointError{Index: i, Field: "y", Err: ErrNonFinite}}
 		}
-		if a := math.Abs(xi); a > mx {
-			mx = a
+		if a := math.Abs(xi); a > sc.mx {
+			sc.mx = a
 		}
-		if a := math.Abs(yi); a > my {
-			my = a
+		if a := math.Abs(yi); a > sc.my {
+			sc.my = a
 		}
 		if xi != x0 {
-			constant = false
+			sc.constant = false
 		}
 	}
-	if outOfRange(mx) || outOfRange(my) {
+	return sc
+}
+
+// verdict is checkXY's answer from the pass over all the data.
+func (sc xyScan) verdict() error {
+	switch {
+	case sc.err != nil:
+		return sc.err
+	case outOfRange(sc.mx) || outOfRange(sc.my):
 		return ErrMagnitude
-	}
-	if constant {
+	case sc.constant:
 		return ErrConstantX
 	}
 	return nil

@@ -190,27 +190,96 @@ func severalMinima(ms []yorkMin, chosen, bk float64) string {
 }
 
 func checkYork(x, y, sx, sy, r []float64) error {
-	if err := checkXY(x, y); err != nil {
-		return err
-	}
 	n := len(x)
-	if sx == nil || sy == nil {
-		return &OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties of x and y"}
-	}
-	if len(sx) != n || len(sy) != n {
+	if len(y) != n {
 		return ErrLengthMismatch
 	}
-	var mx, my float64
-	for i := range n {
+	if n < 3 {
+		return ErrTooFewPoints
+	}
+	if sx == nil || sy == nil || len(sx) != n || len(sy) != n {
+		if err := checkXY(x, y); err != nil {
+			return err
+		}
+		if sx == nil || sy == nil {
+			return &OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties of x and y"}
+		}
+		return ErrLengthMismatch
+	}
+	// One pass over the four columns (chunked for large n); the answer is
+	// that of checking x and y first and then the σ, row by row.
+	var c yorkCheck
+	if n < yorkParallelMinN {
+		c = checkYorkRows(x, y, sx, sy, 0, n)
+	} else {
+		c, _ = chunkedSum(n, func(lo, hi int) (yorkCheck, error) {
+			return checkYorkRows(x, y, sx, sy, lo, hi), nil
+		}, yorkCheck.plus)
+	}
+	if err := c.xy.verdict(); err != nil {
+		return err
+	}
+	if c.serr != nil {
+		return c.serr
+	}
+	if outOfRange(c.smx) || outOfRange(c.smy) {
+		return ErrMagnitude
+	}
+	return checkCorrelation(r, n)
+}
+
+// checkYorkRows is checkYork's pass over rows [lo, hi), error indices
+// absolute.
+func checkYorkRows(x, y, sx, sy []float64, lo, hi int) yorkCheck {
+	c := yorkCheck{xy: scanXY(x[lo:hi], y[lo:hi], x[0])}
+	c.smx, c.smy, c.serr = scanYorkSigma(sx[lo:hi], sy[lo:hi])
+	if pe, ok := c.xy.err.(*PointError); ok {
+		pe.Index += lo
+	}
+	if pe, ok := c.serr.(*PointError); ok {
+		pe.Index += lo
+	}
+	return c
+}
+
+// yorkCheck is what checkYork's pass learns of a run of rows.
+type yorkCheck struct {
+	xy       xyScan
+	smx, smy float64 // the largest σx and σy
+	serr     error   // the first invalid σ
+}
+
+// plus combines two consecutive runs of rows: the first error of each kind.
+func (c yorkCheck) plus(o yorkCheck) yorkCheck {
+	if c.xy.err == nil {
+		if o.xy.err != nil {
+			c.xy = o.xy
+		} else {
+			c.xy = xyScan{mx: max(c.xy.mx, o.xy.mx), my: max(c.xy.my, o.xy.my), constant: c.xy.constant && o.xy.constant}
+		}
+	}
+	if c.serr == nil {
+		c.serr = o.serr
+	}
+	c.smx, c.smy = max(c.smx, o.smx), max(c.smy, o.smy)
+	return c
+}
+
+// scanYorkSigma returns the largest σx and σy and the first point whose σ
+// is invalid (not finite, negative, or both zero), its index relative to
+// the slices.
+func scanYorkSigma(sx, sy []float64) (mx, my float64, err error) {
+	sy = sy[:len(sx)]
+	for i := range sx {
 		a, b := sx[i], sy[i]
 		if !(a-a == 0 && a >= 0 && b-b == 0 && b >= 0) || (a == 0 && b == 0) {
 			if err := checkSigma(sx[i:i+1], 1, "sx"); err != nil {
-				return pointAt(err, i)
+				return mx, my, pointAt(err, i)
 			}
 			if err := checkSigma(sy[i:i+1], 1, "sy"); err != nil {
-				return pointAt(err, i)
+				return mx, my, pointAt(err, i)
 			}
-			return &PointError{Index: i, Field: "sy", Err: fmt.Errorf(
+			return mx, my, &PointError{Index: i, Field: "sy", Err: fmt.Errorf(
 				"%w: sx and sy are both zero, which would give the point infinite weight", ErrInvalidUncertainty)}
 		}
 		if a > mx {
@@ -220,10 +289,7 @@ func checkYork(x, y, sx, sy, r []float64) error {
 			my = b
 		}
 	}
-	if outOfRange(mx) || outOfRange(my) {
-		return ErrMagnitude
-	}
-	return checkCorrelation(r, n)
+	return mx, my, nil
 }
 
 // pointAt moves a *PointError found on a one-element slice to index i.
@@ -360,19 +426,9 @@ const yorkHardRatio = 1.0 / 16
 // the data are of ordinary scale and hard.
 func yorkStart(x, y, sx, sy []float64) (st yorkStartInfo) {
 	n := len(x)
-	y, sx, sy = y[:n], sx[:n], sy[:n]
 	x0, y0 := x[0], y[0]
-	var s1, s2, sxx, syy, sxy, vx, vy float64
-	for i := range n {
-		dx, dy := x[i]-x0, y[i]-y0
-		s1 += dx
-		s2 += dy
-		sxx += dx * dx
-		syy += dy * dy
-		sxy += dx * dy
-		vx += sx[i] * sx[i]
-		vy += sy[i] * sy[i]
-	}
+	ss := startAll(x, y, sx, sy, x0, y0)
+	s1, s2, sxx, syy, sxy, vx, vy := ss.s1, ss.s2, ss.sxx, ss.syy, ss.sxy, ss.vx, ss.vy
 	fn := float64(n)
 	mx, my := s1/fn, s2/fn
 	sxx, syy, sxy = sxx-s1*mx, syy-s2*my, sxy-s1*my
@@ -395,6 +451,38 @@ func yorkStart(x, y, sx, sy []float64) (st yorkStartInfo) {
 		st.kappa = k
 	}
 	return st
+}
+
+// startSums are the sums of the start pass about (x0, y0).
+type startSums struct{ s1, s2, sxx, syy, sxy, vx, vy float64 }
+
+func (s startSums) plus(o startSums) startSums {
+	return startSums{s.s1 + o.s1, s.s2 + o.s2, s.sxx + o.sxx, s.syy + o.syy, s.sxy + o.sxy, s.vx + o.vx, s.vy + o.vy}
+}
+
+func startAll(x, y, sx, sy []float64, x0, y0 float64) startSums {
+	if len(x) < yorkParallelMinN {
+		return startPart(x, y, sx, sy, x0, y0)
+	}
+	s, _ := chunkedSum(len(x), func(lo, hi int) (startSums, error) {
+		return startPart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], x0, y0), nil
+	}, startSums.plus)
+	return s
+}
+
+func startPart(x, y, sx, sy []float64, x0, y0 float64) (s startSums) {
+	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
+	for i := range x {
+		dx, dy := x[i]-x0, y[i]-y0
+		s.s1 += dx
+		s.s2 += dy
+		s.sxx += dx * dx
+		s.syy += dy * dy
+		s.sxy += dx * dy
+		s.vx += sx[i] * sx[i]
+		s.vy += sy[i] * sy[i]
+	}
+	return s
 }
 
 // ordinaryScale says whether an axis with Σσ² = v and Σ(v − v̄)² = s has a
@@ -527,18 +615,13 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 		var err error
 		if yk.skipping {
 			s, err = yk.passSkipping(x, y, sx, sy, r, cx, cy, b)
-		} else if r == nil {
-			s, err = yorkPass(x, y, sx, sy, cx, cy, b)
 		} else {
-			s, err = yorkPassR(x, y, sx, sy, r, cx, cy, b)
+			s, err = yorkPassAll(x, y, sx, sy, r, cx, cy, b)
 		}
 		if err != nil {
 			return yorkLine{iter: iter}, err
 		}
-		dx, dy := s.wx/s.w, s.wy/s.w
-		num := s.num - dy*s.aX - dx*s.aY + dx*dy*s.a - 2*dy*s.gY + dy*dy*s.g
-		den := s.den - 2*dx*s.aX + dx*dx*s.a - dy*s.gX - dx*s.gY + dx*dy*s.g
-		nb := num / den
+		nb, dx, dy, den := s.step()
 		if !allFinite(nb) {
 			return yorkLine{iter: iter}, fmt.Errorf("%w: the York iteration left the finite range", ErrDegenerate)
 		}
@@ -583,10 +666,36 @@ type yorkSums struct {
 	g, gX, gY float64 // ΣW²γ, ΣW²γX′, ΣW²γY′
 }
 
+// step is York's map from the sums of a pass about (cx, cy): the new
+// slope ΣWβV/ΣWβU, the shift (dx, dy) of the weighted centroid and ΣWβU
+// (see iterate).
+func (s yorkSums) step() (nb, dx, dy, den float64) {
+	dx, dy = s.wx/s.w, s.wy/s.w
+	num := s.num - dy*s.aX - dx*s.aY + dx*dy*s.a - 2*dy*s.gY + dy*dy*s.g
+	den = s.den - 2*dx*s.aX + dx*dx*s.a - dy*s.gX - dx*s.gY + dx*dy*s.g
+	return num / den, dx, dy, den
+}
+
 // plus adds the sums of two parts of the data.
 func (s yorkSums) plus(o yorkSums) yorkSums {
 	return yorkSums{s.w + o.w, s.wx + o.wx, s.wy + o.wy, s.num + o.num, s.den + o.den,
 		s.a + o.a, s.aX + o.aX, s.aY + o.aY, s.g + o.g, s.gX + o.gX, s.gY + o.gY}
+}
+
+// yorkPassAll is one pass over every point (chunked for large n).
+func yorkPassAll(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkSums, error) {
+	if len(x) < yorkParallelMinN {
+		if r == nil {
+			return yorkPass(x, y, sx, sy, cx, cy, b)
+		}
+		return yorkPassR(x, y, sx, sy, r, cx, cy, b)
+	}
+	return chunkedSum(len(x), func(lo, hi int) (yorkSums, error) {
+		if r == nil {
+			return yorkPass(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], cx, cy, b)
+		}
+		return yorkPassR(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], r[lo:hi], cx, cy, b)
+	}, yorkSums.plus)
 }
 
 // passSkipping is one pass over the data without point yk.skip: the sums
@@ -835,7 +944,7 @@ func (yk *york) profile(x, y, sx, sy, r []float64, cx, cy, kappa, phi float64) y
 		p = profilePart(x[:k], y[:k], sx[:k], sy[:k], rPart(r, 0, k), cx, cy, dir).
 			plus(profilePart(x[k+1:], y[k+1:], sx[k+1:], sy[k+1:], rPart(r, k+1, len(x)), cx, cy, dir))
 	} else {
-		p = profilePart(x, y, sx, sy, r, cx, cy, dir)
+		p = profileAll(x, y, sx, sy, r, cx, cy, dir)
 	}
 	if !(p.w > 0) || math.IsInf(p.w, 0) {
 		return yorkProfile{s: math.Inf(1), ds: math.NaN()}
@@ -856,6 +965,16 @@ func rPart(r []float64, lo, hi int) []float64 {
 		return nil
 	}
 	return r[lo:hi]
+}
+
+func profileAll(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) profileSums {
+	if len(x) < yorkParallelMinN {
+		return profilePart(x, y, sx, sy, r, cx, cy, dir)
+	}
+	p, _ := chunkedSum(len(x), func(lo, hi int) (profileSums, error) {
+		return profilePart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], rPart(r, lo, hi), cx, cy, dir), nil
+	}, profileSums.plus)
+	return p
 }
 
 func profilePart(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) (p profileSums) {
@@ -901,6 +1020,27 @@ func profilePart(x, y, sx, sy, r []float64, cx, cy float64, dir yorkDir) (p prof
 //	Σ W(x_adj − x̄_adj)² = ΣWβ² − (ΣWβ)²/ΣW,  x̄_adj = c_x + δu + ΣWβ/ΣW
 func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 	b, cx, cy := ln.b, ln.cx, ln.cy
+	cs := lineSums(x, y, sx, sy, r, b, cx, cy, closingPart, closingSums.plus)
+	sw, su, sv, sb, sbb, sr := cs.sw, cs.su, cs.sv, cs.sb, cs.sbb, cs.sr
+	du, dv := su/sw, sv/sw
+	mx, my := cx+du, cy+dv
+	s := sr - sw*(dv-b*du)*(dv-b*du)
+	xbar := mx + sb/sw
+	swuu := sbb - sb*sb/sw
+	varB := 1 / swuu
+	varA := 1/sw + xbar*xbar*varB
+	return yorkResult{a: my - b*mx, b: b, seA: math.Sqrt(varA), seB: math.Sqrt(varB),
+		cov: -xbar * varB, s: math.Max(s, 0), xbar: xbar, ycentre: my + b*(xbar-mx), seCentre: math.Sqrt(1 / sw)}
+}
+
+// closingSums are the sums of the closing pass.
+type closingSums struct{ sw, su, sv, sb, sbb, sr float64 }
+
+func (s closingSums) plus(o closingSums) closingSums {
+	return closingSums{s.sw + o.sw, s.su + o.su, s.sv + o.sv, s.sb + o.sb, s.sbb + o.sbb, s.sr + o.sr}
+}
+
+func closingPart(x, y, sx, sy, r []float64, b, cx, cy float64) closingSums {
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
 	var sw, su, sv, sb, sbb, sr float64
 	for i := range x {
@@ -920,15 +1060,7 @@ func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 		sbb += w * beta * beta
 		sr += w * e * e
 	}
-	du, dv := su/sw, sv/sw
-	mx, my := cx+du, cy+dv
-	s := sr - sw*(dv-b*du)*(dv-b*du)
-	xbar := mx + sb/sw
-	swuu := sbb - sb*sb/sw
-	varB := 1 / swuu
-	varA := 1/sw + xbar*xbar*varB
-	return yorkResult{a: my - b*mx, b: b, seA: math.Sqrt(varA), seB: math.Sqrt(varB),
-		cov: -xbar * varB, s: math.Max(s, 0), xbar: xbar, ycentre: my + b*(xbar-mx), seCentre: math.Sqrt(1 / sw)}
+	return closingSums{sw, su, sv, sb, sbb, sr}
 }
 
 // curvature is d²S/db² at York's slope, from one pass: the Schur
@@ -941,6 +1073,18 @@ func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 // (cx, cy), York's last pass's, whose remaining shift is negligible for a sign).
 func curvature(x, y, sx, sy, r []float64, ln yorkLine) float64 {
 	b, cx, cy := ln.b, ln.cx, ln.cy
+	c := lineSums(x, y, sx, sy, r, b, cx, cy, curvaturePart, curvatureSums.plus)
+	return c.c2 + 8*c.cu + 2*(c.suu-c.su*c.su/c.sw) - 8*c.ce*c.ce/c.sw
+}
+
+// curvatureSums are the sums of the curvature pass.
+type curvatureSums struct{ sw, su, suu, c2, cu, ce float64 }
+
+func (s curvatureSums) plus(o curvatureSums) curvatureSums {
+	return curvatureSums{s.sw + o.sw, s.su + o.su, s.suu + o.suu, s.c2 + o.c2, s.cu + o.cu, s.ce + o.ce}
+}
+
+func curvaturePart(x, y, sx, sy, r []float64, b, cx, cy float64) curvatureSums {
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
 	var sw, su, suu, c2, cu, ce float64
 	for i := range x {
@@ -961,7 +1105,7 @@ func curvature(x, y, sx, sy, r []float64, ln yorkLine) float64 {
 		cu += g * e * u
 		ce += g * e
 	}
-	return c2 + 8*cu + 2*(suu-su*su/sw) - 8*ce*ce/sw
+	return curvatureSums{sw, su, suu, c2, cu, ce}
 }
 
 func yorkBeta(u, v, b, sx, sy, r float64) float64 {
@@ -976,8 +1120,10 @@ func rAt(r []float64, i int) float64 {
 }
 
 // jackknife refits York without each point in turn, warm-started at the
-// full fit's centroid and slope b (on the data York fitted, rescaled or
-// not); hard data get the global search in every refit.
+// full fit's centroid and, on ordinary data, at the slope jackStarts
+// predicts for each refit (else at the full fit's slope b), on the data
+// York fitted, rescaled or not; hard data get the global search in every
+// refit.
 //
 // The leave-one-out fits stop at a relative slope change of 1e-12: the
 // jackknife's spread is of the order of the SE, many orders above that.
@@ -987,8 +1133,14 @@ func (yk *york) jackknife(x, y, sx, sy, r []float64, b float64, st0 yorkStartInf
 	as = make([]float64, n)
 	bs = make([]float64, n)
 	st := yorkStartInfo{cx: yk.cx, cy: yk.cy, b: b, hard: st0.hard, kappa: st0.kappa}
+	// Ordinary data: each refit starts at its slope predicted from the
+	// full data's sums (bs holds the starts until it is overwritten).
+	predicted := !st0.hard && jackStarts(x, y, sx, sy, r, yk.cx, yk.cy, b, bs)
 	for i := range n {
 		jk.skip = i
+		if predicted {
+			st.b = bs[i]
+		}
 		ai, bi, _, err := jk.slopeLine(x, y, sx, sy, r, st)
 		if err != nil {
 			return nil, nil, fmt.Errorf("eiv: york jackknife without point %d: %w", i+1, err)
