@@ -60,14 +60,14 @@ func decodeTimes(b ingestBodies) (csvT, jsonT []time.Duration) {
 		cb := b.csv[:b.csvEnds[k]]
 		jb := append(bytes.Clone(b.json[:b.jsonEnds[k]]), "]}"...)
 		csvT = append(csvT, best(reps, func() {
-			// As the server and the command line hand it over: a
-			// body read once, which the decoder takes without a copy.
+			// As the server and the command line hand them over: a
+			// body read once, which the decoders take without a copy.
 			if d, err := wire.DecodeCSV(wire.NewBody(cb, nil)); err != nil || d.Len() != n {
 				panic(fmt.Sprintf("CSV decode of %d rows: %v", n, err))
 			}
 		}))
 		jsonT = append(jsonT, best(reps, func() {
-			if r, err := wire.DecodeFitJSON(bytes.NewReader(jb)); err != nil || r.Points.Len() != n {
+			if r, err := wire.DecodeFitJSON(wire.NewBody(jb, nil)); err != nil || r.Points.Len() != n {
 				panic(fmt.Sprintf("JSON decode of %d rows: %v", n, err))
 			}
 		}))
