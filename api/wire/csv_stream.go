@@ -115,12 +115,16 @@ func (s *CSVStream) Got(k int) {
 	switch s.mode {
 	case keepWhole, keepRest:
 		s.kept = s.kept[:len(s.kept)+k]
-	case inHeader:
+	default:
 		s.buf = s.buf[:len(s.buf)+k]
-		s.header(false)
-	case inRows:
-		s.buf = s.buf[:len(s.buf)+k]
-		s.take(false)
+		if bytes.IndexByte(s.buf[len(s.buf)-k:], '\n') < 0 {
+			return // no line completed (a long line is not scanned again)
+		}
+		if s.mode == inHeader {
+			s.header(false)
+		} else {
+			s.take(false)
+		}
 	}
 }
 
@@ -208,6 +212,9 @@ func (s *CSVStream) header(eof bool) {
 	rs := &records{body: complete, comma: s.o.comma()}
 	fields, line, err := rs.next()
 	if err == io.EOF && !eof {
+		if len(complete) > 2*streamBlock {
+			s.keepAll() // a long preamble is not scanned again at every block
+		}
 		return // only comments and blank lines so far
 	}
 	end := len(complete) - len(rs.body)

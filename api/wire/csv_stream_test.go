@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math/rand/v2"
 	"strconv"
+	"strings"
 	"testing"
 )
 
@@ -233,5 +234,32 @@ func TestCSVStreamSizesColumnsOnce(t *testing.T) {
 	// practice for a size taken from a sample of the lines).
 	if spare := float64(cap(st.cols[0]))/float64(d.Len()) - 1; spare > 0.03 {
 		t.Fatalf("columns %.1f %% larger than the rows", 100*spare)
+	}
+}
+
+// TestCSVStreamLongLines: a preamble of comments longer than the stream
+// scans for its header (kept whole), a comment line and a bad cell longer
+// than a block, read in blocks of several sizes, answer as the whole read.
+func TestCSVStreamLongLines(t *testing.T) {
+	long := strings.Repeat("9", 3*streamBlock)
+	rows := strings.Repeat("1,2\n", 1000)
+	for _, c := range []struct {
+		name, body string
+		streams    bool
+	}{
+		{"long preamble", strings.Repeat("# comment line\n", 80_000) + "x,y\n" + rows, false},
+		{"long comment", "x,y\n" + rows + "#" + long + "\n" + rows, true},
+		{"long number (too large)", "x,y\n" + rows + "1," + long + "\n" + rows, false},
+		{"long bad cell", "x,y\n" + rows + "1,2" + long + "x\n" + rows, false},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			d, streamed := sameStream([]byte(c.body), 0, nil, []int{1000, 4096, 256 << 10})
+			if d != "" {
+				t.Fatal(d)
+			}
+			if streamed != c.streams {
+				t.Fatalf("streamed %v, want %v", streamed, c.streams)
+			}
+		})
 	}
 }
