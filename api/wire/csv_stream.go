@@ -314,7 +314,11 @@ func (s *CSVStream) take(eof bool) {
 
 // room makes slots for lines more rows, about once for the whole body:
 // the rows still to come are estimated from the bytes per line so far and
-// the declared length (doubling when no length was declared).
+// the declared length (doubling when no length was declared). The columns
+// made ahead of the rows received never take more bytes than the declared
+// length, as the whole body's buffer did (an upload that stalls after its
+// first block holds no more than before); only bodies of very short rows
+// grow them again.
 func (s *CSVStream) room(lines int, segBytes int64) {
 	need := s.n + lines
 	have := len(s.cols[0])
@@ -325,7 +329,14 @@ func (s *CSVStream) room(lines int, segBytes int64) {
 	if s.hint >= 0 {
 		done := s.consumed + segBytes
 		perLine := float64(done) / float64(s.line+lines)
-		size = need + int(float64(max(s.hint-done, 0))/perLine*1.01) + 64
+		est := need + int(float64(max(s.hint-done, 0))/perLine*1.01) + 64
+		cols := 0
+		for _, seen := range s.seen {
+			if seen {
+				cols++
+			}
+		}
+		size = max(need, min(est, max(int(s.hint)/(8*cols), 2*have)))
 	}
 	if s.maxRows > 0 {
 		size = min(size, max(need, s.maxRows+1))

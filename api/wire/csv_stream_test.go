@@ -263,3 +263,28 @@ func TestCSVStreamLongLines(t *testing.T) {
 		})
 	}
 }
+
+// TestCSVStreamRoomWithinDeclaredLength: after the first block of a body
+// of the shortest rows ("1,2\n", 16 bytes of columns for 4 bytes of
+// body), the columns made take no more bytes than the declared length;
+// the rows that follow grow them, and every row is read.
+func TestCSVStreamRoomWithinDeclaredLength(t *testing.T) {
+	body := []byte("x,y\n" + strings.Repeat("1,2\n", 1<<20))
+	st := NewCSVStream(nil, &Limits{}, int64(len(body)))
+	const block = 256 << 10
+	copy(st.Room(block), body[:block])
+	st.Got(block)
+	if made := 8 * 2 * cap(st.cols[0]); made > len(body) {
+		t.Fatalf("after the first block: %d bytes of columns for a body of %d", made, len(body))
+	}
+	for i := block; i < len(body); {
+		k := min(block, len(body)-i)
+		copy(st.Room(k), body[i:i+k])
+		st.Got(k)
+		i += k
+	}
+	d, err := st.Finish()
+	if err != nil || d.Len() != 1<<20 {
+		t.Fatalf("%v, %d points", err, d.Len())
+	}
+}
