@@ -2,6 +2,7 @@ package api
 
 import (
 	"context"
+	"net/url"
 
 	"eivfit/api/report"
 	"eivfit/api/wire"
@@ -14,7 +15,11 @@ import (
 var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
 	fromJSON: wire.DecodeFitJSON,
 	fromCSV:  wire.FitFromCSV,
-	source:   (*wire.FitRequest).Source,
+	streamCSV: func(q url.Values, lim *wire.Limits, declared int64) (*wire.CSVStream, func() (*wire.FitRequest, error), bool) {
+		st, rest, ok := wire.FitCSVStream(q, lim, declared)
+		return st, func() (*wire.FitRequest, error) { return wire.FinishFit(st, rest) }, ok
+	},
+	source: (*wire.FitRequest).Source,
 	compute: func(ctx context.Context, req *wire.FitRequest, set study.Settings) (*study.FitResult, error) {
 		return study.Fit(ctx, req.Points.Data, req.Options(set))
 	},

@@ -30,10 +30,13 @@ import (
 type endpoint[Req, Res any] struct {
 	fromJSON func(io.Reader) (Req, error)
 	fromCSV  func(io.Reader, url.Values) (Req, error)
-	source   func(Req) *wire.Source
-	compute  func(context.Context, Req, study.Settings) (Res, error)
-	answer   func(Req, Res) any
-	points   func(Res) int
+	// streamCSV, when set, starts decoding a CSV body with the options q
+	// while it arrives (serveStream); ok false leaves the body to fromCSV.
+	streamCSV func(q url.Values, lim *wire.Limits, declared int64) (st *wire.CSVStream, finish func() (Req, error), ok bool)
+	source    func(Req) *wire.Source
+	compute   func(context.Context, Req, study.Settings) (Res, error)
+	answer    func(Req, Res) any
+	points    func(Res) int
 	// record, when set, lets the endpoint's computations be saved as
 	// studies (studies.go).
 	record *recordSpec[Req, Res]
@@ -92,8 +95,13 @@ func solve[Req, Res any](ctx context.Context, s *Server, e *endpoint[Req, Res], 
 // Accept: text/html) the HTML report, drawn in a compute slot. An endpoint
 // without fromCSV takes JSON only; a nil page means JSON only.
 func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page pageOf[Req, Res]) {
-	kind, body, release := s.open(c, e.fromCSV != nil)
-	if kind == "" {
+	kind := s.mediaType(c, e.fromCSV != nil)
+	if kind == "" || kind == "csv" && serveStream(s, c, e, page) {
+		return
+	}
+	body, release, p := s.body(c)
+	if p != nil {
+		s.problem(c, p)
 		return
 	}
 	defer release()
@@ -152,6 +160,65 @@ func serve[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page 
 	c.Data(http.StatusOK, "application/json", a.json)
 	a.enc.Free() // written: the connection's buffer holds a copy
 }
+
+// serveStream answers a CSV request whose body is decoded while it
+// arrives, so that the body is never held whole: when the endpoint can
+// stream it, the answer is JSON, and neither the report (which hashes the
+// body) nor a saved study (which stores it) needs the bytes. It says
+// false, having read and written nothing, when the request takes serve's
+// path. The body is read within the same limits, budget and timeouts, and
+// every problem is the one serve would give, in the same order: the
+// body's own (413, 408, 503), then the data's, then the computation's.
+func serveStream[Req, Res any](s *Server, c *gin.Context, e *endpoint[Req, Res], page pageOf[Req, Res]) bool {
+	if e.streamCSV == nil || page != nil && wantsHTML(c) {
+		return false
+	}
+	q, err := wire.ParseQuery(c.Request.URL.RawQuery)
+	if err != nil {
+		return false
+	}
+	if e.record != nil && s.store != nil {
+		for _, k := range []string{"save", "label", "tag", "tags"} {
+			if q.Has(k) {
+				return false
+			}
+		}
+	}
+	st, finish, ok := e.streamCSV(q, &s.limits, c.Request.ContentLength)
+	if !ok {
+		return false
+	}
+	release, p := s.readBody(c, streamSink{st})
+	if p != nil {
+		s.problem(c, p)
+		return true
+	}
+	defer release()
+	if st.Len() >= collectAfterBytes {
+		defer func() { go runtime.GC() }()
+	}
+	req, err := finish()
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return true
+	}
+	a, err := inSlot(s, c, func(ctx context.Context) (*answer[Req, Res], error) { return solve(ctx, s, e, req) })
+	if err != nil {
+		s.problem(c, s.problemFor(c, err))
+		return true
+	}
+	c.Data(http.StatusOK, "application/json", a.json)
+	a.enc.Free()
+	return true
+}
+
+// streamSink hands a body to a CSV stream as it is read; the stream keeps
+// no room ahead of the bytes, so grow only agrees.
+type streamSink struct{ st *wire.CSVStream }
+
+func (t streamSink) grow(size int64) int64 { return size }
+func (t streamSink) room(k int) []byte     { return t.st.Room(k) }
+func (t streamSink) got(k int)             { t.st.Got(k) }
 
 // collectAfterBytes is the body size after whose request the garbage is
 // collected at once: with the GC target at 400 % a large request's body,
@@ -311,10 +378,46 @@ const smallBody = 4 << 10
 // ReadTimeout, is answered 408; a body that cannot get budget within
 // SlotWait is answered 503 naming the memory budget.
 func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
+	m := &memBody{}
+	if n := c.Request.ContentLength; n >= 0 && n <= s.cfg.MaxBodyBytes {
+		// A declared length is read into one buffer with a byte to spare,
+		// so that the EOF after it is seen without growing (pages become
+		// resident only as bytes arrive).
+		m.buf = make([]byte, 0, n+1)
+	}
+	release, p := s.readBody(c, m)
+	if p != nil {
+		return nil, nil, p
+	}
+	return wire.NewBody(m.buf, &s.limits), release, nil
+}
+
+// bodySink is where readBody puts a body's bytes: grow makes room for at
+// least size bytes in all and says how many it holds; room gives k bytes
+// after those read, got takes the k just read into them.
+type bodySink interface {
+	grow(size int64) int64
+	room(k int) []byte
+	got(k int)
+}
+
+// memBody keeps the whole body in one buffer.
+type memBody struct{ buf []byte }
+
+func (m *memBody) grow(size int64) int64 {
+	m.buf = slices.Grow(m.buf, int(size)-len(m.buf))
+	return int64(cap(m.buf))
+}
+func (m *memBody) room(k int) []byte { return m.buf[len(m.buf) : len(m.buf)+k] }
+func (m *memBody) got(k int)         { m.buf = m.buf[:len(m.buf)+k] }
+
+// readBody reads the request body into sink with the limits, budget and
+// timeouts body describes, growing the sink as body grows its buffer.
+func (s *Server) readBody(c *gin.Context, sink bodySink) (func(), *wire.Problem) {
 	n := c.Request.ContentLength
 	limit := s.cfg.MaxBodyBytes
 	if n > limit {
-		return nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
+		return nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body (%d bytes) exceeds this server's limit of %d bytes",
 			n, limit))
 	}
 	var held int64
@@ -338,33 +441,32 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 		held = upTo
 		return true
 	}
-	tooLarge := func() (*wire.Body, func(), *wire.Problem) {
+	tooLarge := func() (func(), *wire.Problem) {
 		release()
-		return nil, nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", limit))
+		return nil, wire.NewProblem(wire.KindTooLarge, fmt.Sprintf("the body exceeds this server's limit of %d bytes", limit))
 	}
 	rc := http.NewResponseController(c.Writer)
 	start := time.Now()
 	whole := start.Add(s.cfg.ReadTimeout)
-	// A declared length is read into one buffer with a byte to spare, so
-	// that the EOF after it is seen without growing (pages become resident
-	// only as bytes arrive); an undeclared one starts small and doubles,
-	// within the limit plus one byte to detect an overrun.
-	var buf []byte
+	// read bytes of room; a declared length has room for it and a byte to
+	// spare, an undeclared one starts small and doubles, within the limit
+	// plus one byte to detect an overrun.
+	var read, room int64
 	if n >= 0 {
-		buf = make([]byte, 0, n+1)
+		room = n + 1
 	}
 	r := c.Request.Body
 	for {
-		if len(buf) == cap(buf) {
-			if int64(len(buf)) > limit {
+		if read == room {
+			if read > limit {
 				return tooLarge()
 			}
-			grow := max(int64(cap(buf)), smallBody)
-			buf = slices.Grow(buf, int(min(grow, limit+1-int64(len(buf)))))
+			grow := max(room, smallBody)
+			room = sink.grow(read + min(grow, limit+1-read))
 		}
 		// Charge the next chunk before its pages are touched (not the
 		// spare byte after a declared length, which stays untouched).
-		end := min(int64(len(buf))+bodyChunk, int64(cap(buf)))
+		end := min(read+bodyChunk, room)
 		charged := end
 		if n >= 0 {
 			charged = min(end, n)
@@ -374,11 +476,12 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 			p := wire.NewProblem(wire.KindBodyBudget, fmt.Sprintf("the server is holding as many request-body bytes as its memory budget (%d bytes) allows, and none were freed within %v; retry later",
 				s.cfg.MaxInFlightBytes, s.cfg.SlotWait))
 			p.RetryAfter = 1
-			return nil, nil, p
+			return nil, p
 		}
 		_ = rc.SetReadDeadline(earliest(whole, time.Now().Add(s.cfg.BodyIdleTimeout)))
-		k, err := r.Read(buf[len(buf):end])
-		buf = buf[:len(buf)+k]
+		k, err := r.Read(sink.room(int(end - read)))
+		sink.got(k)
+		read += int64(k)
 		if err == io.EOF {
 			break
 		}
@@ -387,14 +490,14 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 			// The deadline stays in the past: the server then drops the
 			// rest of the body with the connection instead of reading it.
 			_ = rc.SetReadDeadline(time.Now())
-			return nil, nil, s.bodyReadProblem(c, err, time.Since(start))
+			return nil, s.bodyReadProblem(c, err, time.Since(start))
 		}
 	}
 	_ = rc.SetReadDeadline(time.Time{})
-	if int64(len(buf)) > limit {
+	if read > limit {
 		return tooLarge()
 	}
-	return wire.NewBody(buf, &s.limits), release, nil
+	return release, nil
 }
 
 func earliest(a, b time.Time) time.Time {

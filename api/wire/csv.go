@@ -198,22 +198,33 @@ func decodeFitCSV(rs *records, maxRows int, o *CSVOptions) ([]CSVGroup, error) {
 	if !seen[0] || !seen[1] {
 		return nil, Invalid(fmt.Sprintf("row %d", lay.line), "the header must name columns x and y")
 	}
+	if d := chunkFitRows(rs, lay, seen, maxRows, o); d != nil {
+		return finishFitCSV([]CSVGroup{{Data: d}}, lay, nil)
+	}
+	var d *Dataset
+	if lay.group < 0 {
+		d = newCSVDataset(seen, min(rs.linesLeft(), capLimit(maxRows)))
+	}
+	return fitRows(rs, lay, seen, maxRows, o, d)
+}
+
+// fitRows reads the data rows left in rs row by row into d (nil when the
+// rows are grouped), which holds the points of the rows before them: the
+// reader resumed where the streaming reader met a doubtful row
+// (csv_stream.go) continues as if it had read those rows itself.
+func fitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOptions, d *Dataset) ([]CSVGroup, error) {
 	dec := o.decimal()
 	skip := o.skip()
 	var missing missingRows
 	var skipped map[*Dataset][]SkippedRow
 	groups := []CSVGroup{}
 	index := map[string]int{}
-	if d := chunkFitRows(rs, lay, seen, maxRows, o); d != nil {
-		return finishFitCSV(append(groups, CSVGroup{Data: d}), lay, nil)
-	}
-	var d *Dataset
-	if lay.group < 0 {
-		d = newCSVDataset(seen, min(rs.linesLeft(), capLimit(maxRows)))
-		groups = append(groups, CSVGroup{Data: d})
-	}
-	first := true
 	points := 0
+	if d != nil {
+		groups = append(groups, CSVGroup{Data: d})
+		points = d.Len()
+	}
+	first := points == 0
 	var vals [7]float64
 	for {
 		fields, line, err := rs.next()

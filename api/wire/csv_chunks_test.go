@@ -19,20 +19,27 @@ var chunkSizes = []int{1, 2, 3, 5, 7, 11, 16, 31, 64, 200, 0}
 func sameDecode(body []byte, maxRows int, o *CSVOptions, chunk int) string {
 	want, werr := decodeCSVChunked(body, maxRows, o, -1)
 	got, gerr := decodeCSVChunked(body, maxRows, o, chunk)
+	return sameDataset(want, werr, got, gerr, fmt.Sprintf("chunks of %d", chunk))
+}
+
+// sameDataset says how got (read by the way named how) differs from want
+// ("" when it does not): the same problem, or the same columns bit for
+// bit, rows, notes and units.
+func sameDataset(want *Dataset, werr error, got *Dataset, gerr error, how string) string {
 	if werr != nil || gerr != nil {
 		if fmt.Sprintf("%#v", werr) != fmt.Sprintf("%#v", gerr) {
-			return fmt.Sprintf("row by row: %v; chunks of %d: %v", werr, chunk, gerr)
+			return fmt.Sprintf("row by row: %v; %s: %v", werr, how, gerr)
 		}
 		return ""
 	}
 	for _, c := range [][2][]float64{{want.X, got.X}, {want.Y, got.Y}, {want.SX, got.SX}, {want.SY, got.SY}, {want.R, got.R}, {want.Order, got.Order}} {
 		if !sameBits(c[0], c[1]) || (c[0] == nil) != (c[1] == nil) {
-			return fmt.Sprintf("chunks of %d: columns differ: %v and %v", chunk, c[0], c[1])
+			return fmt.Sprintf("%s: columns differ: %v and %v", how, c[0], c[1])
 		}
 	}
 	if pointRows(want) != pointRows(got) || fmt.Sprint(want.Input()) != fmt.Sprint(got.Input()) ||
 		want.xUnit != got.xUnit || want.yUnit != got.yUnit || want.csv != got.csv {
-		return fmt.Sprintf("chunks of %d: rows or notes differ: %s %v / %s %v", chunk, pointRows(want), want.Input(), pointRows(got), got.Input())
+		return fmt.Sprintf("%s: rows or notes differ: %s %v / %s %v", how, pointRows(want), want.Input(), pointRows(got), got.Input())
 	}
 	return ""
 }
@@ -184,10 +191,11 @@ func TestCSVChunksRandomBodies(t *testing.T) {
 }
 
 // FuzzCSVChunks: any body, in any dialect, reads the same in chunks of
-// 1, 3 and 17 bytes and row by row.
+// 1, 3 and 17 bytes and row by row, and streamed in blocks of 1, 2, 3, 17
+// and 4096 bytes (length declared or not) as read whole.
 func FuzzCSVChunks(f *testing.F) {
 	for _, s := range []string{"x,y\n1,2\n2,3\n", "x,y,sx,sy,r,order\n1,2,0.1,0.2,0,1\n2,3,1,1,0.5,2\n", "# c\nx,y\n\n1,2\r\n#\n3,4",
-		"x,y\n1,2\n2,a\n3,\n", "x,y\n1, 2\n2 ,3\n"} {
+		"x,y\n1,2\n2,a\n3,\n", "x,y\n1, 2\n2 ,3\n", "x,y\n1,2\n\"3\",4\n", "\xef\xbb\xbfx,y\r\n1,2\r\n"} {
 		f.Add([]byte(s))
 	}
 	f.Fuzz(func(t *testing.T, body []byte) {
@@ -199,6 +207,9 @@ func FuzzCSVChunks(f *testing.F) {
 			if d := sameDecode(body, 0, o, k); d != "" {
 				t.Fatal(d)
 			}
+		}
+		if d, _ := sameStream(body, 0, o, []int{1, 2, 3, 17, 4096}); d != "" {
+			t.Fatal(d)
 		}
 	})
 }

@@ -3,6 +3,7 @@ package wire
 import (
 	"bytes"
 	"encoding/csv"
+	"errors"
 	"fmt"
 	"io"
 	"strings"
@@ -79,6 +80,9 @@ type records struct {
 	// chunk is the chunk size in bytes of the parallel row reader
 	// (csv_chunks.go): 0 for the default, negative to read row by row.
 	chunk int
+	// base is the number of lines before body (a body resumed after the
+	// rows the streaming reader took, csv_stream.go).
+	base int
 }
 
 func newRecords(body []byte, o *CSVOptions) *records {
@@ -108,9 +112,15 @@ func (r *records) next() ([][]byte, int, error) {
 			if err == io.EOF {
 				return nil, 0, err
 			}
+			var pe *csv.ParseError
+			if errors.As(err, &pe) {
+				pe.StartLine += r.base
+				pe.Line += r.base
+			}
 			return nil, 0, csvReadError(err)
 		}
 		r.line, _ = r.std.FieldPos(0)
+		r.line += r.base
 		r.fields = r.fields[:0]
 		for _, f := range rec {
 			r.fields = append(r.fields, []byte(f))

@@ -102,12 +102,13 @@ func cliFit(ctx context.Context, path string) (time.Duration, error) {
 	return d, runErr
 }
 
-// serverFit posts body to /v1/fit on a fresh child server and returns the
+// serverFit posts body to /v1/fit on a fresh child server (with its
+// length declared, or sent chunked without one) and returns the
 // server's own time for it (the sum of eivfit_http_request_duration_seconds,
 // read from /metrics before and after; best of three requests) and the
 // child's peak resident memory over one such request (VmHWM after
 // resetting it through /proc/PID/clear_refs; 0 where Linux does not allow).
-func serverFit(ctx context.Context, body []byte, contentType, query string) (time.Duration, int64, error) {
+func serverFit(ctx context.Context, body []byte, contentType, query string, chunked bool) (time.Duration, int64, error) {
 	cctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	base, child, err := startServer(cctx, "--max-body-mib", strconv.Itoa(2*len(body)>>20+1))
@@ -148,7 +149,11 @@ func serverFit(ctx context.Context, body []byte, contentType, query string) (tim
 		if err != nil {
 			return 0, 0, err
 		}
-		resp, err := client.Post(base+"/v1/fit"+query, contentType, bytes.NewReader(body))
+		var r io.Reader = bytes.NewReader(body)
+		if chunked {
+			r = io.MultiReader(r) // a reader of unknown length: sent chunked
+		}
+		resp, err := client.Post(base+"/v1/fit"+query, contentType, r)
 		if err != nil {
 			return 0, 0, err
 		}
@@ -208,11 +213,13 @@ func benchIngest(ctx context.Context, stdout, stderr io.Writer, b ingestBodies, 
 		name, ctype, query string
 		body               []byte
 		dec                time.Duration
+		chunked            bool
 	}{
-		{"POST /v1/fit, CSV, York (server time)", "text/csv", "?methods=york", b.csv, csvT[last]},
-		{"POST /v1/fit, JSON, York (server time)", "application/json", "", b.json, jsonT[last]},
+		{"POST /v1/fit, CSV, York (server time)", "text/csv", "?methods=york", b.csv, csvT[last], false},
+		{"POST /v1/fit, CSV sent chunked, York (server time)", "text/csv", "?methods=york", b.csv, csvT[last], true},
+		{"POST /v1/fit, JSON, York (server time)", "application/json", "", b.json, jsonT[last], false},
 	} {
-		d, peak, err := serverFit(ctx, c.body, c.ctype, c.query)
+		d, peak, err := serverFit(ctx, c.body, c.ctype, c.query, c.chunked)
 		if err != nil {
 			fmt.Fprintf(stderr, "eivfit bench: %s: %v\n", c.name, err)
 			continue

@@ -1,0 +1,430 @@
+package wire
+
+import (
+	"bytes"
+	"io"
+	"net/url"
+	"slices"
+)
+
+// Reading a fit CSV while its body arrives. The server hands the stream
+// each block as it is read (Room, then Got); the stream cuts the block at
+// its last line break, parses the complete lines straight into columns
+// that grow (sized from the declared length and the bytes per line seen so
+// far, so that a large body is sized about once), carries the partial line
+// to the next block and drops the rest. The body itself is never held.
+//
+// The stream takes the same rows as the chunk reader (csv_chunks.go) and
+// nothing else:
+//   - a header it cannot stream (a quote before or in it, options or
+//     columns the chunk reader leaves to the row-by-row reader, or any fault)
+//     makes it keep the whole body and decode it after the last byte as
+//     DecodeCSVWith does;
+//   - at the first doubtful line (one parseChunkRows refuses, or the row
+//     past the limit) it keeps the rest of the body from the start of that
+//     line, and when the body is complete resumes the row-by-row reader
+//     there (fitRows) with the points taken so far and the line count
+//     before it.
+//
+// Why the resumed reader answers exactly as the whole-body reader: every
+// line before the resume point is a data row the chunk reader accepts
+// (no quote in it), a blank line or a comment, which both the plain scan
+// and encoding/csv skip whole, quotes and all; so the row-by-row reader
+// takes the same numbers from them, refuses none and lists nothing as
+// missing, and after such a line it is (plain scan or encoding/csv, chosen
+// by whether a quote follows) in the state it has at the start of a body.
+// Its first fault is therefore at or after the resume point, named with
+// the line count carried over (records.base).
+// Decoding errors wait for the whole body, so that a body over the limit or
+// too slow is answered as before (413, 408).
+
+// CSVStream decodes a plain fit CSV as it arrives (see above).
+type CSVStream struct {
+	o        *CSVOptions
+	maxRows  int
+	hint     int64 // the declared length, or -1
+	received int64
+	mode     streamMode
+
+	// buf holds the unparsed bytes (a partial line, or the header not yet
+	// complete), then room for the next read.
+	buf []byte
+
+	lay      *layout
+	seen     [7]bool
+	comma    byte
+	cols     [7][]float64 // slots: len is the room made, n are taken
+	fields   [][]float64
+	n        int
+	line     int // lines before buf
+	consumed int64
+	firstRow int   // the first row's line while the rows are consecutive
+	rows     []int // the rows' lines, once they are not
+
+	// kept is the whole body (keepWhole) or the body from the resume
+	// point (keepRest).
+	kept []byte
+}
+
+type streamMode int8
+
+const (
+	inHeader streamMode = iota
+	inRows
+	keepWhole
+	keepRest
+)
+
+// streamBlock is the smallest room a stream keeps for a block; a line
+// longer than that grows it.
+const streamBlock = 512 << 10
+
+// NewCSVStream starts a stream of a fit CSV in the dialect of o, with
+// the row limit of lim (nil: DefaultLimits) and the declared length (-1
+// when unknown).
+func NewCSVStream(o *CSVOptions, lim *Limits, declared int64) *CSVStream {
+	if lim == nil {
+		lim = &DefaultLimits
+	}
+	return &CSVStream{o: o, maxRows: lim.MaxPoints, hint: declared}
+}
+
+// Len is the number of bytes received.
+func (s *CSVStream) Len() int64 { return s.received }
+
+// Room returns k bytes to read the next bytes of the body into; Got says
+// how many were read.
+func (s *CSVStream) Room(k int) []byte {
+	if s.mode >= keepWhole {
+		if cap(s.kept)-len(s.kept) < k {
+			s.kept = slices.Grow(s.kept, k)
+		}
+		return s.kept[len(s.kept) : len(s.kept)+k]
+	}
+	if cap(s.buf)-len(s.buf) < k {
+		nb := make([]byte, len(s.buf), max(streamBlock, 2*cap(s.buf), len(s.buf)+k))
+		copy(nb, s.buf)
+		s.buf = nb
+	}
+	return s.buf[len(s.buf) : len(s.buf)+k]
+}
+
+// Got takes the k bytes just read into Room's slice.
+func (s *CSVStream) Got(k int) {
+	s.received += int64(k)
+	switch s.mode {
+	case keepWhole, keepRest:
+		s.kept = s.kept[:len(s.kept)+k]
+	default:
+		s.buf = s.buf[:len(s.buf)+k]
+		if bytes.IndexByte(s.buf[len(s.buf)-k:], '\n') < 0 {
+			return // no line completed (a long line is not scanned again)
+		}
+		if s.mode == inHeader {
+			s.header(false)
+		} else {
+			s.take(false)
+		}
+	}
+}
+
+// Finish decodes what is left once the body is complete: the dataset, or
+// the problem the row-by-row reader names.
+func (s *CSVStream) Finish() (*Dataset, error) {
+	if s.mode == inHeader {
+		s.header(true)
+	}
+	if s.mode == inRows {
+		s.take(true)
+	}
+	switch s.mode {
+	case keepWhole:
+		body := bytes.TrimPrefix(s.kept, []byte("\xef\xbb\xbf"))
+		s.kept = nil
+		return firstGroup(decodeFitCSV(newRecords(body, s.o), s.maxRows, s.o))
+	case inRows:
+		if s.n > 0 {
+			d := &Dataset{csv: true, rows: s.rows, firstRow: s.firstRow}
+			if s.rows != nil {
+				d.firstRow = 0
+			}
+			d.X, d.Y, d.SX, d.SY, d.R, d.Order = s.col(0), s.col(1), s.col(2), s.col(3), s.col(4), s.col(6)
+			return firstGroup(finishFitCSV([]CSVGroup{{Data: d}}, s.lay, nil))
+		}
+		s.resume(nil) // no data row: the row-by-row reader says what is wrong
+	}
+	// keepRest: the points so far, then the row-by-row reader.
+	d := &Dataset{csv: true, rows: s.rows}
+	if d.rows == nil {
+		d.rows = make([]int, s.n, s.n+s.n/64+16)
+		for i := range d.rows {
+			d.rows[i] = s.firstRow + i
+		}
+	}
+	for k, c := range s.cols {
+		switch {
+		case c != nil:
+			c = c[:s.n]
+		case s.seen[k]:
+			c = []float64{} // a column named but no row read yet
+		}
+		switch k {
+		case 0:
+			d.X = c
+		case 1:
+			d.Y = c
+		case 2:
+			d.SX = c
+		case 3:
+			d.SY = c
+		case 4:
+			d.R = c
+		case 6:
+			d.Order = c
+		}
+	}
+	rs := newRecords(s.kept, s.o)
+	rs.chunk, rs.line, rs.base = -1, s.line, s.line
+	s.kept = nil
+	return firstGroup(fitRows(rs, s.lay, s.seen, s.maxRows, s.o, d))
+}
+
+// col is column k of the points taken, without spare room.
+func (s *CSVStream) col(k int) []float64 {
+	if s.cols[k] == nil {
+		return nil
+	}
+	return s.cols[k][:s.n:s.n]
+}
+
+// header reads the header once its line is complete (or the body has
+// ended) and decides whether the rows can be streamed.
+func (s *CSVStream) header(eof bool) {
+	body := s.buf
+	if len(body) < 3 && !eof {
+		return // the byte-order mark is not yet known
+	}
+	body = bytes.TrimPrefix(body, []byte("\xef\xbb\xbf"))
+	complete := body
+	if !eof {
+		complete = body[:bytes.LastIndexByte(body, '\n')+1]
+	}
+	rs := &records{body: complete, comma: s.o.comma()}
+	fields, line, err := rs.next()
+	if err == io.EOF && !eof {
+		if len(complete) > 2*streamBlock {
+			s.keepAll() // a long preamble is not scanned again at every block
+		}
+		return // only comments and blank lines so far
+	}
+	end := len(complete) - len(rs.body)
+	if err != nil || bytes.IndexByte(complete[:end], '"') >= 0 {
+		s.keepAll()
+		return
+	}
+	lay, err := readHeader(fields, line, s.o, func(k string) int { return indexOf(csvColumns, k) }, fitRoleIndex, "")
+	if err != nil || !s.streams(lay) {
+		s.keepAll()
+		return
+	}
+	s.lay, s.comma, s.line, s.mode = lay, rs.comma, line, inRows
+	s.consumed = int64(len(s.buf) - len(body) + end)
+	s.buf = s.buf[:copy(s.buf, body[end:])]
+	s.take(eof)
+}
+
+// streams says whether the rows under header lay are read as the chunk
+// reader reads them (chunkFitRows's conditions), and notes its columns.
+func (s *CSVStream) streams(lay *layout) bool {
+	if !s.o.plain() || s.o.decimal() != '.' || lay.group >= 0 {
+		return false
+	}
+	var seen [7]bool
+	for _, k := range lay.roles {
+		if k < 0 || k == csvIDColumn || seen[k] {
+			return false
+		}
+		seen[k] = true
+	}
+	if !seen[0] || !seen[1] {
+		return false
+	}
+	s.seen = seen
+	return true
+}
+
+// keepAll gives up streaming before any row: the whole body is kept.
+func (s *CSVStream) keepAll() {
+	s.mode = keepWhole
+	s.kept = s.buf
+	if s.hint >= 0 && int64(cap(s.kept)) < s.hint+1 {
+		s.kept = make([]byte, len(s.buf), s.hint+1)
+		copy(s.kept, s.buf)
+	}
+	s.buf = nil
+}
+
+// resume stops streaming at rest, the body from the doubtful line on:
+// the rest of the body is kept for the row-by-row reader.
+func (s *CSVStream) resume(rest []byte) {
+	s.mode = keepRest
+	size := int64(len(rest))
+	if s.hint >= 0 {
+		size += max(s.hint-s.received, 0) + 1
+	}
+	s.kept = append(make([]byte, 0, size), rest...)
+	s.buf = nil
+}
+
+// take parses the complete lines in buf (all of it at the end of the
+// body) into the columns, carries the partial line, and resumes at the
+// first doubtful line.
+func (s *CSVStream) take(eof bool) {
+	seg := s.buf
+	if !eof {
+		seg = seg[:bytes.LastIndexByte(seg, '\n')+1]
+	}
+	if len(seg) == 0 {
+		return
+	}
+	lines := bytes.Count(seg, []byte{'\n'})
+	if len(seg) > 0 && seg[len(seg)-1] != '\n' {
+		lines++
+	}
+	s.room(lines, int64(len(seg)))
+	got, ok := parseChunkRows(seg, s.comma, s.fields, s.n)
+	doubt := !ok
+	if s.maxRows > 0 && s.n+got > s.maxRows {
+		got, doubt = s.maxRows-s.n, true
+	}
+	off, offLines := len(seg), lines
+	if doubt {
+		off, offLines = afterRows(seg, got)
+	}
+	s.note(seg[:off], got, offLines)
+	s.n += got
+	s.line += offLines
+	s.consumed += int64(off)
+	if doubt {
+		s.resume(s.buf[off:])
+		return
+	}
+	s.buf = s.buf[:copy(s.buf, s.buf[off:])]
+}
+
+// room makes slots for lines more rows, about once for the whole body:
+// the rows still to come are estimated from the bytes per line so far and
+// the declared length (doubling when no length was declared). The columns
+// made ahead of the rows received never take more bytes than the declared
+// length, as the whole body's buffer did (an upload that stalls after its
+// first block holds no more than before); only bodies of very short rows
+// grow them again.
+func (s *CSVStream) room(lines int, segBytes int64) {
+	need := s.n + lines
+	have := len(s.cols[0])
+	if need <= have {
+		return
+	}
+	size := max(need, 2*have)
+	if s.hint >= 0 {
+		done := s.consumed + segBytes
+		perLine := float64(done) / float64(s.line+lines)
+		est := need + int(float64(max(s.hint-done, 0))/perLine*1.01) + 64
+		cols := 0
+		for _, seen := range s.seen {
+			if seen {
+				cols++
+			}
+		}
+		size = max(need, min(est, max(int(s.hint)/(8*cols), 2*have)))
+	}
+	if s.maxRows > 0 {
+		size = min(size, max(need, s.maxRows+1))
+	}
+	s.fields = s.fields[:0]
+	for k, seen := range s.seen {
+		if seen {
+			c := make([]float64, size)
+			copy(c, s.cols[k][:s.n])
+			s.cols[k] = c
+		}
+	}
+	for _, k := range s.lay.roles {
+		s.fields = append(s.fields, s.cols[k])
+	}
+}
+
+// note records the lines of the rows just taken from seg (whose first
+// line is s.line+1): a first line while they are consecutive, else a list.
+func (s *CSVStream) note(seg []byte, got, lines int) {
+	if got == 0 {
+		return
+	}
+	rows, first := dataLines(seg, s.line, got, lines)
+	if s.rows == nil && rows == nil && (s.n == 0 || first == s.firstRow+s.n) {
+		if s.n == 0 {
+			s.firstRow = first
+		}
+		return
+	}
+	if s.rows == nil {
+		s.rows = make([]int, s.n, s.n+got+got/8)
+		for i := range s.rows {
+			s.rows[i] = s.firstRow + i
+		}
+	}
+	if rows == nil {
+		for i := range got {
+			s.rows = append(s.rows, first+i)
+		}
+		return
+	}
+	s.rows = append(s.rows, rows...)
+}
+
+// afterRows is the offset in seg just past the line of its k-th data row
+// (0 for none) and the number of lines before that offset.
+func afterRows(seg []byte, k int) (off, lines int) {
+	for i := 0; i < len(seg) && k > 0; {
+		next, skip := skipLine(seg, i)
+		if !skip {
+			if j := bytes.IndexByte(seg[i:], '\n'); j >= 0 {
+				next = i + j + 1
+			} else {
+				next = len(seg)
+			}
+			k--
+		}
+		i, off = next, next
+		lines++
+	}
+	return off, lines
+}
+
+// FitCSVStream starts the streaming decode of a fit CSV whose options are
+// in q, or says (ok false) that the body is to be read whole and decoded
+// by FitFromCSV: options that cannot be taken (FitFromCSV names the fault
+// after the body has arrived, as always), group_by, or options the chunk
+// reader leaves to the row-by-row reader.
+func FitCSVStream(q url.Values, lim *Limits, declared int64) (st *CSVStream, rest url.Values, ok bool) {
+	o, rest, err := TakeCSVOptions(q)
+	if err != nil || !o.plain() || o.decimal() != '.' {
+		return nil, nil, false
+	}
+	return NewCSVStream(o, lim, declared), rest, true
+}
+
+// FinishFit is FitFromCSV's ending for a streamed body: the dataset, then
+// the fit options of rest.
+func FinishFit(st *CSVStream, rest url.Values) (*FitRequest, error) {
+	d, err := st.Finish()
+	if err != nil {
+		return nil, err
+	}
+	req, err := FitRequestFromQuery(rest, d)
+	if err != nil {
+		return nil, err
+	}
+	req.TakeUnits()
+	return req, nil
+}
