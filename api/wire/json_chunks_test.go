@@ -23,9 +23,9 @@ func readPoints(body []byte, lim Limits, plan *chunkPlan) (d Dataset, problem st
 	return d, "", p.pos
 }
 
-// sameDataset compares two datasets bit for bit, telling a nil column from
+// samePoints compares two datasets bit for bit, telling a nil column from
 // an empty one.
-func sameDataset(a, b Dataset) string {
+func samePoints(a, b Dataset) string {
 	for _, c := range []struct {
 		name string
 		a, b []float64
@@ -146,7 +146,7 @@ func TestPointsChunked(t *testing.T) {
 				if gotErr != wantErr {
 					t.Fatalf("%+v: error\n%s\none pass:\n%s", plan, gotErr, wantErr)
 				}
-				if d := sameDataset(got, want); d != "" || gotPos != wantPos {
+				if d := samePoints(got, want); d != "" || gotPos != wantPos {
 					t.Fatalf("%+v: %s; stopped at %d, one pass at %d", plan, d, gotPos, wantPos)
 				}
 			}
@@ -167,7 +167,7 @@ func FuzzPointsChunked(f *testing.F) {
 		if gotErr != wantErr {
 			t.Fatalf("error\n%s\none pass:\n%s", gotErr, wantErr)
 		}
-		if d := sameDataset(got, want); d != "" || gotPos != wantPos {
+		if d := samePoints(got, want); d != "" || gotPos != wantPos {
 			t.Fatalf("%s; stopped at %d, one pass at %d", d, gotPos, wantPos)
 		}
 	})
