@@ -74,10 +74,7 @@ func TestTestsInRunOrder(t *testing.T) {
 	for _, c := range residualCases {
 		t.Run(c.name, func(t *testing.T) {
 			e, level, ord := c.data()
-			eo, lo := make([]float64, c.n), make([]float64, c.n)
-			for k, i := range ord {
-				eo[k], lo[k] = e[i], level[i]
-			}
+			eo, lo := permuted(e, ord), permuted(level, ord)
 			got, err := eiv.DurbinWatsonInOrder(e, level, ord)
 			if err != nil {
 				t.Fatal(err)
@@ -118,15 +115,11 @@ func TestDurbinWatsonDense(t *testing.T) {
 		}
 		t.Run(c.name, func(t *testing.T) {
 			e, level, ord := c.data()
-			eo, lo := make([]float64, c.n), make([]float64, c.n)
-			for k, i := range ord {
-				eo[k], lo[k] = e[i], level[i]
-			}
 			got, err := eiv.DurbinWatsonInOrder(e, level, ord)
 			if err != nil {
 				t.Fatal(err)
 			}
-			mean, variance := denseDWMoments(lo)
+			mean, variance := denseDWMoments(permuted(level, ord))
 			z := (got.Statistic - mean) / math.Sqrt(variance)
 			closeRel(t, "DW p", got.PValue, 0.5*math.Erfc(-z/math.Sqrt2), 1e-10)
 		})
@@ -306,4 +299,13 @@ func TestBlandAltmanLimitsEqual(t *testing.T) {
 			}
 		})
 	}
+}
+
+// permuted is v read in the order ord (v[ord[0]], v[ord[1]], …).
+func permuted(v []float64, ord []int) []float64 {
+	out := make([]float64, len(ord))
+	for k, i := range ord {
+		out[k] = v[i]
+	}
+	return out
 }

@@ -421,10 +421,5 @@ func FinishFit(st *CSVStream, rest url.Values) (*FitRequest, error) {
 	if err != nil {
 		return nil, err
 	}
-	req, err := FitRequestFromQuery(rest, d)
-	if err != nil {
-		return nil, err
-	}
-	req.TakeUnits()
-	return req, nil
+	return fitRequestOf(d, rest)
 }

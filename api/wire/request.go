@@ -181,6 +181,12 @@ func FitFromCSV(r io.Reader, q url.Values) (*FitRequest, error) {
 	if err != nil {
 		return nil, err
 	}
+	return fitRequestOf(d, rest)
+}
+
+// fitRequestOf is the fit request of a decoded CSV dataset: the options of
+// rest, and the units the export's header or units row gave.
+func fitRequestOf(d *Dataset, rest url.Values) (*FitRequest, error) {
 	req, err := FitRequestFromQuery(rest, d)
 	if err != nil {
 		return nil, err
