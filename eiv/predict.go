@@ -207,7 +207,12 @@ func appendG(dst []byte, v float64, prec int, plus bool) []byte {
 
 func jackSE(jack [][]Line, stat Statistic) float64 {
 	n := float64(len(jack))
-	th := make([]float64, len(jack))
+	var small [64]float64 // a small sample's statistics stay on the stack
+	th := small[:0]
+	if len(jack) > len(small) {
+		th = make([]float64, 0, len(jack))
+	}
+	th = th[:len(jack)]
 	var m float64
 	for i, l := range jack {
 		th[i] = stat(l)

@@ -731,20 +731,26 @@ func yorkPass(x, y, sx, sy []float64, cx, cy, b float64) (s yorkSums, err error)
 		xp, yp := x[i]-cx, y[i]-cy
 		w2 := w * w
 		al, ga := w2*vy, w2*b*vx
-		t := xp * yp
-		s.w += w
-		s.wx += w * xp
-		s.wy += w * yp
-		s.num += al*t + ga*yp*yp
-		s.den += al*xp*xp + ga*t
-		s.a += al
-		s.aX += al * xp
-		s.aY += al * yp
-		s.g += ga
-		s.gX += ga * xp
-		s.gY += ga * yp
+		s.add(w, al, ga, xp, yp)
 	}
 	return s, nil
+}
+
+// add adds one point's terms: its weight w, α·W², γ·W² and its
+// coordinates about the centroid.
+func (s *yorkSums) add(w, al, ga, xp, yp float64) {
+	t := xp * yp
+	s.w += w
+	s.wx += w * xp
+	s.wy += w * yp
+	s.num += al*t + ga*yp*yp
+	s.den += al*xp*xp + ga*t
+	s.a += al
+	s.aX += al * xp
+	s.aY += al * yp
+	s.g += ga
+	s.gX += ga * xp
+	s.gY += ga * yp
 }
 
 // yorkPassR gathers the sums for correlated errors.
@@ -763,18 +769,7 @@ func yorkPassR(x, y, sx, sy, r []float64, cx, cy, b float64) (s yorkSums, err er
 		xp, yp := x[i]-cx, y[i]-cy
 		w2 := w * w
 		al, ga := w2*(vy-b*rho), w2*(b*vx-rho)
-		t := xp * yp
-		s.w += w
-		s.wx += w * xp
-		s.wy += w * yp
-		s.num += al*t + ga*yp*yp
-		s.den += al*xp*xp + ga*t
-		s.a += al
-		s.aX += al * xp
-		s.aY += al * yp
-		s.g += ga
-		s.gX += ga * xp
-		s.gY += ga * yp
+		s.add(w, al, ga, xp, yp)
 	}
 	return s, nil
 }

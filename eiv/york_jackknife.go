@@ -130,16 +130,30 @@ func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) 
 	return true
 }
 
-// pointSums are the sums of York's pass of point i alone.
+// pointSums are the sums of York's pass of point i alone: yorkPass's
+// (or yorkPassR's) arithmetic on the one point, without slicing the data.
 func pointSums(x, y, sx, sy, r []float64, i int, cx, cy, b float64) (yorkSums, bool) {
 	var s yorkSums
-	var err error
+	vx, vy := sx[i]*sx[i], sy[i]*sy[i]
+	b2 := b * b
+	var d, rho float64
 	if r == nil {
-		s, err = yorkPass(x[i:i+1], y[i:i+1], sx[i:i+1], sy[i:i+1], cx, cy, b)
+		d = vy + b2*vx
 	} else {
-		s, err = yorkPassR(x[i:i+1], y[i:i+1], sx[i:i+1], sy[i:i+1], r[i:i+1], cx, cy, b)
+		rho = r[i] * sx[i] * sy[i]
+		d = vy + b2*vx - 2*b*rho
 	}
-	return s, err == nil
+	if !(d > 0) {
+		return s, false
+	}
+	w := 1 / d
+	w2 := w * w
+	al, ga := w2*vy, w2*b*vx
+	if r != nil {
+		al, ga = w2*(vy-b*rho), w2*(b*vx-rho)
+	}
+	s.add(w, al, ga, x[i]-cx, y[i]-cy)
+	return s, true
 }
 
 // minus removes the sums of a part of the data.
