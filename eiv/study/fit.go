@@ -515,7 +515,8 @@ func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float6
 					pairs = takePairs(n)
 					defer pairs.put()
 				}
-				jack, flat := pairs.rows, pairs.flat
+				jack = pairs.rows
+				flat := pairs.flat
 				for i := range n {
 					flat[2*i] = eiv.Line{Intercept: jf.InterceptLOO[i], Slope: jf.SlopeLOO[i]}
 					flat[2*i+1] = eiv.Line{Intercept: jo.InterceptLOO[i], Slope: jo.SlopeLOO[i]}
