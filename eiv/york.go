@@ -309,6 +309,8 @@ type york struct {
 	// jackknife's, without copying the data).
 	skipping bool
 	skip     int
+	// first, when set, has the terms every refit's first pass shares.
+	first *jackFirst
 	// cx, cy are the weighted centroid of the last fit (the jackknife's warm start).
 	cx, cy float64
 	// scaled holds the rescaled copy of data of extreme magnitude.
@@ -614,7 +616,13 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 		var s yorkSums
 		var err error
 		if yk.skipping {
-			s, err = yk.passSkipping(x, y, sx, sy, r, cx, cy, b)
+			ok := false
+			if f := yk.first; f != nil && iter == 1 && cx == f.cx && cy == f.cy {
+				s, ok = f.skipping(yk.skip, b)
+			}
+			if !ok {
+				s, err = yk.passSkipping(x, y, sx, sy, r, cx, cy, b)
+			}
 		} else {
 			s, err = yorkPassAll(x, y, sx, sy, r, cx, cy, b)
 		}
@@ -1131,6 +1139,9 @@ func (yk *york) jackknife(x, y, sx, sy, r []float64, b float64, st0 yorkStartInf
 	// Ordinary data: each refit starts at its slope predicted from the
 	// full data's sums (bs holds the starts until it is overwritten).
 	predicted := !st0.hard && jackStarts(x, y, sx, sy, r, yk.cx, yk.cy, b, bs)
+	if !st0.hard {
+		jk.first = newJackFirst(x, y, sx, sy, r, yk.cx, yk.cy)
+	}
 	for i := range n {
 		jk.skip = i
 		if predicted {
