@@ -1138,9 +1138,10 @@ func (yk *york) jackknife(x, y, sx, sy, r []float64, b float64, st0 yorkStartInf
 	st := yorkStartInfo{cx: yk.cx, cy: yk.cy, b: b, hard: st0.hard, kappa: st0.kappa}
 	// Ordinary data: each refit starts at its slope predicted from the
 	// full data's sums (bs holds the starts until it is overwritten).
-	predicted := !st0.hard && jackStarts(x, y, sx, sy, r, yk.cx, yk.cy, b, bs)
+	predicted := false
 	if !st0.hard {
 		jk.first = newJackFirst(x, y, sx, sy, r, yk.cx, yk.cy)
+		predicted = jackStarts(x, y, sx, sy, r, jk.first, b, bs)
 	}
 	for i := range n {
 		jk.skip = i

@@ -29,20 +29,20 @@ const _ = uint(yorkJackNodes-6) + uint(6-yorkJackNodes)
 // their own data to the same tolerance, so a start costs passes, never
 // accuracy: a start that is not finite or lies outside the interval is
 // replaced by b. It returns false (starts untouched) when a pass fails.
-func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) bool {
+func jackStarts(x, y, sx, sy, r []float64, p *jackFirst, b float64, starts []float64) bool {
 	n := len(x)
-	full, err := yorkPassAll(x, y, sx, sy, r, cx, cy, b)
-	if err != nil {
+	full, ok := p.all(x, y, sx, sy, r, b)
+	if !ok {
 		return false
 	}
 	// The plain step of each refit from b: how far the refits move.
 	var reach float64
 	for i := range n {
-		p, ok := pointSums(x, y, sx, sy, r, i, cx, cy, b)
+		pi, ok := p.point(i, b)
 		if !ok {
 			return false
 		}
-		g, _, _, _ := full.minus(p).step()
+		g, _, _, _ := full.minus(pi).step()
 		if !allFinite(g) {
 			return false
 		}
@@ -66,8 +66,8 @@ func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) 
 		if k%2 == 1 {
 			weights[k] = -weights[k]
 		}
-		s, err := yorkPassAll(x, y, sx, sy, r, cx, cy, nodes[k])
-		if err != nil {
+		s, ok := p.all(x, y, sx, sy, r, nodes[k])
+		if !ok {
 			return false
 		}
 		for f, v := range s.fields() {
@@ -97,11 +97,11 @@ func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) 
 			v[f] = c[0]*row[0] + c[1]*row[1] + c[2]*row[2] + c[3]*row[3] + c[4]*row[4] + c[5]*row[5]
 		}
 		s := sumsOf(v)
-		p, ok := pointSums(x, y, sx, sy, r, i, cx, cy, t)
+		pi, ok := p.point(i, t)
 		if !ok {
 			return 0, false
 		}
-		g, _, _, _ := s.minus(p).step()
+		g, _, _, _ := s.minus(pi).step()
 		return g - t, allFinite(g)
 	}
 	for i := range n {
@@ -130,30 +130,24 @@ func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) 
 	return true
 }
 
-// pointSums are the sums of York's pass of point i alone: yorkPass's
-// (or yorkPassR's) arithmetic on the one point, without slicing the data.
-func pointSums(x, y, sx, sy, r []float64, i int, cx, cy, b float64) (yorkSums, bool) {
-	var s yorkSums
-	vx, vy := sx[i]*sx[i], sy[i]*sy[i]
-	b2 := b * b
-	var d, rho float64
-	if r == nil {
-		d = vy + b2*vx
-	} else {
-		rho = r[i] * sx[i] * sy[i]
-		d = vy + b2*vx - 2*b*rho
+// point is the sums of York's pass of point i alone at slope b.
+func (p *jackFirst) point(i int, b float64) (s yorkSums, ok bool) {
+	w, al, ga, ok := p.terms(i, b, b*b)
+	if ok {
+		s.add(w, al, ga, p.xp[i], p.yp[i])
 	}
-	if !(d > 0) {
-		return s, false
+	return s, ok
+}
+
+// all is yorkPassAll's sums at slope b about (cx, cy); the data in
+// chunks on every core from yorkParallelMinN points, as yorkPassAll
+// gathers them.
+func (p *jackFirst) all(x, y, sx, sy, r []float64, b float64) (yorkSums, bool) {
+	if len(x) < yorkParallelMinN {
+		return p.part(0, len(x), b)
 	}
-	w := 1 / d
-	w2 := w * w
-	al, ga := w2*vy, w2*b*vx
-	if r != nil {
-		al, ga = w2*(vy-b*rho), w2*(b*vx-rho)
-	}
-	s.add(w, al, ga, x[i]-cx, y[i]-cy)
-	return s, true
+	s, err := yorkPassAll(x, y, sx, sy, r, p.cx, p.cy, b)
+	return s, err == nil
 }
 
 // minus removes the sums of a part of the data.
