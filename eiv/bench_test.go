@@ -40,29 +40,39 @@ func BenchmarkYork(b *testing.B) {
 
 // BenchmarkYorkJackknife times a small York fit with its leave-one-out
 // standard errors (n = 40 is the service's small-fit case), with and
-// without correlated errors.
+// without correlated errors, and with one σx, σy for every point (as in
+// the service's small-fit benchmark body).
 func BenchmarkYorkJackknife(b *testing.B) {
 	for _, n := range []int{40, 400} {
 		for _, corr := range []bool{false, true} {
 			d := randomData(3, n, corr)
-			var r []float64
-			if corr {
-				r = d.r
-			}
-			b.Run(fmt.Sprintf("n=%d/corr=%v", n, corr), func(b *testing.B) {
-				b.ReportAllocs()
-				cpu0 := processCPU()
-				for b.Loop() {
-					f, err := eiv.York(d.x, d.y, d.sx, d.sy, r, &eiv.YorkOptions{Jackknife: true})
-					if err != nil || f.Jackknife == nil {
-						b.Fatal(err)
-					}
-					sinkFit = f
-				}
-				reportCPU(b, cpu0)
-			})
+			benchYorkJackknife(b, fmt.Sprintf("n=%d/corr=%v", n, corr), d, corr)
 		}
 	}
+	d := randomData(3, 40, false)
+	for i := range d.sx {
+		d.sx[i], d.sy[i] = d.sx[0], d.sy[0]
+	}
+	benchYorkJackknife(b, "n=40/equal-sigma", d, false)
+}
+
+func benchYorkJackknife(b *testing.B, name string, d dataset, corr bool) {
+	var r []float64
+	if corr {
+		r = d.r
+	}
+	b.Run(name, func(b *testing.B) {
+		b.ReportAllocs()
+		cpu0 := processCPU()
+		for b.Loop() {
+			f, err := eiv.York(d.x, d.y, d.sx, d.sy, r, &eiv.YorkOptions{Jackknife: true})
+			if err != nil || f.Jackknife == nil {
+				b.Fatal(err)
+			}
+			sinkFit = f
+		}
+		reportCPU(b, cpu0)
+	})
 }
 
 func BenchmarkDeming(b *testing.B) {

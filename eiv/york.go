@@ -309,6 +309,8 @@ type york struct {
 	// jackknife's, without copying the data).
 	skipping bool
 	skip     int
+	// first, when set, has the terms every refit's first pass shares.
+	first *jackFirst
 	// cx, cy are the weighted centroid of the last fit (the jackknife's warm start).
 	cx, cy float64
 	// scaled holds the rescaled copy of data of extreme magnitude.
@@ -614,7 +616,13 @@ func (yk *york) iterate(x, y, sx, sy, r []float64, cx, cy, b float64) (yorkLine,
 		var s yorkSums
 		var err error
 		if yk.skipping {
-			s, err = yk.passSkipping(x, y, sx, sy, r, cx, cy, b)
+			ok := false
+			if f := yk.first; f != nil && iter == 1 && cx == f.cx && cy == f.cy {
+				s, ok = f.skipping(yk.skip, b)
+			}
+			if !ok {
+				s, err = yk.passSkipping(x, y, sx, sy, r, cx, cy, b)
+			}
 		} else {
 			s, err = yorkPassAll(x, y, sx, sy, r, cx, cy, b)
 		}
@@ -731,20 +739,26 @@ func yorkPass(x, y, sx, sy []float64, cx, cy, b float64) (s yorkSums, err error)
 		xp, yp := x[i]-cx, y[i]-cy
 		w2 := w * w
 		al, ga := w2*vy, w2*b*vx
-		t := xp * yp
-		s.w += w
-		s.wx += w * xp
-		s.wy += w * yp
-		s.num += al*t + ga*yp*yp
-		s.den += al*xp*xp + ga*t
-		s.a += al
-		s.aX += al * xp
-		s.aY += al * yp
-		s.g += ga
-		s.gX += ga * xp
-		s.gY += ga * yp
+		s.add(w, al, ga, xp, yp)
 	}
 	return s, nil
+}
+
+// add adds one point's terms: its weight w, α·W², γ·W² and its
+// coordinates about the centroid.
+func (s *yorkSums) add(w, al, ga, xp, yp float64) {
+	t := xp * yp
+	s.w += w
+	s.wx += w * xp
+	s.wy += w * yp
+	s.num += al*t + ga*yp*yp
+	s.den += al*xp*xp + ga*t
+	s.a += al
+	s.aX += al * xp
+	s.aY += al * yp
+	s.g += ga
+	s.gX += ga * xp
+	s.gY += ga * yp
 }
 
 // yorkPassR gathers the sums for correlated errors.
@@ -763,18 +777,7 @@ func yorkPassR(x, y, sx, sy, r []float64, cx, cy, b float64) (s yorkSums, err er
 		xp, yp := x[i]-cx, y[i]-cy
 		w2 := w * w
 		al, ga := w2*(vy-b*rho), w2*(b*vx-rho)
-		t := xp * yp
-		s.w += w
-		s.wx += w * xp
-		s.wy += w * yp
-		s.num += al*t + ga*yp*yp
-		s.den += al*xp*xp + ga*t
-		s.a += al
-		s.aX += al * xp
-		s.aY += al * yp
-		s.g += ga
-		s.gX += ga * xp
-		s.gY += ga * yp
+		s.add(w, al, ga, xp, yp)
 	}
 	return s, nil
 }
@@ -1135,7 +1138,11 @@ func (yk *york) jackknife(x, y, sx, sy, r []float64, b float64, st0 yorkStartInf
 	st := yorkStartInfo{cx: yk.cx, cy: yk.cy, b: b, hard: st0.hard, kappa: st0.kappa}
 	// Ordinary data: each refit starts at its slope predicted from the
 	// full data's sums (bs holds the starts until it is overwritten).
-	predicted := !st0.hard && jackStarts(x, y, sx, sy, r, yk.cx, yk.cy, b, bs)
+	predicted := false
+	if !st0.hard {
+		jk.first = newJackFirst(x, y, sx, sy, r, yk.cx, yk.cy)
+		predicted = jackStarts(x, y, sx, sy, r, jk.first, b, bs)
+	}
 	for i := range n {
 		jk.skip = i
 		if predicted {

@@ -29,20 +29,20 @@ const _ = uint(yorkJackNodes-6) + uint(6-yorkJackNodes)
 // their own data to the same tolerance, so a start costs passes, never
 // accuracy: a start that is not finite or lies outside the interval is
 // replaced by b. It returns false (starts untouched) when a pass fails.
-func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) bool {
+func jackStarts(x, y, sx, sy, r []float64, p *jackFirst, b float64, starts []float64) bool {
 	n := len(x)
-	full, err := yorkPassAll(x, y, sx, sy, r, cx, cy, b)
-	if err != nil {
+	full, ok := p.all(x, y, sx, sy, r, b)
+	if !ok {
 		return false
 	}
 	// The plain step of each refit from b: how far the refits move.
 	var reach float64
 	for i := range n {
-		p, ok := pointSums(x, y, sx, sy, r, i, cx, cy, b)
+		pi, ok := p.point(i, b)
 		if !ok {
 			return false
 		}
-		g, _, _, _ := full.minus(p).step()
+		g, _, _, _ := full.minus(pi).step()
 		if !allFinite(g) {
 			return false
 		}
@@ -66,8 +66,8 @@ func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) 
 		if k%2 == 1 {
 			weights[k] = -weights[k]
 		}
-		s, err := yorkPassAll(x, y, sx, sy, r, cx, cy, nodes[k])
-		if err != nil {
+		s, ok := p.all(x, y, sx, sy, r, nodes[k])
+		if !ok {
 			return false
 		}
 		for f, v := range s.fields() {
@@ -97,11 +97,11 @@ func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) 
 			v[f] = c[0]*row[0] + c[1]*row[1] + c[2]*row[2] + c[3]*row[3] + c[4]*row[4] + c[5]*row[5]
 		}
 		s := sumsOf(v)
-		p, ok := pointSums(x, y, sx, sy, r, i, cx, cy, t)
+		pi, ok := p.point(i, t)
 		if !ok {
 			return 0, false
 		}
-		g, _, _, _ := s.minus(p).step()
+		g, _, _, _ := s.minus(pi).step()
 		return g - t, allFinite(g)
 	}
 	for i := range n {
@@ -130,15 +130,23 @@ func jackStarts(x, y, sx, sy, r []float64, cx, cy, b float64, starts []float64) 
 	return true
 }
 
-// pointSums are the sums of York's pass of point i alone.
-func pointSums(x, y, sx, sy, r []float64, i int, cx, cy, b float64) (yorkSums, bool) {
-	var s yorkSums
-	var err error
-	if r == nil {
-		s, err = yorkPass(x[i:i+1], y[i:i+1], sx[i:i+1], sy[i:i+1], cx, cy, b)
-	} else {
-		s, err = yorkPassR(x[i:i+1], y[i:i+1], sx[i:i+1], sy[i:i+1], r[i:i+1], cx, cy, b)
+// point is the sums of York's pass of point i alone at slope b.
+func (p *jackFirst) point(i int, b float64) (s yorkSums, ok bool) {
+	w, al, ga, ok := p.terms(i, b, b*b)
+	if ok {
+		s.add(w, al, ga, p.xp[i], p.yp[i])
 	}
+	return s, ok
+}
+
+// all is yorkPassAll's sums at slope b about (cx, cy); the data in
+// chunks on every core from yorkParallelMinN points, as yorkPassAll
+// gathers them.
+func (p *jackFirst) all(x, y, sx, sy, r []float64, b float64) (yorkSums, bool) {
+	if len(x) < yorkParallelMinN {
+		return p.part(0, len(x), b)
+	}
+	s, err := yorkPassAll(x, y, sx, sy, r, p.cx, p.cy, b)
 	return s, err == nil
 }
 
@@ -158,4 +166,95 @@ func (s yorkSums) fields() [yorkSumFields]float64 {
 
 func sumsOf(v [yorkSumFields]float64) yorkSums {
 	return yorkSums{v[0], v[1], v[2], v[3], v[4], v[5], v[6], v[7], v[8], v[9], v[10]}
+}
+
+// jackFirst is what every refit's first pass shares: the refits all start
+// about the full fit's centroid (cx, cy), so each point's coordinates
+// about it and its variances are the same in every refit and are worked
+// out once. same says every point has the same σx, σy (and ρ): a point's
+// weight then depends on the slope alone and is worked out once a pass.
+// The arithmetic is yorkPass's and yorkPassR's, so the sums are theirs
+// bit for bit.
+type jackFirst struct {
+	cx, cy         float64
+	xp, yp, vx, vy []float64
+	rho            []float64 // nil without correlations
+	same           bool
+}
+
+// newJackFirst works out the shared terms about (cx, cy).
+func newJackFirst(x, y, sx, sy, r []float64, cx, cy float64) *jackFirst {
+	n := len(x)
+	k := 4
+	if r != nil {
+		k = 5
+	}
+	buf := make([]float64, k*n)
+	p := &jackFirst{cx: cx, cy: cy, xp: buf[:n], yp: buf[n : 2*n], vx: buf[2*n : 3*n], vy: buf[3*n : 4*n], same: true}
+	if r != nil {
+		p.rho = buf[4*n:]
+	}
+	for i := range n {
+		p.xp[i], p.yp[i] = x[i]-cx, y[i]-cy
+		p.vx[i], p.vy[i] = sx[i]*sx[i], sy[i]*sy[i]
+		p.same = p.same && p.vx[i] == p.vx[0] && p.vy[i] == p.vy[0]
+		if r != nil {
+			p.rho[i] = r[i] * sx[i] * sy[i]
+			p.same = p.same && p.rho[i] == p.rho[0]
+		}
+	}
+	return p
+}
+
+// skipping is passSkipping's sums at slope b about (cx, cy): the points
+// before skip, then those after it. It returns false when a point's
+// combined variance is not positive (passSkipping then says which).
+func (p *jackFirst) skipping(skip int, b float64) (yorkSums, bool) {
+	s1, ok1 := p.part(0, skip, b)
+	s2, ok2 := p.part(skip+1, len(p.xp), b)
+	return s1.plus(s2), ok1 && ok2
+}
+
+func (p *jackFirst) part(lo, hi int, b float64) (s yorkSums, ok bool) {
+	b2 := b * b
+	if p.same && lo < hi {
+		w, al, ga, ok := p.terms(lo, b, b2)
+		if !ok {
+			return s, false
+		}
+		for i := lo; i < hi; i++ {
+			s.add(w, al, ga, p.xp[i], p.yp[i])
+		}
+		return s, true
+	}
+	for i := lo; i < hi; i++ {
+		w, al, ga, ok := p.terms(i, b, b2)
+		if !ok {
+			return s, false
+		}
+		s.add(w, al, ga, p.xp[i], p.yp[i])
+	}
+	return s, true
+}
+
+// terms are point i's weight W and α·W², γ·W² at slope b (b2 = b²).
+func (p *jackFirst) terms(i int, b, b2 float64) (w, al, ga float64, ok bool) {
+	vx, vy := p.vx[i], p.vy[i]
+	if p.rho == nil {
+		d := vy + b2*vx
+		if !(d > 0) {
+			return 0, 0, 0, false
+		}
+		w = 1 / d
+		w2 := w * w
+		return w, w2 * vy, w2 * b * vx, true
+	}
+	rho := p.rho[i]
+	d := vy + b2*vx - 2*b*rho
+	if !(d > 0) {
+		return 0, 0, 0, false
+	}
+	w = 1 / d
+	w2 := w * w
+	return w, w2 * (vy - b*rho), w2 * (b*vx - rho), true
 }

@@ -33,6 +33,16 @@ func TestYorkJackknifePredictedStarts(t *testing.T) {
 	dom := randomData(77, 40, false)
 	dom.sx[5], dom.sy[5] = dom.sx[5]/1000, dom.sy[5]/1000
 	cases = append(cases, dcase{"dominating point", dom, false})
+	// Every point with the same σx, σy (and ρ), as when the uncertainties
+	// are stated once for each instrument: the refits' first passes work a
+	// point's weight out once for all points.
+	for _, corr := range []bool{false, true} {
+		eq := randomData(91, 40, corr)
+		for i := range eq.sx {
+			eq.sx[i], eq.sy[i], eq.r[i] = eq.sx[0], eq.sy[0], eq.r[0]
+		}
+		cases = append(cases, dcase{fmt.Sprintf("equal sigma/corr=%v", corr), eq, corr})
+	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			d := c.d

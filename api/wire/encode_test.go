@@ -228,3 +228,49 @@ func BenchmarkEncodeFit(b *testing.B) {
 func reportCPU(b *testing.B, start time.Duration) {
 	b.ReportMetric(float64(wiretest.CPUTime()-start)/float64(b.N), "cpu-ns/op")
 }
+
+// TestFitEncoderRepeatedLevels: a confidence level the answer has written
+// before is copied, not formatted again; on random answers whose levels
+// repeat (drawn from a few values, −0 and 'e'-format numbers among them)
+// the encoder still writes what encoding/json writes (the reference).
+func TestFitEncoderRepeatedLevels(t *testing.T) {
+	r := rand.New(rand.NewPCG(20, 2))
+	levels := []float64{0.95, 0.9, 0, math.Copysign(0, -1), 1e-7, 0.95 + 1e-16}
+	var setLevels func(v reflect.Value)
+	setLevels = func(v reflect.Value) {
+		switch v.Kind() {
+		case reflect.Pointer:
+			if !v.IsNil() {
+				setLevels(v.Elem())
+			}
+		case reflect.Struct:
+			for i := range v.NumField() {
+				if f := v.Type().Field(i); f.Name == "Level" && f.Type.Kind() == reflect.Float64 {
+					v.Field(i).SetFloat(levels[r.IntN(len(levels))])
+				} else if f.IsExported() {
+					setLevels(v.Field(i))
+				}
+			}
+		case reflect.Slice:
+			for i := range v.Len() {
+				setLevels(v.Index(i))
+			}
+		}
+	}
+	for i := range 1000 {
+		v := new(FitResponse)
+		fill(r, reflect.ValueOf(v).Elem(), 0)
+		setLevels(reflect.ValueOf(v).Elem())
+		want, err := referenceJSON(v)
+		if err != nil {
+			t.Fatalf("case %d: encoding/json: %v", i, err)
+		}
+		got, err := Marshal(v)
+		if err != nil {
+			t.Fatalf("case %d: %v", i, err)
+		}
+		if !bytes.Equal(got, want) {
+			t.Fatalf("case %d: got\n%s\nwant\n%s", i, got, want)
+		}
+	}
+}

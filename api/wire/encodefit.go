@@ -19,6 +19,11 @@ import (
 type jsonOut struct {
 	b         []byte
 	notFinite bool
+	// lvl is the last confidence level written (its bits) and where its
+	// digits are in b: a fit's answer writes the same level in every
+	// interval (nineteen times in a small fit's), formatted once.
+	lvl             uint64
+	lvlFrom, lvlEnd int
 }
 
 // key starts a member: a comma unless it is the object's first, then the
@@ -49,6 +54,18 @@ func (o *jsonOut) float(f float64) {
 			o.b = o.b[:n-1]
 		}
 	}
+}
+
+// level appends a confidence level as float does, copying the digits of
+// the last level written when it is the same number.
+func (o *jsonOut) level(f float64) {
+	if o.lvlEnd > 0 && math.Float64bits(f) == o.lvl {
+		o.b = append(o.b, o.b[o.lvlFrom:o.lvlEnd]...)
+		return
+	}
+	from := len(o.b)
+	o.float(f)
+	o.lvl, o.lvlFrom, o.lvlEnd = math.Float64bits(f), from, len(o.b)
 }
 
 func (o *jsonOut) int(i int) { o.b = strconv.AppendInt(o.b, int64(i), 10) }
@@ -303,7 +320,8 @@ func (o *jsonOut) ci(c *CI) {
 	o.b = append(o.b, `{"lower":`...)
 	o.float(c.Lower)
 	o.floatAt(`"upper":`, c.Upper)
-	o.floatAt(`"level":`, c.Level)
+	o.key(`"level":`)
+	o.level(c.Level)
 	o.strAt(`"method":`, c.Method)
 	o.b = append(o.b, '}')
 }

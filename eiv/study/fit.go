@@ -7,6 +7,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+	"sync"
 	"time"
 
 	"eivfit/eiv"
@@ -431,6 +432,7 @@ func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float6
 	n := s.Len()
 	var olsBias []*eiv.OLSComparison
 	olsFit := getFit(fits, "ols")
+	var pairs *jackPairs // the paired leave-one-out lines, shared by the methods compared
 	xlo, xhi := math.Inf(1), math.Inf(-1)
 	for _, v := range s.X {
 		xlo, xhi = math.Min(xlo, v), math.Max(xhi, v)
@@ -509,8 +511,12 @@ func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float6
 		if br == nil && n <= set.jackMax() && name != "passing_bablok" {
 			// The fits' own leave-one-out lines pair up without refitting.
 			if jf, jo := f.Fit.Jackknife, olsFit.Fit.Jackknife; jf != nil && jo != nil && len(jf.SlopeLOO) == n && len(jo.SlopeLOO) == n {
-				jack = make([][]eiv.Line, n)
-				flat := make([]eiv.Line, 2*n) // one allocation for all the pairs
+				if pairs == nil {
+					pairs = takePairs(n)
+					defer pairs.put()
+				}
+				jack = pairs.rows
+				flat := pairs.flat
 				for i := range n {
 					flat[2*i] = eiv.Line{Intercept: jf.InterceptLOO[i], Slope: jf.SlopeLOO[i]}
 					flat[2*i+1] = eiv.Line{Intercept: jo.InterceptLOO[i], Slope: jo.SlopeLOO[i]}
@@ -523,6 +529,38 @@ func finish(ctx context.Context, s eiv.Sample, fits []*MethodResult, at []float6
 		olsBias = append(olsBias, eiv.CompareOLS(olsFit.Fit, f.Fit, s.X, s.SX, at, br, jack))
 	}
 	return olsBias, nil
+}
+
+// jackPairs holds the paired leave-one-out lines (the method's, then
+// OLS's) that finish hands to eiv.CompareOLS, which reads them and keeps
+// none: rows[i] is flat[2i:2i+2]. They go back to pairsPool once the
+// comparisons are made, so a small fit allocates none of them.
+type jackPairs struct {
+	rows [][]eiv.Line
+	flat []eiv.Line
+}
+
+var pairsPool sync.Pool
+
+// takePairs returns pairs for n points from the pool (or new ones).
+func takePairs(n int) *jackPairs {
+	p, _ := pairsPool.Get().(*jackPairs)
+	if p == nil {
+		p = new(jackPairs)
+	}
+	if cap(p.rows) < n {
+		p.rows, p.flat = make([][]eiv.Line, n), make([]eiv.Line, 2*n)
+	}
+	p.rows, p.flat = p.rows[:n], p.flat[:2*n]
+	return p
+}
+
+// put returns p to the pool, unless it is large (a 10⁵-point jackknife's
+// would hold 5 MB between requests).
+func (p *jackPairs) put() {
+	if cap(p.rows) <= 1<<12 {
+		pairsPool.Put(p)
+	}
 }
 
 // PassingBablokJackknifeMaxN bounds the Passing–Bablok jackknife used for its
