@@ -51,3 +51,24 @@ func TestOpenInput(t *testing.T) {
 		})
 	}
 }
+
+// A file above parallelReadMin is read in parts at once; the buffer must be
+// the file byte for byte, whatever the number of parts (sizes that do not
+// divide evenly, one byte over the threshold).
+func TestReadInputFileParallel(t *testing.T) {
+	dir := t.TempDir()
+	for _, size := range []int{parallelReadMin - 1, parallelReadMin, parallelReadMin + 1, 3*parallelReadMin + 7} {
+		body := make([]byte, size)
+		for i := range body {
+			body[i] = byte(i*7 + i/251) // no period that a misplaced part could hide behind
+		}
+		file := filepath.Join(dir, "big.csv")
+		if err := os.WriteFile(file, body, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		got, err := readInputFile(file)
+		if err != nil || !bytes.Equal(got, body) {
+			t.Fatalf("size %d: read %d bytes (%v), not the file", size, len(got), err)
+		}
+	}
+}
