@@ -1036,6 +1036,18 @@ func closing(x, y, sx, sy, r []float64, ln yorkLine) yorkResult {
 		cov: -xbar * varB, s: math.Max(s, 0), xbar: xbar, ycentre: my + b*(xbar-mx), seCentre: math.Sqrt(1 / sw)}
 }
 
+// closingWeight is point i's variances, error covariance ρσxσy (0 when r
+// is nil) and York weight W = 1/(σy² + b²σx² − 2bρσxσy) at slope b, as the
+// closing and curvature passes take them (the iteration's passes keep
+// their own forms, with b² hoisted, which round differently).
+func closingWeight(sx, sy, r []float64, i int, b float64) (vx, vy, rho, w float64) {
+	vx, vy = sx[i]*sx[i], sy[i]*sy[i]
+	if r != nil {
+		rho = r[i] * sx[i] * sy[i]
+	}
+	return vx, vy, rho, 1 / (vy + b*b*vx - 2*b*rho)
+}
+
 // closingSums are the sums of the closing pass.
 type closingSums struct{ sw, su, sv, sb, sbb, sr float64 }
 
@@ -1047,12 +1059,7 @@ func closingPart(x, y, sx, sy, r []float64, b, cx, cy float64) closingSums {
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
 	var sw, su, sv, sb, sbb, sr float64
 	for i := range x {
-		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
-		rho := 0.0
-		if r != nil {
-			rho = r[i] * sx[i] * sy[i]
-		}
-		w := 1 / (vy + b*b*vx - 2*b*rho)
+		vx, vy, rho, w := closingWeight(sx, sy, r, i, b)
 		u, v := x[i]-cx, y[i]-cy
 		beta := w * (u*(vy-b*rho) + v*(b*vx-rho))
 		e := v - b*u
@@ -1091,12 +1098,7 @@ func curvaturePart(x, y, sx, sy, r []float64, b, cx, cy float64) curvatureSums {
 	y, sx, sy = y[:len(x)], sx[:len(x)], sy[:len(x)]
 	var sw, su, suu, c2, cu, ce float64
 	for i := range x {
-		vx, vy := sx[i]*sx[i], sy[i]*sy[i]
-		rho := 0.0
-		if r != nil {
-			rho = r[i] * sx[i] * sy[i]
-		}
-		w := 1 / (vy + b*b*vx - 2*b*rho)
+		vx, _, rho, w := closingWeight(sx, sy, r, i, b)
 		u := x[i] - cx
 		e := y[i] - cy - b*u
 		gam := b*vx - rho
