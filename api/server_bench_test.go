@@ -8,7 +8,6 @@ import (
 	"net/http"
 	"net/http/httptest"
 	"testing"
-	"time"
 
 	"eivfit/api/wire/wiretest"
 )
@@ -24,7 +23,7 @@ func BenchmarkSmallFit(b *testing.B) {
 	body := wiretest.SmallFit()
 	h := srv.Handler()
 	b.ReportAllocs()
-	defer reportCPU(b, wiretest.CPUTime())
+	defer wiretest.ReportCPU(b, wiretest.CPUTime())
 	for b.Loop() {
 		req := httptest.NewRequest("POST", "/v1/fit", bytes.NewReader(body))
 		req.Header.Set("Content-Type", "application/json")
@@ -58,7 +57,7 @@ func BenchmarkServerSmallFitLoopback(b *testing.B) {
 	body := wiretest.SmallFit()
 	b.ReportAllocs()
 	b.SetParallelism(2) // four goroutines on two cores
-	defer reportCPU(b, wiretest.CPUTime())
+	defer wiretest.ReportCPU(b, wiretest.CPUTime())
 	b.RunParallel(func(pb *testing.PB) {
 		for pb.Next() {
 			resp, err := client.Post(url, "application/json", bytes.NewReader(body))
@@ -74,10 +73,4 @@ func BenchmarkServerSmallFitLoopback(b *testing.B) {
 			}
 		}
 	})
-}
-
-// reportCPU reports the process's CPU time per operation since start
-// (wiretest.CPUTime).
-func reportCPU(b *testing.B, start time.Duration) {
-	b.ReportMetric(float64(wiretest.CPUTime()-start)/float64(b.N), "cpu-ns/op")
 }

@@ -9,7 +9,6 @@ import (
 	"math/rand/v2"
 	"reflect"
 	"testing"
-	"time"
 
 	"eivfit/api/wire/wiretest"
 	"eivfit/eiv/study"
@@ -201,7 +200,7 @@ func BenchmarkEncodeFit(b *testing.B) {
 	v := req.Response(res)
 	b.Run("direct", func(b *testing.B) {
 		b.ReportAllocs()
-		defer reportCPU(b, wiretest.CPUTime())
+		defer wiretest.ReportCPU(b, wiretest.CPUTime())
 		for b.Loop() {
 			e, err := Encode(v)
 			if err != nil {
@@ -212,7 +211,7 @@ func BenchmarkEncodeFit(b *testing.B) {
 	})
 	b.Run("encoding-json", func(b *testing.B) {
 		b.ReportAllocs()
-		defer reportCPU(b, wiretest.CPUTime())
+		defer wiretest.ReportCPU(b, wiretest.CPUTime())
 		var buf bytes.Buffer
 		for b.Loop() {
 			buf.Reset()
@@ -221,12 +220,6 @@ func BenchmarkEncodeFit(b *testing.B) {
 			}
 		}
 	})
-}
-
-// reportCPU reports the process's CPU time per operation since start
-// (wiretest.CPUTime).
-func reportCPU(b *testing.B, start time.Duration) {
-	b.ReportMetric(float64(wiretest.CPUTime()-start)/float64(b.N), "cpu-ns/op")
 }
 
 // TestFitEncoderRepeatedLevels: a confidence level the answer has written

@@ -4,19 +4,10 @@ import (
 	"bytes"
 	"fmt"
 	"runtime"
-	"syscall"
 	"testing"
-	"time"
-)
 
-// cpuTime is the process's user and system time so far.
-func cpuTime() time.Duration {
-	var ru syscall.Rusage
-	if syscall.Getrusage(syscall.RUSAGE_SELF, &ru) != nil {
-		return 0
-	}
-	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
-}
+	"eivfit/api/wire/wiretest"
+)
 
 // BenchmarkDecodeJSON reads a fit request of n points (x, y, sx, sy) as
 // the server does (a *Body it read: no copy) and through an io.Reader (a
@@ -33,7 +24,7 @@ func BenchmarkDecodeJSON(b *testing.B) {
 					defer runtime.GOMAXPROCS(runtime.GOMAXPROCS(procs))
 					b.ReportAllocs()
 					b.SetBytes(int64(len(j)))
-					cpu := cpuTime()
+					cpu := wiretest.CPUTime()
 					for b.Loop() {
 						var req *FitRequest
 						var err error
@@ -46,7 +37,7 @@ func BenchmarkDecodeJSON(b *testing.B) {
 							b.Fatal(err)
 						}
 					}
-					b.ReportMetric(float64(cpuTime()-cpu)/float64(b.N), "cpu-ns/op")
+					wiretest.ReportCPU(b, cpu)
 				})
 			}
 		}

@@ -11,6 +11,7 @@ import (
 	"path/filepath"
 	"strings"
 	"syscall"
+	"testing"
 	"time"
 )
 
@@ -22,6 +23,12 @@ func CPUTime() time.Duration {
 	var ru syscall.Rusage
 	_ = syscall.Getrusage(syscall.RUSAGE_SELF, &ru)
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// ReportCPU reports the CPU time per operation since start (a CPUTime
+// taken before the benchmark's loop) as cpu-ns/op.
+func ReportCPU(b *testing.B, start time.Duration) {
+	b.ReportMetric(float64(CPUTime()-start)/float64(b.N), "cpu-ns/op")
 }
 
 // SmallFit is the body of a small fit request (POST /v1/fit, JSON): 40
