@@ -142,20 +142,29 @@ func newCSVDataset(seen [7]bool, n int) *Dataset {
 }
 
 func (d *Dataset) put(k int, v float64) {
+	if c := d.column(k); c != nil {
+		*c = append(*c, v)
+	}
+}
+
+// column is the numeric column of CSV role k (csvColumns: x, y, sx, sy, r,
+// id, order); nil for the id.
+func (d *Dataset) column(k int) *[]float64 {
 	switch k {
 	case 0:
-		d.X = append(d.X, v)
+		return &d.X
 	case 1:
-		d.Y = append(d.Y, v)
+		return &d.Y
 	case 2:
-		d.SX = append(d.SX, v)
+		return &d.SX
 	case 3:
-		d.SY = append(d.SY, v)
+		return &d.SY
 	case 4:
-		d.R = append(d.R, v)
+		return &d.R
 	case 6:
-		d.Order = append(d.Order, v)
+		return &d.Order
 	}
+	return nil
 }
 
 func (d *Dataset) finishCSV() (*Dataset, error) {

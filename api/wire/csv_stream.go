@@ -168,19 +168,8 @@ func (s *CSVStream) Finish() (*Dataset, error) {
 		case s.seen[k]:
 			c = []float64{} // a column named but no row read yet
 		}
-		switch k {
-		case 0:
-			d.X = c
-		case 1:
-			d.Y = c
-		case 2:
-			d.SX = c
-		case 3:
-			d.SY = c
-		case 4:
-			d.R = c
-		case 6:
-			d.Order = c
+		if col := d.column(k); col != nil {
+			*col = c
 		}
 	}
 	rs := newRecords(s.kept, s.o)
