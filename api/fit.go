@@ -3,6 +3,7 @@ package api
 import (
 	"context"
 	"net/url"
+	"runtime"
 
 	"eivfit/api/report"
 	"eivfit/api/wire"
@@ -41,6 +42,9 @@ var fitEndpoint = &endpoint[*wire.FitRequest, *study.FitResult]{
 type fitAnswer = answer[*wire.FitRequest, *study.FitResult]
 
 func (s *Server) fitPage(ctx context.Context, a *fitAnswer, in report.Input) (*report.Page, error) {
+	if a.req.Points.Len() >= collectBeforeDrawing {
+		runtime.GC()
+	}
 	return report.FitReport(ctx, a.req, a.resp.(*wire.FitResponse), a.res, s.made(in))
 }
 

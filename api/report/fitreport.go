@@ -3,7 +3,6 @@ package report
 import (
 	"context"
 	"fmt"
-	"runtime"
 	"slices"
 	"strconv"
 
@@ -94,22 +93,10 @@ func fitSummary(resp *wire.FitResponse, fitName string, diag wire.DiagnosticsOut
 	return summary, append(alerts, failedChecks(diag)...)
 }
 
-// collectBeforeDrawing is the number of points from which FitReport runs
-// a garbage collection before it checks the residuals and draws: the
-// service's GC target (--gc-percent, 400 by default) would otherwise let
-// the checks' and plots' short-lived arrays pile up on the garbage of
-// decoding and fitting, which a collection at this point frees (at the
-// largest CSV, about 530,000 rows, the peak is 1.3 × the body lower,
-// for a few milliseconds; README, limits).
-const collectBeforeDrawing = 100_000
-
 // FitReport builds the HTML report of a line fit; drawing its plots stops
 // when ctx is done.
 func FitReport(ctx context.Context, req *wire.FitRequest, resp *wire.FitResponse, res *study.FitResult, made Made) (*Page, error) {
 	d := &req.Points.Data
-	if d.Len() >= collectBeforeDrawing {
-		runtime.GC()
-	}
 	ps, err := fitPlots(resp, res, d, "", true)
 	if err != nil {
 		return nil, err
