@@ -1,6 +1,7 @@
 package wire
 
 import (
+	"bytes"
 	"math"
 	"math/big"
 	"math/rand/v2"
@@ -194,6 +195,31 @@ func TestEightDigits(t *testing.T) {
 		got, ok := eightDigits(b)
 		if ok != (err == nil) || (ok && got != want) {
 			t.Fatalf("%q: %d, %v; strconv %d, %v", b, got, ok, want, err)
+		}
+	}
+}
+
+// BenchmarkScanFloat reads the numbers of a CSV body of x, y, sx, sy as
+// instruments write them (ten significant digits, lengths varying from
+// number to number), one core: ns/op is per number.
+func BenchmarkScanFloat(b *testing.B) {
+	body, _ := payloads(100_000)
+	body = body[bytes.IndexByte(body, '\n')+1:]
+	count := bytes.Count(body, []byte{'\n'}) * 4
+	b.SetBytes(int64(len(body) / count))
+	b.ResetTimer()
+	for range b.N / count {
+		var sum float64
+		for i := 0; i < len(body); {
+			v, end, ok := scanFloat(body, i)
+			if !ok {
+				b.Fatalf("at %d", i)
+			}
+			sum += v
+			i = end + 1
+		}
+		if sum == 0 {
+			b.Fatal("sum")
 		}
 	}
 }

@@ -72,21 +72,7 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 	if maxRows > 0 && total > maxRows+maxRows/64+64 {
 		return nil
 	}
-	d := &Dataset{csv: true}
-	// The columns are made (and so zeroed) on up to GOMAXPROCS goroutines,
-	// which share the cost of zeroing them.
-	var cols [7][]float64
-	var roles []int
-	for k, s := range seen {
-		if s {
-			roles = append(roles, k)
-		}
-	}
-	forChunks(len(roles), func(j int) { cols[roles[j]] = make([]float64, total) })
-	fields := make([][]float64, len(lay.roles))
-	for j, k := range lay.roles {
-		fields[j] = cols[k]
-	}
+	cols, fields := chunkColumns(seen, lay, total)
 	got := make([]int, chunks)
 	var failed atomic.Bool
 	forChunks(chunks, func(k int) {
@@ -102,22 +88,54 @@ func chunkFitRows(rs *records, lay *layout, seen [7]bool, maxRows int, o *CSVOpt
 	if failed.Load() {
 		return nil
 	}
-	// Close up the slots of comment and blank lines.
-	n := 0
-	for k := range chunks {
-		if from := lines[k]; from != n {
-			for _, c := range cols {
-				if c != nil {
-					copy(c[n:], c[from:from+got[k]])
-				}
-			}
-		}
-		n += got[k]
-	}
+	n := closeUp(&cols, lines, got)
 	if n == 0 || (maxRows > 0 && n > maxRows) {
 		return nil // the row-by-row reader names the fault
 	}
-	d.rows, d.firstRow = dataLines(body, rs.line, n, total)
+	rows, first := dataLines(body, rs.line, n, total)
+	return chunkDataset(cols, n, rows, first)
+}
+
+// chunkColumns makes the columns seen names with total slots each, on up
+// to GOMAXPROCS goroutines (which share the cost of zeroing them), and
+// lists them in the order of lay's fields.
+func chunkColumns(seen [7]bool, lay *layout, total int) (cols [7][]float64, fields [][]float64) {
+	var roles []int
+	for k, s := range seen {
+		if s {
+			roles = append(roles, k)
+		}
+	}
+	forChunks(len(roles), func(j int) { cols[roles[j]] = make([]float64, total) })
+	fields = make([][]float64, len(lay.roles))
+	for j, k := range lay.roles {
+		fields[j] = cols[k]
+	}
+	return cols, fields
+}
+
+// closeUp closes the slots of comment and blank lines: chunk k's got[k]
+// rows, read into the slots from first[k] on, move to follow the rows of
+// the chunks before it. It returns the number of rows.
+func closeUp(cols *[7][]float64, first, got []int) int {
+	n := 0
+	for k, g := range got {
+		if from := first[k]; from != n {
+			for _, c := range cols {
+				if c != nil {
+					copy(c[n:], c[from:from+g])
+				}
+			}
+		}
+		n += g
+	}
+	return n
+}
+
+// chunkDataset is the dataset of the first n slots of cols, whose rows
+// are on the lines rows (nil: first, first+1, …).
+func chunkDataset(cols [7][]float64, n int, rows []int, first int) *Dataset {
+	d := &Dataset{csv: true, rows: rows, firstRow: first}
 	d.X, d.Y, d.SX, d.SY, d.R, d.Order = cut(cols[0], n), cut(cols[1], n), cut(cols[2], n), cut(cols[3], n), cut(cols[4], n), cut(cols[6], n)
 	return d
 }
@@ -152,7 +170,7 @@ func chunkCuts(b []byte, size int) []int {
 // forChunks runs f(0) … f(n-1) on up to GOMAXPROCS goroutines (the
 // caller's among them), each taking the next chunk as it finishes one.
 func forChunks(n int, f func(k int)) {
-	workers := min(runtime.GOMAXPROCS(0), n)
+	workers := chunkWorkers(n)
 	if workers <= 1 {
 		for k := range n {
 			f(k)
@@ -176,6 +194,9 @@ func forChunks(n int, f func(k int)) {
 	work()
 	wg.Wait()
 }
+
+// chunkWorkers is the number of goroutines forChunks runs n chunks on.
+func chunkWorkers(n int) int { return max(min(runtime.GOMAXPROCS(0), n), 1) }
 
 // dataLines gives the lines of the n data rows of body, whose first line
 // is line+1: nil and the first row's line when they are consecutive (no

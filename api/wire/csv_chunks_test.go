@@ -192,7 +192,8 @@ func TestCSVChunksRandomBodies(t *testing.T) {
 
 // FuzzCSVChunks: any body, in any dialect, reads the same in chunks of
 // 1, 3 and 17 bytes and row by row, and streamed in blocks of 1, 2, 3, 17
-// and 4096 bytes (length declared or not) as read whole.
+// and 4096 bytes (length declared or not) and as a file in chunks of 1, 3,
+// 17 and 4096 bytes as read whole.
 func FuzzCSVChunks(f *testing.F) {
 	for _, s := range []string{"x,y\n1,2\n2,3\n", "x,y,sx,sy,r,order\n1,2,0.1,0.2,0,1\n2,3,1,1,0.5,2\n", "# c\nx,y\n\n1,2\r\n#\n3,4",
 		"x,y\n1,2\n2,a\n3,\n", "x,y\n1, 2\n2 ,3\n", "x,y\n1,2\n\"3\",4\n", "\xef\xbb\xbfx,y\r\n1,2\r\n"} {
@@ -209,6 +210,9 @@ func FuzzCSVChunks(f *testing.F) {
 			}
 		}
 		if d, _ := sameStream(body, 0, o, []int{1, 2, 3, 17, 4096}); d != "" {
+			t.Fatal(d)
+		}
+		if d, _ := sameFile(body, 0, o, []int{1, 3, 17, 4096}); d != "" {
 			t.Fatal(d)
 		}
 	})

@@ -198,48 +198,70 @@ func (s *CSVStream) header(eof bool) {
 	if !eof {
 		complete = body[:bytes.LastIndexByte(body, '\n')+1]
 	}
-	rs := &records{body: complete, comma: s.o.comma()}
-	fields, line, err := rs.next()
-	if err == io.EOF && !eof {
+	h, ok, more := chunkHeader(complete, s.o)
+	if more && !eof {
 		if len(complete) > 2*streamBlock {
 			s.keepAll() // a long preamble is not scanned again at every block
 		}
 		return // only comments and blank lines so far
 	}
-	end := len(complete) - len(rs.body)
-	if err != nil || bytes.IndexByte(complete[:end], '"') >= 0 {
+	if !ok {
 		s.keepAll()
 		return
 	}
-	lay, err := readHeader(fields, line, s.o, func(k string) int { return indexOf(csvColumns, k) }, fitRoleIndex, "")
-	if err != nil || !s.streams(lay) {
-		s.keepAll()
-		return
-	}
-	s.lay, s.comma, s.line, s.mode = lay, rs.comma, line, inRows
-	s.consumed = int64(len(s.buf) - len(body) + end)
-	s.buf = s.buf[:copy(s.buf, body[end:])]
+	s.lay, s.seen, s.comma, s.line, s.mode = h.lay, h.seen, h.comma, h.line, inRows
+	s.consumed = int64(len(s.buf) - len(body) + h.end)
+	s.buf = s.buf[:copy(s.buf, body[h.end:])]
 	s.take(eof)
 }
 
-// streams says whether the rows under header lay are read as the chunk
-// reader reads them (chunkFitRows's conditions), and notes its columns.
-func (s *CSVStream) streams(lay *layout) bool {
-	if !s.o.plain() || s.o.decimal() != '.' || lay.group >= 0 {
-		return false
+// rowsHeader is a header under which the chunk reader reads the rows:
+// its layout, the columns it names, its line, the offset of the rows in
+// the body, and the delimiter.
+type rowsHeader struct {
+	lay   *layout
+	seen  [7]bool
+	line  int
+	end   int
+	comma byte
+}
+
+// chunkHeader reads the header at the start of body (after any comment
+// and blank lines; body holds complete lines) in the dialect of o. ok is
+// false when the rows under it are not the chunk reader's (a quote in or
+// before it, a fault, options or columns it leaves to the row-by-row
+// reader, or no header); more is true when body holds no header yet.
+func chunkHeader(body []byte, o *CSVOptions) (h rowsHeader, ok, more bool) {
+	rs := &records{body: body, comma: o.comma()}
+	fields, line, err := rs.next()
+	if err != nil {
+		return h, false, err == io.EOF
 	}
-	var seen [7]bool
+	h.end, h.line, h.comma = len(body)-len(rs.body), line, rs.comma
+	if bytes.IndexByte(body[:h.end], '"') >= 0 {
+		return h, false, false
+	}
+	if h.lay, err = readHeader(fields, line, o, func(k string) int { return indexOf(csvColumns, k) }, fitRoleIndex, ""); err != nil {
+		return h, false, false
+	}
+	h.seen, ok = streamable(o, h.lay)
+	return h, ok, false
+}
+
+// streamable says whether the rows under header lay, in the dialect of o,
+// are read as the chunk reader reads them (chunkFitRows's conditions), and
+// which columns lay names.
+func streamable(o *CSVOptions, lay *layout) (seen [7]bool, ok bool) {
+	if !o.plain() || o.decimal() != '.' || lay.group >= 0 {
+		return seen, false
+	}
 	for _, k := range lay.roles {
 		if k < 0 || k == csvIDColumn || seen[k] {
-			return false
+			return seen, false
 		}
 		seen[k] = true
 	}
-	if !seen[0] || !seen[1] {
-		return false
-	}
-	s.seen = seen
-	return true
+	return seen, seen[0] && seen[1]
 }
 
 // keepAll gives up streaming before any row: the whole body is kept.

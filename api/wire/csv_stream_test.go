@@ -65,62 +65,67 @@ func allSizes(n int) []int {
 	return s
 }
 
+// wholeBodyCases are the bodies the readers that do not hold the body
+// whole (the stream, the file reader) are held to the whole read with:
+// valid, faulty, quoted, in other dialects and at the row limit; streams
+// marks the valid plain bodies they must read to the end themselves.
+var wholeBodyCases = []struct {
+	name    string
+	body    string
+	o       *CSVOptions
+	max     int
+	streams bool // the rows are streamed to the end (valid, plain)
+}{
+	{name: "plain", body: "x,y\n1,2\n2,3\n3,5\n", streams: true},
+	{name: "no final newline", body: "x,y,sx,sy\n1,2,0.1,0.2\n2,3,0.1,0.2", streams: true},
+	{name: "byte-order mark", body: "\xef\xbb\xbfx,y\n1,2\n2,3\n", streams: true},
+	{name: "comments and blank lines", body: "# a\nx,y\n\n1,2\n# b\n2,3\n\r\n\n3,4\n#", streams: true},
+	{name: "spaces and CRLF", body: "x , y\r\n 1 ,\t2 \r\n3,4\r\n", streams: true},
+	{name: "final CR", body: "x,y\n1,2\n3,4\r", streams: true},
+	{name: "all numeric columns", body: "order,r,sy,sx,y,x\n1,0.5,1,1,2,3\n2,-0.25,1,2,3,4\n", streams: true},
+	{name: "semicolons", body: "x;y\n1.5;2\n2;3e-5\n", o: &CSVOptions{Delimiter: "semicolon"}, streams: true},
+	{name: "tabs", body: "x\ty\n1\t 2\n2\t3\n", o: &CSVOptions{Delimiter: "tab"}, streams: true},
+	{name: "long numbers", body: "x,y\n0.30000000000000004,1e-300\n-12345678901234567890,1.7976931348623157e308\n", streams: true},
+	{name: "rows at the limit", body: "x,y\n1,2\n2,3\n#\n3,4\n", max: 3, streams: true},
+	{name: "comments past the limit", body: "x,y\n1,2\n#\n#\n2,3\n#\n", max: 2, streams: true},
+	{name: "too many rows", body: "x,y\n1,2\n2,3\n3,4\n4,5\n", max: 3},
+	{name: "too many rows, bad cell after", body: "x,y\n1,2\n2,3\n3,4\nzz,5\n", max: 3},
+	{name: "rows past the limit among comments", body: "x,y\n1,2\n#\n#\n2,3\n3,4\n", max: 2},
+	{name: "bad cell late", body: "x,y\n1,2\n2,3\n3,4\n4,abc\n5,6\n6,x\n"},
+	{name: "bad first row", body: "x,y\nmg,mg\n1,2\n"},
+	{name: "two faults, first wins", body: "x,y\n1,2\n2,zz\n3,4\n9,,\n"},
+	{name: "missing cells", body: "x,y\n1,2\n1,\n2,3\n,4\n"},
+	{name: "field count", body: "x,y\n1,2\n2,3,4\n"},
+	{name: "overflow", body: "x,y\n1,2\n1e400,3\n"},
+	{name: "NUL", body: "x,y\n1,2\n3\x00,4\n"},
+	{name: "header only", body: "x,y\n"},
+	{name: "header and comments", body: "x,y\n#a\n\n"},
+	{name: "empty", body: ""},
+	{name: "comments only", body: "# a\n# b\n"},
+	{name: "no x", body: "a,y\n1,2\n"},
+	{name: "column twice", body: "x,y,x\n1,2,3\n"},
+	{name: "id column", body: "x,y,id\n1,2,a\n2,3,b\n"},
+	{name: "r without sx", body: "x,y,r\n1,2,0.5\n2,3,0.5\n"},
+	{name: "quote in the header", body: "\"x\",y\n1,2\n2,3\n"},
+	{name: "quote in a later comment", body: "x,y\n1,2\n# \"q\n2,3\n"},
+	{name: "quoted cell later", body: "x,y\n1,2\n2,3\n\"3\",4\n4,5\n"},
+	{name: "quoted line break later", body: "x,y\n1,2\n\"3\n\",4\n4,5\n"},
+	{name: "bad quote later", body: "x,y\n1,2\n2,3\n3,4\"\n"},
+	{name: "fault then quote", body: "x,y\n1,2\n2,q\n\"3\",4\n"},
+	{name: "CR in cells then quote", body: "x,y\n1\r,2\r\r\n\"3\",4\n"},
+	{name: "decimal comma", body: "x;y\n1,5;2\n2;3\n", o: &CSVOptions{Delimiter: "semicolon", Decimal: "comma"}},
+	{name: "skip", body: "x,y\n1,2\nNA,3\n3,4\n", o: &CSVOptions{Missing: "skip"}},
+	{name: "units row", body: "x,y\nmg,mg\n1,2\n", o: &CSVOptions{UnitsRow: true}},
+}
+
 // TestCSVStreamMatchesWholeBody: bodies read as they arrive, in blocks of
 // every size from one byte to the whole body (so that blocks end inside a
 // number, between '\r' and '\n', inside the header and its byte-order
 // mark, and at the row limit), answer exactly as the whole body read at
 // once: the same numbers, rows and notes, or the same problem at the same
-// row and column.
+// row and column. So do the same bodies read as files (checkFileReader).
 func TestCSVStreamMatchesWholeBody(t *testing.T) {
-	cases := []struct {
-		name    string
-		body    string
-		o       *CSVOptions
-		max     int
-		streams bool // the rows are streamed to the end (valid, plain)
-	}{
-		{name: "plain", body: "x,y\n1,2\n2,3\n3,5\n", streams: true},
-		{name: "no final newline", body: "x,y,sx,sy\n1,2,0.1,0.2\n2,3,0.1,0.2", streams: true},
-		{name: "byte-order mark", body: "\xef\xbb\xbfx,y\n1,2\n2,3\n", streams: true},
-		{name: "comments and blank lines", body: "# a\nx,y\n\n1,2\n# b\n2,3\n\r\n\n3,4\n#", streams: true},
-		{name: "spaces and CRLF", body: "x , y\r\n 1 ,\t2 \r\n3,4\r\n", streams: true},
-		{name: "final CR", body: "x,y\n1,2\n3,4\r", streams: true},
-		{name: "all numeric columns", body: "order,r,sy,sx,y,x\n1,0.5,1,1,2,3\n2,-0.25,1,2,3,4\n", streams: true},
-		{name: "semicolons", body: "x;y\n1.5;2\n2;3e-5\n", o: &CSVOptions{Delimiter: "semicolon"}, streams: true},
-		{name: "tabs", body: "x\ty\n1\t 2\n2\t3\n", o: &CSVOptions{Delimiter: "tab"}, streams: true},
-		{name: "long numbers", body: "x,y\n0.30000000000000004,1e-300\n-12345678901234567890,1.7976931348623157e308\n", streams: true},
-		{name: "rows at the limit", body: "x,y\n1,2\n2,3\n#\n3,4\n", max: 3, streams: true},
-		{name: "comments past the limit", body: "x,y\n1,2\n#\n#\n2,3\n#\n", max: 2, streams: true},
-		{name: "too many rows", body: "x,y\n1,2\n2,3\n3,4\n4,5\n", max: 3},
-		{name: "too many rows, bad cell after", body: "x,y\n1,2\n2,3\n3,4\nzz,5\n", max: 3},
-		{name: "rows past the limit among comments", body: "x,y\n1,2\n#\n#\n2,3\n3,4\n", max: 2},
-		{name: "bad cell late", body: "x,y\n1,2\n2,3\n3,4\n4,abc\n5,6\n6,x\n"},
-		{name: "bad first row", body: "x,y\nmg,mg\n1,2\n"},
-		{name: "two faults, first wins", body: "x,y\n1,2\n2,zz\n3,4\n9,,\n"},
-		{name: "missing cells", body: "x,y\n1,2\n1,\n2,3\n,4\n"},
-		{name: "field count", body: "x,y\n1,2\n2,3,4\n"},
-		{name: "overflow", body: "x,y\n1,2\n1e400,3\n"},
-		{name: "NUL", body: "x,y\n1,2\n3\x00,4\n"},
-		{name: "header only", body: "x,y\n"},
-		{name: "header and comments", body: "x,y\n#a\n\n"},
-		{name: "empty", body: ""},
-		{name: "comments only", body: "# a\n# b\n"},
-		{name: "no x", body: "a,y\n1,2\n"},
-		{name: "column twice", body: "x,y,x\n1,2,3\n"},
-		{name: "id column", body: "x,y,id\n1,2,a\n2,3,b\n"},
-		{name: "r without sx", body: "x,y,r\n1,2,0.5\n2,3,0.5\n"},
-		{name: "quote in the header", body: "\"x\",y\n1,2\n2,3\n"},
-		{name: "quote in a later comment", body: "x,y\n1,2\n# \"q\n2,3\n"},
-		{name: "quoted cell later", body: "x,y\n1,2\n2,3\n\"3\",4\n4,5\n"},
-		{name: "quoted line break later", body: "x,y\n1,2\n\"3\n\",4\n4,5\n"},
-		{name: "bad quote later", body: "x,y\n1,2\n2,3\n3,4\"\n"},
-		{name: "fault then quote", body: "x,y\n1,2\n2,q\n\"3\",4\n"},
-		{name: "CR in cells then quote", body: "x,y\n1\r,2\r\r\n\"3\",4\n"},
-		{name: "decimal comma", body: "x;y\n1,5;2\n2;3\n", o: &CSVOptions{Delimiter: "semicolon", Decimal: "comma"}},
-		{name: "skip", body: "x,y\n1,2\nNA,3\n3,4\n", o: &CSVOptions{Missing: "skip"}},
-		{name: "units row", body: "x,y\nmg,mg\n1,2\n", o: &CSVOptions{UnitsRow: true}},
-	}
-	for _, c := range cases {
+	for _, c := range wholeBodyCases {
 		t.Run(c.name, func(t *testing.T) {
 			d, streamed := sameStream([]byte(c.body), c.max, c.o, allSizes(len(c.body)))
 			if d != "" {
@@ -129,6 +134,7 @@ func TestCSVStreamMatchesWholeBody(t *testing.T) {
 			if c.streams && !streamed {
 				t.Fatal("the stream kept this valid body for the row-by-row reader")
 			}
+			checkFileReader(t, c.body, c.max, c.o, c.streams)
 		})
 	}
 }
@@ -136,40 +142,25 @@ func TestCSVStreamMatchesWholeBody(t *testing.T) {
 // TestCSVStreamRandomBodies: seeded random bodies of 1 to 300 rows,
 // valid or with one to three faults (a bad or empty cell, a wrong field
 // count, a comment, a blank or CR line, a quote) at random rows, read in
-// blocks of fixed sizes and of random sizes from 1 byte up, agree with
-// the whole read; the row limit is set at, below or above the row count.
+// blocks of fixed sizes and of random sizes from 1 byte up, and as files
+// in chunks of fixed sizes and of a random size, agree with the whole
+// read; the row limit is set at, below or above the row count.
 func TestCSVStreamRandomBodies(t *testing.T) {
 	r := rand.New(rand.NewPCG(20, 3))
 	faults := []string{"abc", "", "1,2,3,4,5", "1", "# note", "\r", " ", "+1", "1e999", "NA", "\"1\"", "\"1\n2\"", "\u00a01"}
-	valid, streamed := 0, 0
+	valid, streamed, read := 0, 0, 0
 	for iter := range 400 {
-		var b bytes.Buffer
-		b.WriteString([]string{"x,y,sx,sy\n", "x,y,sx,sy\r\n"}[r.IntN(2)])
-		n := 1 + r.IntN(300)
-		lines := make([]string, n)
-		for i := range lines {
-			f := func() string {
-				return strconv.FormatFloat(r.NormFloat64()*100, "gef"[r.IntN(3)], r.IntN(18)-1, 64)
-			}
-			lines[i] = f() + "," + f() + "," + f() + "," + f()
-		}
-		if iter%2 != 0 {
-			for range 1 + r.IntN(3) {
-				i := r.IntN(n)
-				fs := bytes.Split([]byte(lines[i]), []byte{','})
-				fs[r.IntN(len(fs))] = []byte(faults[r.IntN(len(faults))])
-				lines[i] = string(bytes.Join(fs, []byte{','}))
-			}
-		}
-		eol := []string{"\n", "\r\n"}[r.IntN(2)]
-		for _, l := range lines {
-			b.WriteString(l)
-			b.WriteString(eol)
-		}
-		body := b.Bytes()
+		body, n := randomFitBody(r, 300, faults, iter%2 != 0)
 		maxRows := []int{0, n, n - 1, n + 1}[r.IntN(4)]
 		sizes := []int{1, 2, 3, 7, 49, 50, 51, 500, len(body)}
 		d, s := sameStream(body, maxRows, nil, sizes)
+		if d != "" {
+			t.Fatalf("case %d: %s", iter, d)
+		}
+		if d, _ := sameFile(body, maxRows, nil, append(sizes[:7], 1+r.IntN(len(body)))); d != "" {
+			t.Fatalf("case %d: %s", iter, d)
+		}
+		d, f := sameFile(body, maxRows, nil, sizes[7:]) // chunks longer than the lines
 		if d != "" {
 			t.Fatalf("case %d: %s", iter, d)
 		}
@@ -185,10 +176,13 @@ func TestCSVStreamRandomBodies(t *testing.T) {
 			if s {
 				streamed++
 			}
+			if f {
+				read++
+			}
 		}
 	}
-	if valid < 100 || streamed < valid/2 {
-		t.Fatalf("%d of 400 bodies valid, %d of them streamed: the streaming path is not exercised", valid, streamed)
+	if valid < 100 || streamed < valid/2 || read < valid/2 {
+		t.Fatalf("%d of 400 bodies valid, %d of them streamed, %d read as files: the paths are not exercised", valid, streamed, read)
 	}
 }
 
@@ -287,4 +281,34 @@ func TestCSVStreamRoomWithinDeclaredLength(t *testing.T) {
 	if err != nil || d.Len() != 1<<20 {
 		t.Fatalf("%v, %d points", err, d.Len())
 	}
+}
+
+// randomFitBody is a seeded random fit CSV (x, y, sx, sy) of 1 to maxN
+// rows, LF or CRLF, in shortest, exponent and fixed forms; with broken,
+// one to three cells replaced by one of faults. n is the row count.
+func randomFitBody(r *rand.Rand, maxN int, faults []string, broken bool) (body []byte, n int) {
+	var b bytes.Buffer
+	b.WriteString([]string{"x,y,sx,sy\n", "x,y,sx,sy\r\n"}[r.IntN(2)])
+	n = 1 + r.IntN(maxN)
+	lines := make([]string, n)
+	for i := range lines {
+		f := func() string {
+			return strconv.FormatFloat(r.NormFloat64()*100, "gef"[r.IntN(3)], r.IntN(18)-1, 64)
+		}
+		lines[i] = f() + "," + f() + "," + f() + "," + f()
+	}
+	if broken {
+		for range 1 + r.IntN(3) {
+			i := r.IntN(n)
+			fs := bytes.Split([]byte(lines[i]), []byte{','})
+			fs[r.IntN(len(fs))] = []byte(faults[r.IntN(len(faults))])
+			lines[i] = string(bytes.Join(fs, []byte{','}))
+		}
+	}
+	eol := []string{"\n", "\r\n"}[r.IntN(2)]
+	for _, l := range lines {
+		b.WriteString(l)
+		b.WriteString(eol)
+	}
+	return b.Bytes(), n
 }

@@ -88,14 +88,9 @@ func runFit(ctx context.Context, args []string, stdin io.Reader, stdout, stderr 
 		return sv.run(ctx, saveRun{cmd: "fit", path: "/v1/fit", format: *format, pretty: *pretty, text: textOf(report.WriteText)},
 			fs, file, stdin, stdout, stderr)
 	}
-	in, name, err := openInput(file, stdin, "fit", stderr)
+	groups, name, err := decodeFitInput(file, stdin, o, stderr)
 	if err != nil {
 		return err
-	}
-	defer in.Close()
-	groups, err := wire.DecodeCSVGroups(in, o)
-	if err != nil {
-		return reportProblem(stderr, name, err)
 	}
 	req.XUnit, req.YUnit = *xUnit, *yUnit
 	fit := func(g wire.CSVGroup, req *wire.FitRequest) (*wire.FitRequest, *wire.FitResponse, error) {
@@ -196,6 +191,47 @@ func parseFileArgs(fs *flag.FlagSet, args []string, cmd string, format *string, 
 		return "", true, exitError{2}
 	}
 	return files[0], false, nil
+}
+
+// decodeFitInput reads the fit CSV in FILE ("-": standard input): a large
+// plain file straight from the disk in parallel parts (wire.DecodeCSVAt),
+// else read whole and decoded; the answer is the same either way. An
+// error is already reported.
+func decodeFitInput(file string, stdin io.Reader, o *wire.CSVOptions, stderr io.Writer) ([]wire.CSVGroup, string, error) {
+	groups, ok, err := decodeFileInParts(file, o)
+	if ok && err != nil {
+		return nil, "", reportProblem(stderr, file, err)
+	}
+	if ok {
+		return groups, file, nil
+	}
+	in, name, err := openInput(file, stdin, "fit", stderr)
+	if err != nil {
+		return nil, "", err
+	}
+	if groups, err = wire.DecodeCSVGroups(in, o); err != nil {
+		return nil, "", reportProblem(stderr, name, err)
+	}
+	return groups, name, nil
+}
+
+// decodeFileInParts decodes a regular file of parallelReadMin bytes or
+// more with wire.DecodeCSVAt; ok false leaves it (and any file it cannot
+// open or state, whose error the whole read reports) to the whole read.
+func decodeFileInParts(file string, o *wire.CSVOptions) (groups []wire.CSVGroup, ok bool, err error) {
+	if file == "-" {
+		return nil, false, nil
+	}
+	f, err := os.Open(file)
+	if err != nil {
+		return nil, false, nil
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil || !st.Mode().IsRegular() || st.Size() < parallelReadMin {
+		return nil, false, nil
+	}
+	return wire.DecodeCSVAt(f, st.Size(), o)
 }
 
 // openInput reads FILE, "-" meaning stdin, whole into memory: a file into

@@ -5,6 +5,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -72,3 +73,87 @@ func TestReadInputFileParallel(t *testing.T) {
 		}
 	}
 }
+
+// A fit CSV of parallelReadMin bytes or more is decoded straight from the
+// file in parts (wire.DecodeCSVAt); `eivfit fit FILE` must print what the
+// same bytes read whole from standard input print, on stdout and stderr
+// with the same exit status: valid files (LF, CRLF, a byte-order mark,
+// comments among the rows, no final line break) and faulty ones (a bad
+// cell near the end, a quote, too few columns, r without sx and sy).
+func TestFitLargeFileInParts(t *testing.T) {
+	dir := t.TempDir()
+	rows := func(header string, n int, eol string, edit func(i int, row string) string) string {
+		var b strings.Builder
+		b.WriteString(header + eol)
+		for i := range n {
+			x := 10 + float64(i%9973)*0.0137
+			row := strconv.FormatFloat(x, 'g', 10, 64) + "," + strconv.FormatFloat(2+1.1*x+float64(i%7)*0.01, 'g', 10, 64) +
+				",0." + strconv.Itoa(1+i%8) + ",0." + strconv.Itoa(2+i%7)
+			if edit != nil {
+				row = edit(i, row)
+			}
+			b.WriteString(row + eol)
+		}
+		return b.String()
+	}
+	n := parallelReadMin/20 + 1000 // rows of about 25 bytes: over the threshold
+	for _, c := range []struct {
+		name, body string
+		fails      bool
+		parts      bool // decoded in parts, not left to the whole read
+	}{
+		{"plain", rows("x,y,sx,sy", n, "\n", nil), false, true},
+		{"CRLF and a byte-order mark", "\xef\xbb\xbf" + rows("x,y,sx,sy", n, "\r\n", nil), false, true},
+		{"comments among the rows", rows("x,y,sx,sy", n, "\n", func(i int, r string) string {
+			if i%50_000 == 7 {
+				return "# a note\n\n" + r
+			}
+			return r
+		}), false, true},
+		{"no final line break", strings.TrimSuffix(rows("x,y,sx,sy", n, "\n", nil), "\n"), false, true},
+		{"bad cell near the end", rows("x,y,sx,sy", n, "\n", func(i int, r string) string {
+			if i == n-3 {
+				return "1,abc,0.1,0.2"
+			}
+			return r
+		}), true, false},
+		{"a quoted cell", rows("x,y,sx,sy", n, "\n", func(i int, r string) string {
+			if i == n/2 {
+				return `"1",2,0.1,0.2`
+			}
+			return r
+		}), false, false},
+		{"too few columns", rows("x,y,sx,sy", n, "\n", func(i int, r string) string {
+			if i == n/3 {
+				return "1,2,0.1"
+			}
+			return r
+		}), true, false},
+		{"r without sx and sy", rows("x,y,r,order", n, "\n", nil), true, true},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			if len(c.body) < parallelReadMin {
+				t.Fatalf("%d bytes: below the threshold, not a test of the parts", len(c.body))
+			}
+			file := filepath.Join(dir, "big.csv")
+			if err := os.WriteFile(file, []byte(c.body), 0o644); err != nil {
+				t.Fatal(err)
+			}
+			args := []string{"fit", "--methods", "ols,deming,york"}
+			out, errOut, err := runCmd(t, "", append(args, file)...)
+			wantOut, wantErr, werr := runCmd(t, c.body, append(args, "-")...)
+			wantErr = strings.ReplaceAll(wantErr, "standard input", file)
+			if out != wantOut || errOut != wantErr || err != werr {
+				t.Fatalf("file: %v %q …%q; standard input: %v %q …%q", err, errOut, tail(out), werr, wantErr, tail(wantOut))
+			}
+			if (err != nil) != c.fails {
+				t.Fatalf("exit %v, stderr %q", err, errOut)
+			}
+			if _, parts, _ := decodeFileInParts(file, nil); parts != c.parts {
+				t.Fatalf("decoded in parts: %v, want %v", parts, c.parts)
+			}
+		})
+	}
+}
+
+func tail(s string) string { return s[max(0, len(s)-200):] }
