@@ -100,3 +100,34 @@ func TestCSVFileChangedOrFailing(t *testing.T) {
 		})
 	}
 }
+
+// TestCSVFileMoreLinesThanEstimated: a file whose first chunk has long
+// lines and the rest short ones holds more lines than the columns sized
+// from the first chunk; the chunks then only count, and a second round
+// reads them into columns of the exact size: the whole read's answer. At
+// a row limit below the lines it is left to the whole read.
+func TestCSVFileMoreLinesThanEstimated(t *testing.T) {
+	var b bytes.Buffer
+	b.WriteString("x,y,sx,sy\n")
+	long := "12.34567890123456,23.45678901234567,0.1234567890123456,0.2345678901234567\n"
+	for b.Len() < 80<<10 {
+		b.WriteString(long)
+	}
+	headLines := bytes.Count(b.Bytes(), []byte{'\n'}) - 1
+	for i := range 60_000 {
+		fmt.Fprintf(&b, "%d,%d,1,2\n", i%10, i%7)
+	}
+	body := b.Bytes()
+	rows := headLines + 60_000
+	f := &fileRows{size: int64(len(body)), from: 10}
+	est, _ := f.estimate(body[10:64<<10], false)
+	if est >= rows {
+		t.Fatalf("the estimate (%d slots) holds all %d rows: the second round is not exercised", est, rows)
+	}
+	if d, read := sameFile(body, 0, nil, []int{64 << 10, 100_000}); d != "" || !read {
+		t.Fatalf("%s (read %v)", d, read)
+	}
+	if d, read := sameFile(body, rows-1, nil, []int{64 << 10}); d != "" || read {
+		t.Fatalf("%s (read %v, want it left to the whole read at the row limit)", d, read)
+	}
+}
