@@ -96,13 +96,10 @@ func Put(b []byte) {
 		return
 	}
 	b = b[:n]
-	k := classOf(n)
-	c := &classes[k]
-	if poison.Load() {
-		fill(b)
-	}
+	c := &classes[classOf(n)]
 	c.mu.Lock()
-	if poison.Load() {
+	if poison.Load() { // under the lock: Poison empties the class after turning on
+		fill(b)
 		for _, f := range c.free {
 			if &f[:1][0] == &b[0] {
 				c.mu.Unlock()
@@ -146,10 +143,11 @@ func fill(b []byte) {
 	}
 }
 
-// Poison turns the checks described above on or off (for tests; it costs a
-// pass over every buffer put back). Turning it on empties the pool, so
-// that every pooled buffer carries the pattern.
-func Poison(on bool) {
+// Poison turns the checks described above on or off and says whether they
+// were on (for tests; it costs a pass over every buffer put back). It
+// empties the pool, so that every pooled buffer carries the pattern.
+func Poison(on bool) (was bool) {
+	was = poison.Swap(on)
 	for k := range classes {
 		c := &classes[k]
 		c.mu.Lock()
@@ -157,7 +155,7 @@ func Poison(on bool) {
 		c.free = c.free[:0]
 		c.mu.Unlock()
 	}
-	poison.Store(on)
+	return
 }
 
 // Stats are the Gets of pooled sizes since the process started and how
