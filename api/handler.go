@@ -402,7 +402,13 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 	if p != nil {
 		return nil, nil, p
 	}
-	return wire.NewBody(m.buf, &s.limits), release, nil
+	b := m.buf
+	if cap(b) > bufpool.MaxPooled {
+		// Never pooled: release must not keep it alive, so that it dies
+		// with its last reader (serve drops it before drawing a report).
+		m.buf = nil
+	}
+	return wire.NewBody(b, &s.limits), release, nil
 }
 
 // bodySink is where readBody puts a body's bytes: grow makes room for at

@@ -187,12 +187,14 @@ func (s *CSVStream) Finish() (*Dataset, error) {
 }
 
 // Release gives the stream's buffers back to the pool (once: it may be
-// called again, and after Finish). Nothing may read a block Room gave out
+// called again, and after Finish) and lets go of the columns, which a
+// finished stream has handed over. Nothing may read a block Room gave out
 // after it.
 func (s *CSVStream) Release() {
 	bufpool.Put(s.buf)
 	bufpool.Put(s.kept)
 	s.buf, s.kept = nil, nil
+	s.cols, s.fields, s.rows = [7][]float64{}, nil, nil
 }
 
 // col is column k of the points taken, without spare room.
