@@ -46,6 +46,12 @@ func BenchmarkSmallFitBodies(b *testing.B) {
 		{"json-chunked", "/v1/fit", "application/json", wiretest.SmallFit(), true},
 		{"csv", "/v1/fit?methods=ols,deming,york", "text/csv", smallFitCSV(), false},
 		{"csv-chunked", "/v1/fit?methods=ols,deming,york", "text/csv", smallFitCSV(), true},
+		// Larger bodies, within and at the top of the pool's classes
+		// (about 100 KB and 1 MB of JSON; 45 KB and 450 KB of CSV).
+		{"json-n=2000", "/v1/fit", "application/json", []byte(poolPoints(2000, false) + `,"methods":["ols"]}`), false},
+		{"json-n=20000", "/v1/fit", "application/json", []byte(poolPoints(20000, false) + `,"methods":["ols"]}`), false},
+		{"csv-n=2000", "/v1/fit?methods=ols", "text/csv", []byte(poolPoints(2000, true)), false},
+		{"csv-n=20000", "/v1/fit?methods=ols", "text/csv", []byte(poolPoints(20000, true)), false},
 	} {
 		b.Run(c.name, func(b *testing.B) {
 			b.ReportAllocs()

@@ -8,6 +8,7 @@ import (
 	"io"
 	"math/rand/v2"
 	"mime/multipart"
+	"net"
 	"net/http"
 	"os"
 	"path/filepath"
@@ -304,4 +305,52 @@ func diffAt(a, b string) string {
 	}
 	lo, hi := max(0, i-80), min(len(a), i+80)
 	return fmt.Sprintf("(%d bytes, first difference at %d: …%q…)", len(a), i, a[lo:hi])
+}
+
+// An upload that declares its length and stalls holds pooled pages (which
+// are resident already) only up to twice what the intake budget charged
+// it before its first byte: room for a declared length is pooled up to
+// bufpool.MaxAhead (the whole body charged up to 256 KiB), the CSV
+// stream's first block likewise; a larger declared body gets a fresh
+// buffer whose pages become resident only as bytes arrive.
+func TestStalledUploadHoldsNoPooledPages(t *testing.T) {
+	for _, c := range []struct {
+		name, path, ctype string
+		length            int
+		pooled            int // the class of the pooled buffer taken, 0 for none
+	}{
+		{"json, 100 KB", "/v1/fit", "application/json", 100_000, 128 << 10},
+		{"json, 300 KB", "/v1/fit", "application/json", 300_000, 512 << 10},
+		{"json, 600 KB", "/v1/fit", "application/json", 600_000, 0},
+		{"json, 40 MB", "/v1/fit", "application/json", 40_000_000, 0},
+		{"streamed csv, 100 KB", "/v1/fit", "text/csv", 100_000, 128 << 10},
+		{"streamed csv, 40 MB", "/v1/fit", "text/csv", 40_000_000, 512 << 10},
+		{"batch, 900 KB", "/v1/batch", "application/json", 900_000, 0},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			srv, addr := serveTCP(t, Config{BodyIdleTimeout: 5 * time.Second})
+			gets, _ := bufpool.Stats()
+			conn, err := net.Dial("tcp", addr)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer conn.Close()
+			fmt.Fprintf(conn, "POST %s HTTP/1.1\r\nHost: x\r\nContent-Type: %s\r\nContent-Length: %d\r\n\r\n", c.path, c.ctype, c.length)
+			charged := int64(0)
+			for deadline := time.Now().Add(3 * time.Second); charged == 0 && time.Now().Before(deadline); time.Sleep(5 * time.Millisecond) {
+				charged = srv.intake.cap - srv.intake.available()
+			}
+			time.Sleep(20 * time.Millisecond) // the handler is in its first read
+			after, _ := bufpool.Stats()
+			if want := min(int64(c.length), bodyChunk); charged != want {
+				t.Errorf("charged %d before the first byte, want %d", charged, want)
+			}
+			if got := after - gets; got != int64(min(c.pooled, 1)) {
+				t.Errorf("%d pooled buffers taken, want %d", got, min(c.pooled, 1))
+			}
+			if int64(c.pooled) > 2*charged {
+				t.Errorf("a pooled buffer of %d bytes for a charge of %d", c.pooled, charged)
+			}
+		})
+	}
 }

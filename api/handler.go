@@ -394,16 +394,16 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 	if n := c.Request.ContentLength; n >= 0 && n <= s.cfg.MaxBodyBytes {
 		// A declared length is read into one buffer with a byte to spare,
 		// so that the EOF after it is seen without growing: a pooled one up
-		// to bufpool.MaxPooled, else a fresh one of that size (its pages
+		// to bufpool.MaxAhead, else a fresh one of that size (its pages
 		// become resident only as bytes arrive).
-		m.buf = bufpool.Get(int(n + 1))
+		m.buf = bufpool.Ahead(int(n + 1))
 	}
 	release, p := s.readBody(c, m)
 	if p != nil {
 		return nil, nil, p
 	}
 	b := m.buf
-	if cap(b) > bufpool.MaxPooled {
+	if !bufpool.Keeps(b) {
 		// Never pooled: release must not keep it alive, so that it dies
 		// with its last reader (serve drops it before drawing a report).
 		m.buf = nil
@@ -425,7 +425,8 @@ type bodySink interface {
 
 // memBody keeps the whole body in one buffer, pooled up to
 // bufpool.MaxPooled: a chunked body grows through the classes (4 KiB,
-// doubling), each smaller buffer going back as it is left.
+// doubling, so it holds at most twice what has arrived), each smaller
+// buffer going back as it is left.
 type memBody struct{ buf []byte }
 
 func (m *memBody) grow(size int64) int64 {

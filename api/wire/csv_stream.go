@@ -266,7 +266,7 @@ func (s *CSVStream) keepAll() {
 	s.mode = keepWhole
 	s.kept = s.buf
 	if s.hint >= 0 && int64(cap(s.kept)) < s.hint+1 {
-		s.kept = append(bufpool.Get(int(s.hint)+1), s.buf...)
+		s.kept = append(bufpool.Ahead(int(s.hint)+1), s.buf...)
 		bufpool.Put(s.buf)
 	}
 	s.buf = nil
@@ -280,7 +280,7 @@ func (s *CSVStream) resume(rest []byte) {
 	if s.hint >= 0 {
 		size += max(s.hint-s.received, 0) + 1
 	}
-	s.kept = append(bufpool.Get(int(size)), rest...)
+	s.kept = append(bufpool.Ahead(int(size)), rest...)
 	bufpool.Put(s.buf) // rest, a slice of it, is copied
 	s.buf = nil
 }

@@ -3,7 +3,9 @@
 // classes, the powers of two from 4 KiB to 1 MiB; each class keeps at most
 // 512 KiB of free buffers (at least one), so the pool never holds more than
 // 5 MiB, whatever the traffic was. A larger buffer is made fresh at the size
-// asked for and never kept: a 48 MB upload does not pin 48 MB here.
+// asked for and never kept: a 48 MB upload does not pin 48 MB here. Room
+// for bytes still to come (Ahead) is pooled only up to MaxAhead; a buffer
+// that grows as bytes arrive (Grow) doubles through the classes.
 //
 // A buffer is Put back by its one owner once nothing can read it any more
 // (for a body: after the answer is written, since the decoders, the saved
@@ -87,14 +89,30 @@ func Get(n int) []byte {
 	return make([]byte, 0, 1<<(k+minShift))
 }
 
+// MaxAhead is the largest buffer Ahead takes from the pool: the intake
+// budget charges a request for up to 256 KiB before its first byte
+// arrives, and a pooled buffer's pages are resident already, so an upload
+// that stalls holds at most twice what it has been charged.
+const MaxAhead = 512 << 10
+
+// Ahead returns an empty buffer for n bytes that have not arrived yet (a
+// declared length): pooled up to MaxAhead, else fresh, its pages becoming
+// resident only as bytes are written.
+func Ahead(n int) []byte {
+	if n > MaxAhead {
+		return make([]byte, 0, n)
+	}
+	return Get(n)
+}
+
 // Put gives b back to the pool. Only b's owner may put it, once, when
 // nothing can read or write it any more; a buffer of another capacity than
 // a class's (a fresh large one, nil) is left to the collector.
 func Put(b []byte) {
-	n := cap(b)
-	if n < 1<<minShift || n > MaxPooled || n&(n-1) != 0 {
+	if !Keeps(b) {
 		return
 	}
+	n := cap(b)
 	b = b[:n]
 	c := &classes[classOf(n)]
 	c.mu.Lock()
@@ -111,6 +129,12 @@ func Put(b []byte) {
 		c.free = append(c.free, b[:0])
 	}
 	c.mu.Unlock()
+}
+
+// Keeps says whether Put would keep b: whether its capacity is a class's.
+func Keeps(b []byte) bool {
+	n := cap(b)
+	return n >= 1<<minShift && n <= MaxPooled && n&(n-1) == 0
 }
 
 // Grow returns b with room for n more bytes: b itself when it has it,

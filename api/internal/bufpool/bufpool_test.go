@@ -38,6 +38,23 @@ func TestGetSizes(t *testing.T) {
 	}
 }
 
+// Ahead pools room for bytes still to come only up to MaxAhead; above
+// it the buffer is fresh, of the size asked for.
+func TestAhead(t *testing.T) {
+	empty(t)
+	for _, c := range []struct {
+		n, cap int
+		pooled bool
+	}{{1908, 4 << 10, true}, {300 << 10, 512 << 10, true}, {MaxAhead, MaxAhead, true}, {MaxAhead + 1, MaxAhead + 1, false}, {5 << 20, 5 << 20, false}} {
+		gets, _ := Stats()
+		b := Ahead(c.n)
+		after, _ := Stats()
+		if cap(b) != c.cap || (after > gets) != c.pooled {
+			t.Errorf("Ahead(%d): cap %d, from the pool %v; want %d, %v", c.n, cap(b), after > gets, c.cap, c.pooled)
+		}
+	}
+}
+
 // A buffer put back is the next one of its class taken; a buffer of
 // another capacity is not kept; each class keeps at most classBytes
 // (at least one buffer), so the pool holds at most 5 MiB.
