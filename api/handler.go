@@ -12,10 +12,10 @@ import (
 	"net/url"
 	"os"
 	"runtime"
-	"slices"
 	"strings"
 	"time"
 
+	"eivfit/api/internal/bufpool"
 	"eivfit/api/report"
 	"eivfit/api/wire"
 	"eivfit/eiv/study"
@@ -219,6 +219,7 @@ type streamSink struct{ st *wire.CSVStream }
 func (t streamSink) grow(size int64) int64 { return size }
 func (t streamSink) room(k int) []byte     { return t.st.Room(k) }
 func (t streamSink) got(k int)             { t.st.Got(k) }
+func (t streamSink) free()                 { t.st.Release() }
 
 // collectAfterBytes is the body size after whose request the garbage is
 // collected at once: with the GC target at 400 % a large request's body,
@@ -379,7 +380,10 @@ const smallBody = 4 << 10
 
 // body reads the whole request body into memory within the size limit,
 // the intake budget and the body timeouts, and returns it; the caller must
-// call release when done with the request. A declared length above the
+// call release once the answer is written, and nothing may read the body's
+// bytes after that (its buffer goes back to the pool for the next request:
+// whatever outlives the request — a decoded value, a problem's text, a
+// saved study — must hold copies, not slices of it). A declared length above the
 // limit is refused before anything is read. The budget is charged in
 // bodyChunk steps as bytes arrive, never for a declared length up front.
 // A body that stalls for BodyIdleTimeout, or is not complete within
@@ -389,38 +393,55 @@ func (s *Server) body(c *gin.Context) (*wire.Body, func(), *wire.Problem) {
 	m := &memBody{}
 	if n := c.Request.ContentLength; n >= 0 && n <= s.cfg.MaxBodyBytes {
 		// A declared length is read into one buffer with a byte to spare,
-		// so that the EOF after it is seen without growing (pages become
-		// resident only as bytes arrive).
-		m.buf = make([]byte, 0, n+1)
+		// so that the EOF after it is seen without growing: a pooled one up
+		// to bufpool.MaxAhead, else a fresh one of that size (its pages
+		// become resident only as bytes arrive).
+		m.buf = bufpool.Ahead(int(n + 1))
 	}
 	release, p := s.readBody(c, m)
 	if p != nil {
 		return nil, nil, p
 	}
-	return wire.NewBody(m.buf, &s.limits), release, nil
+	b := m.buf
+	if !bufpool.Keeps(b) {
+		// Never pooled: release must not keep it alive, so that it dies
+		// with its last reader (serve drops it before drawing a report).
+		m.buf = nil
+	}
+	return wire.NewBody(b, &s.limits), release, nil
 }
 
 // bodySink is where readBody puts a body's bytes: grow makes room for at
 // least size bytes in all and says how many it holds; room gives k bytes
-// after those read, got takes the k just read into them.
+// after those read, got takes the k just read into them; free gives the
+// sink's buffers back to the pool once nothing reads them (readBody's
+// release, after the answer).
 type bodySink interface {
 	grow(size int64) int64
 	room(k int) []byte
 	got(k int)
+	free()
 }
 
-// memBody keeps the whole body in one buffer.
+// memBody keeps the whole body in one buffer, pooled up to
+// bufpool.MaxPooled: a chunked body grows through the classes (4 KiB,
+// doubling, so it holds at most twice what has arrived), each smaller
+// buffer going back as it is left.
 type memBody struct{ buf []byte }
 
 func (m *memBody) grow(size int64) int64 {
-	m.buf = slices.Grow(m.buf, int(size)-len(m.buf))
+	m.buf = bufpool.Grow(m.buf, int(size)-len(m.buf))
 	return int64(cap(m.buf))
 }
 func (m *memBody) room(k int) []byte { return m.buf[len(m.buf) : len(m.buf)+k] }
 func (m *memBody) got(k int)         { m.buf = m.buf[:len(m.buf)+k] }
+func (m *memBody) free()             { bufpool.Put(m.buf); m.buf = nil }
 
 // readBody reads the request body into sink with the limits, budget and
-// timeouts body describes, growing the sink as body grows its buffer.
+// timeouts body describes, growing the sink as body grows its buffer. Its
+// release (called on a problem here, else by the caller when the answer is
+// written) gives back the budget and the sink's buffers: nothing may read
+// the body after it.
 func (s *Server) readBody(c *gin.Context, sink bodySink) (func(), *wire.Problem) {
 	n := c.Request.ContentLength
 	limit := s.cfg.MaxBodyBytes
@@ -433,6 +454,7 @@ func (s *Server) readBody(c *gin.Context, sink bodySink) (func(), *wire.Problem)
 		s.intake.release(held)
 		s.metrics.intakeBytes.Sub(float64(held))
 		held = 0
+		sink.free()
 	}
 	charge := func(upTo int64) bool {
 		if upTo <= held {

@@ -4,7 +4,8 @@ import (
 	"bytes"
 	"io"
 	"net/url"
-	"slices"
+
+	"eivfit/api/internal/bufpool"
 )
 
 // Reading a fit CSV while its body arrives. The server hands the stream
@@ -47,7 +48,9 @@ type CSVStream struct {
 	mode     streamMode
 
 	// buf holds the unparsed bytes (a partial line, or the header not yet
-	// complete), then room for the next read.
+	// complete), then room for the next read. It and kept are the stream's
+	// own buffers, from bufpool up to its largest class; Release gives
+	// them back.
 	buf []byte
 
 	lay      *layout
@@ -75,8 +78,10 @@ const (
 	keepRest
 )
 
-// streamBlock is the smallest room a stream keeps for a block; a line
-// longer than that grows it.
+// streamBlock is the smallest room a stream keeps for a block, unless the
+// body is shorter: a declared length needs at most its own size and a
+// byte; a body without one starts at a block of twice what has arrived
+// (at least 4 KiB) and doubles. A line longer than that grows it.
 const streamBlock = 512 << 10
 
 // NewCSVStream starts a stream of a fit CSV in the dialect of o, with
@@ -96,15 +101,17 @@ func (s *CSVStream) Len() int64 { return s.received }
 // how many were read.
 func (s *CSVStream) Room(k int) []byte {
 	if s.mode >= keepWhole {
-		if cap(s.kept)-len(s.kept) < k {
-			s.kept = slices.Grow(s.kept, k)
-		}
+		s.kept = bufpool.Grow(s.kept, k)
 		return s.kept[len(s.kept) : len(s.kept)+k]
 	}
 	if cap(s.buf)-len(s.buf) < k {
-		nb := make([]byte, len(s.buf), max(streamBlock, 2*cap(s.buf), len(s.buf)+k))
-		copy(nb, s.buf)
-		s.buf = nb
+		size := max(streamBlock, 2*cap(s.buf))
+		if s.hint >= 0 {
+			size = min(size, int(s.hint)+1)
+		} else {
+			size = min(size, max(2*int(s.received+int64(k)), 4<<10))
+		}
+		s.buf = bufpool.Grow(s.buf, max(size, len(s.buf)+k)-len(s.buf))
 	}
 	return s.buf[len(s.buf) : len(s.buf)+k]
 }
@@ -129,8 +136,11 @@ func (s *CSVStream) Got(k int) {
 }
 
 // Finish decodes what is left once the body is complete: the dataset, or
-// the problem the row-by-row reader names.
+// the problem the row-by-row reader names. It releases the stream's
+// buffers: the dataset and the problems hold copies of what they took from
+// the bytes (numbers, and strings made from them).
 func (s *CSVStream) Finish() (*Dataset, error) {
+	defer s.Release()
 	if s.mode == inHeader {
 		s.header(true)
 	}
@@ -140,7 +150,6 @@ func (s *CSVStream) Finish() (*Dataset, error) {
 	switch s.mode {
 	case keepWhole:
 		body := bytes.TrimPrefix(s.kept, []byte("\xef\xbb\xbf"))
-		s.kept = nil
 		return firstGroup(decodeFitCSV(newRecords(body, s.o), s.maxRows, s.o))
 	case inRows:
 		if s.n > 0 {
@@ -174,8 +183,18 @@ func (s *CSVStream) Finish() (*Dataset, error) {
 	}
 	rs := newRecords(s.kept, s.o)
 	rs.chunk, rs.line, rs.base = -1, s.line, s.line
-	s.kept = nil
 	return firstGroup(fitRows(rs, s.lay, s.seen, s.maxRows, s.o, d))
+}
+
+// Release gives the stream's buffers back to the pool (once: it may be
+// called again, and after Finish) and lets go of the columns, which a
+// finished stream has handed over. Nothing may read a block Room gave out
+// after it.
+func (s *CSVStream) Release() {
+	bufpool.Put(s.buf)
+	bufpool.Put(s.kept)
+	s.buf, s.kept = nil, nil
+	s.cols, s.fields, s.rows = [7][]float64{}, nil, nil
 }
 
 // col is column k of the points taken, without spare room.
@@ -269,8 +288,8 @@ func (s *CSVStream) keepAll() {
 	s.mode = keepWhole
 	s.kept = s.buf
 	if s.hint >= 0 && int64(cap(s.kept)) < s.hint+1 {
-		s.kept = make([]byte, len(s.buf), s.hint+1)
-		copy(s.kept, s.buf)
+		s.kept = append(bufpool.Ahead(int(s.hint)+1), s.buf...)
+		bufpool.Put(s.buf)
 	}
 	s.buf = nil
 }
@@ -283,7 +302,8 @@ func (s *CSVStream) resume(rest []byte) {
 	if s.hint >= 0 {
 		size += max(s.hint-s.received, 0) + 1
 	}
-	s.kept = append(make([]byte, 0, size), rest...)
+	s.kept = append(bufpool.Ahead(int(size)), rest...)
+	bufpool.Put(s.buf) // rest, a slice of it, is copied
 	s.buf = nil
 }
 
