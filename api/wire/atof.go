@@ -58,7 +58,7 @@ func scanFloat(b []byte, i int) (v float64, end int, ok bool) {
 	if i < n && b[i] == '.' {
 		i++
 		fs := i
-		for i+8 <= n {
+		for i+8 <= n && b[i]-'0' <= 9 {
 			d, ok := eightDigits(b[i:])
 			if !ok {
 				break
