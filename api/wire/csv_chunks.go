@@ -297,9 +297,11 @@ func parseChunkRows(b []byte, comma byte, fields [][]float64, from int) (int, bo
 	i, n, slot := 0, len(b), from
 	last := len(fields) - 1
 	for i < n {
-		if next, skip := skipLine(b, i); skip {
-			i = next
-			continue
+		if c := b[i]; c == '\n' || c == '#' || c == '\r' {
+			if next, skip := skipLine(b, i); skip {
+				i = next
+				continue
+			}
 		}
 		for j, col := range fields {
 			for i < n && csvSpace[b[i]] && b[i] != comma {
@@ -310,6 +312,13 @@ func parseChunkRows(b []byte, comma byte, fields [][]float64, from int) (int, bo
 				return slot - from, false
 			}
 			i = end
+			// Most cells end at their delimiter: a comma, or the line
+			// break after the last.
+			if i < n && (j < last && b[i] == comma || j == last && b[i] == '\n') {
+				i++
+				col[slot] = v
+				continue
+			}
 			for i < n && csvSpace[b[i]] && b[i] != comma {
 				i++
 			}
