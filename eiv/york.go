@@ -77,11 +77,12 @@ func York(x, y, sx, sy, r []float64, opt *YorkOptions) (*Fit, error) {
 	if err != nil {
 		return nil, err
 	}
-	if err := checkYork(x, y, sx, sy, r); err != nil {
+	start, err := checkYork(x, y, sx, sy, r)
+	if err != nil {
 		return nil, err
 	}
 	yk := newYork(opt, len(x))
-	xs, ys, sxs, sys, st, kx, ky := yk.rescale(x, y, sx, sy)
+	xs, ys, sxs, sys, st, kx, ky := yk.rescaleFrom(x, y, sx, sy, start)
 	ln, err := yk.solve(xs, ys, sxs, sys, r, st)
 	if err != nil {
 		return nil, err
@@ -189,22 +190,25 @@ func severalMinima(ms []yorkMin, chosen, bk float64) string {
 		len(ms), best.b*bk, best.s, strings.Join(others, ", "))
 }
 
-func checkYork(x, y, sx, sy, r []float64) error {
+// checkYork validates York's data and returns the start pass's sums
+// (startAll's, bit for bit: the same rows in the same chunks, added in the
+// same order), gathered in the same pass while each chunk is in cache.
+func checkYork(x, y, sx, sy, r []float64) (startSums, error) {
 	n := len(x)
 	if len(y) != n {
-		return ErrLengthMismatch
+		return startSums{}, ErrLengthMismatch
 	}
 	if n < 3 {
-		return ErrTooFewPoints
+		return startSums{}, ErrTooFewPoints
 	}
 	if sx == nil || sy == nil || len(sx) != n || len(sy) != n {
 		if err := checkXY(x, y); err != nil {
-			return err
+			return startSums{}, err
 		}
 		if sx == nil || sy == nil {
-			return &OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties of x and y"}
+			return startSums{}, &OptionError{Option: "sx, sy", Reason: "york needs per-point uncertainties of x and y"}
 		}
-		return ErrLengthMismatch
+		return startSums{}, ErrLengthMismatch
 	}
 	// One pass over the four columns (chunked for large n); the answer is
 	// that of checking x and y first and then the σ, row by row.
@@ -217,15 +221,15 @@ func checkYork(x, y, sx, sy, r []float64) error {
 		}, yorkCheck.plus)
 	}
 	if err := c.xy.verdict(); err != nil {
-		return err
+		return startSums{}, err
 	}
 	if c.serr != nil {
-		return c.serr
+		return startSums{}, c.serr
 	}
 	if outOfRange(c.smx) || outOfRange(c.smy) {
-		return ErrMagnitude
+		return startSums{}, ErrMagnitude
 	}
-	return checkCorrelation(r, n)
+	return c.start, checkCorrelation(r, n)
 }
 
 // checkYorkRows is checkYork's pass over rows [lo, hi), error indices
@@ -233,6 +237,9 @@ func checkYork(x, y, sx, sy, r []float64) error {
 func checkYorkRows(x, y, sx, sy []float64, lo, hi int) yorkCheck {
 	c := yorkCheck{xy: scanXY(x[lo:hi], y[lo:hi], x[0])}
 	c.smx, c.smy, c.serr = scanYorkSigma(sx[lo:hi], sy[lo:hi])
+	if c.xy.err == nil && c.serr == nil {
+		c.start = startPart(x[lo:hi], y[lo:hi], sx[lo:hi], sy[lo:hi], x[0], y[0])
+	}
 	if pe, ok := c.xy.err.(*PointError); ok {
 		pe.Index += lo
 	}
@@ -247,6 +254,7 @@ type yorkCheck struct {
 	xy       xyScan
 	smx, smy float64 // the largest σx and σy
 	serr     error   // the first invalid σ
+	start    startSums
 }
 
 // plus combines two consecutive runs of rows: the first error of each kind.
@@ -262,6 +270,7 @@ func (c yorkCheck) plus(o yorkCheck) yorkCheck {
 		c.serr = o.serr
 	}
 	c.smx, c.smy = max(c.smx, o.smx), max(c.smy, o.smy)
+	c.start = c.start.plus(o.start)
 	return c
 }
 
@@ -426,10 +435,13 @@ const yorkHardRatio = 1.0 / 16
 // yorkStart returns the unweighted means and a starting slope: Deming's
 // with λ = Σσy²/Σσx² (OLS when every σx is 0), from one pass; and whether
 // the data are of ordinary scale and hard.
-func yorkStart(x, y, sx, sy []float64) (st yorkStartInfo) {
-	n := len(x)
-	x0, y0 := x[0], y[0]
-	ss := startAll(x, y, sx, sy, x0, y0)
+func yorkStart(x, y, sx, sy []float64) yorkStartInfo {
+	return startFrom(x[0], y[0], len(x), startAll(x, y, sx, sy, x[0], y[0]))
+}
+
+// startFrom is yorkStart from the start pass's sums ss about (x0, y0) over
+// n points.
+func startFrom(x0, y0 float64, n int, ss startSums) (st yorkStartInfo) {
 	s1, s2, sxx, syy, sxy, vx, vy := ss.s1, ss.s2, ss.sxx, ss.syy, ss.sxy, ss.vx, ss.vy
 	fn := float64(n)
 	mx, my := s1/fn, s2/fn
@@ -505,7 +517,12 @@ func ordinaryScale(v, s, n float64) bool {
 // Every product is exact, so the fit on the copies is the fit on the data
 // with x′ = kx·x, y′ = ky·y: b = b′·kx/ky, a = a′/ky, S unchanged.
 func (yk *york) rescale(x, y, sx, sy []float64) (xs, ys, sxs, sys []float64, st yorkStartInfo, kx, ky float64) {
-	st = yorkStart(x, y, sx, sy)
+	return yk.rescaleFrom(x, y, sx, sy, startAll(x, y, sx, sy, x[0], y[0]))
+}
+
+// rescaleFrom is rescale with the start pass's sums over the data given.
+func (yk *york) rescaleFrom(x, y, sx, sy []float64, start startSums) (xs, ys, sxs, sys []float64, st yorkStartInfo, kx, ky float64) {
+	st = startFrom(x[0], y[0], len(x), start)
 	if st.ordinary {
 		return x, y, sx, sy, st, 1, 1
 	}
