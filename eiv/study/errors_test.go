@@ -3,6 +3,7 @@ package study_test
 import (
 	"context"
 	"errors"
+	"math"
 	"testing"
 
 	"eivfit/eiv/study"
@@ -25,6 +26,15 @@ func TestFitErrors(t *testing.T) {
 		d.SX[i] = v
 		return d
 	}
+	long := func(n int, field string, at int) study.Data {
+		var d study.Data
+		for i := range n {
+			d.X, d.Y = append(d.X, float64(i)), append(d.Y, 2*float64(i)+float64(i%3))
+			d.SX, d.SY = append(d.SX, 0.5), append(d.SY, 0.5)
+		}
+		map[string][]float64{"sx": d.SX, "sy": d.SY}[field][at] = map[string]float64{"sx": -1, "sy": math.NaN()}[field]
+		return d
+	}
 	for _, c := range []struct {
 		name   string
 		data   study.Data
@@ -36,6 +46,9 @@ func TestFitErrors(t *testing.T) {
 	}{
 		{"no points", study.Data{}, study.FitOptions{}, study.Invalid, study.FieldData, -1, ""},
 		{"negative sx", withSX(3, -1), study.FitOptions{}, study.Invalid, "sx", 3, ""},
+		// A long column is checked in halves: a fault in either is found.
+		{"NaN sy late in a long column", long(70_000, "sy", 69_998), study.FitOptions{}, study.Invalid, "sy", 69_998, ""},
+		{"negative sx early in a long column", long(70_000, "sx", 5), study.FitOptions{}, study.Invalid, "sx", 5, ""},
 		{"r = 1", study.Data{X: ok.X, Y: ok.Y, SX: ok.SX, SY: ok.SY, R: []float64{1, 0, 0, 0}}, study.FitOptions{}, study.Invalid, "r", 0, ""},
 		{"unknown method", ok, study.FitOptions{Methods: []string{"ols", "passing"}}, study.Invalid, "methods", 1, ""},
 		{"duplicate method", ok, study.FitOptions{Methods: []string{"ols", "ols"}}, study.Invalid, "methods", 1, ""},
