@@ -47,31 +47,42 @@ func scanFloat(b []byte, i int) (v float64, end int, ok bool) {
 		i++
 	}
 	// The digits, up to 19 of them exactly in mant (more wrap around,
-	// and such a number takes the slow path).
+	// and such a number takes the slow path): sixteen bytes at once where
+	// they remain and hold the whole mantissa (mantissa.go), else one digit
+	// at a time.
 	var mant uint64
-	is := i
-	for i < n && b[i]-'0' <= 9 {
-		mant = mant*10 + uint64(b[i]-'0')
-		i++
-	}
-	digits, exp := i-is, 0
-	if i < n && b[i] == '.' {
-		i++
-		fs := i
-		for i+8 <= n && b[i]-'0' <= 9 {
-			d, ok := eightDigits(b[i:])
-			if !ok {
-				break
-			}
-			mant = mant*100000000 + d
-			i += 8
+	digits, exp := 0, 0
+	if lo, hi, l, p := mantissaAt(b, i); l > 0 {
+		mant, digits = mantissaOf(lo, hi), l
+		if p < l {
+			digits, exp = l-1, p+1-l
 		}
+		i += l
+	} else {
+		is := i
 		for i < n && b[i]-'0' <= 9 {
 			mant = mant*10 + uint64(b[i]-'0')
 			i++
 		}
-		digits += i - fs
-		exp = fs - i
+		digits = i - is
+		if i < n && b[i] == '.' {
+			i++
+			fs := i
+			for i+8 <= n && b[i]-'0' <= 9 {
+				d, ok := eightDigits(b[i:])
+				if !ok {
+					break
+				}
+				mant = mant*100000000 + d
+				i += 8
+			}
+			for i < n && b[i]-'0' <= 9 {
+				mant = mant*10 + uint64(b[i]-'0')
+				i++
+			}
+			digits += i - fs
+			exp = fs - i
+		}
 	}
 	slow := digits > 19 || mant >= 1<<53
 	if digits == 0 { // "", "-", ".", "Inf", "NaN"
