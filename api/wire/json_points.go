@@ -445,6 +445,22 @@ func jsonNumber(b []byte, j int) (v float64, end int, ok bool) {
 		i++
 	}
 	k := i
+	if lo, hi, l, p := mantissaAt(b, i); l > 0 {
+		// Sixteen bytes at once (mantissa.go): taken when the mantissa
+		// is JSON's (a digit before the point, no leading zero, a digit
+		// after it) and no exponent follows.
+		intDigits, frac := min(p, l), max(l-p-1, 0)
+		if intDigits > 0 && (intDigits == 1 || b[k] != '0') && (p >= l || frac > 0) && (k+l >= n || b[k+l]|0x20 != 'e') {
+			v = float64(mantissaOf(lo, hi))
+			if frac > 0 {
+				v /= pow10[frac]
+			}
+			if neg {
+				v = -v
+			}
+			return v, k + l, true
+		}
+	}
 	var mant uint64
 	for ; i < n && b[i]-'0' < 10; i++ { // most integer parts are short
 		mant = mant*10 + uint64(b[i]-'0')

@@ -94,30 +94,38 @@ func TestMantissa16(t *testing.T) {
 	}
 }
 
-// scanBoth reads b at i with and without mantissa16 and says how they
-// differ ("" when they do not): value bits, end and ok.
+// scanBoth reads b at i with and without mantissa16, as a CSV cell
+// (scanFloat) and as a JSON number (jsonNumber), and says how they differ
+// ("" when they do not): value bits, end and ok.
 func scanBoth(b []byte, i int) string {
-	v, end, ok := scanFloat(b, i)
-	haveMantissa16 = false
-	w, wend, wok := scanFloat(b, i)
-	haveMantissa16 = true
-	if math.Float64bits(v) != math.Float64bits(w) || end != wend || ok != wok {
-		return fmt.Sprintf("%q at %d: %v %d %v with sixteen bytes at once, %v %d %v one at a time", b, i, v, end, ok, w, wend, wok)
+	for _, read := range []struct {
+		name string
+		f    func([]byte, int) (float64, int, bool)
+	}{{"scanFloat", scanFloat}, {"jsonNumber", jsonNumber}} {
+		v, end, ok := read.f(b, i)
+		haveMantissa16 = false
+		w, wend, wok := read.f(b, i)
+		haveMantissa16 = true
+		if math.Float64bits(v) != math.Float64bits(w) || end != wend || ok != wok {
+			return fmt.Sprintf("%s(%q, %d): %v %d %v with sixteen bytes at once, %v %d %v one at a time", read.name, b, i, v, end, ok, w, wend, wok)
+		}
 	}
 	return ""
 }
 
-// TestScanFloatSixteenBytes: scanFloat answers the same with mantissa16
-// as one digit at a time (the reading TestScanFloatExact holds to strconv)
-// on the adversarial and random decimals and random strings over the
-// number alphabet, each followed by a delimiter and enough bytes for the
+// TestScanFloatSixteenBytes: scanFloat and jsonNumber answer the same
+// with mantissa16 as one digit at a time (the readings TestScanFloatExact
+// and TestJSONNumber hold to strconv) on the adversarial and random
+// decimals, JSON's edge cases and random strings over the number
+// alphabet, each followed by a delimiter and enough bytes for the
 // sixteen-byte reading (and by exactly enough, and one byte short).
 func TestScanFloatSixteenBytes(t *testing.T) {
 	if !haveMantissa16 {
 		t.Skip("mantissa16 does not run on this processor")
 	}
 	r := rand.New(rand.NewPCG(16, 2))
-	inputs := adversarialDecimals(r)
+	inputs := append(adversarialDecimals(r), "01.5", "00", "0", "-0", "0.5", "-0.", "1.", ".5", "-.5", "1.5e3", "1.5E-3", "12345678901234.5",
+		"123456789012345", "1234567890123456", "0.000000000000001", "9.99999999999999")
 	const alphabet = "0123456789012345678901234567890123456789.-+eE x_"
 	for range 200_000 {
 		v := math.Exp(r.NormFloat64()*10) * float64(1-2*r.IntN(2))
@@ -145,8 +153,9 @@ func TestScanFloatSixteenBytes(t *testing.T) {
 	}
 }
 
-// FuzzScanFloatSixteenBytes: any bytes read at any offset answer the same
-// with mantissa16 as one digit at a time.
+// FuzzScanFloatSixteenBytes: any bytes read at any offset, as a CSV cell
+// and as a JSON number, answer the same with mantissa16 as one digit at a
+// time.
 func FuzzScanFloatSixteenBytes(f *testing.F) {
 	for _, s := range []string{"57.12345678,1.5", "-0.000123456789012e5;", "1..2,3456789012345", ".5\n1234567890123456", "123456789012345.6x"} {
 		f.Add([]byte(s), uint8(0))
