@@ -96,7 +96,9 @@ func TestMantissa16(t *testing.T) {
 
 // scanBoth reads b at i with and without mantissa16, as a CSV cell
 // (scanFloat) and as a JSON number (jsonNumber), and says how they differ
-// ("" when they do not): value bits, end and ok.
+// ("" when they do not): value bits, end and ok. It switches the package's
+// haveMantissa16, so no test that reads numbers may run beside it in
+// parallel (none in this package does).
 func scanBoth(b []byte, i int) string {
 	for _, read := range []struct {
 		name string
